@@ -1,0 +1,320 @@
+"""Numba kernels for orientation maths; the public wrappers live in :mod:`slipnet.orientation`.
+
+Each operation has a ``*_single`` kernel for one item and a row kernel looping over ``(n, k)``
+arrays with ``prange``. Quaternions are ``(w, x, y, z)``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+
+SQRT2_INV = 1.0 / math.sqrt(2.0)
+
+
+def _cubic_operators() -> np.ndarray:
+    """The 24 proper rotations of the cubic point group 432 as unit quaternions, w >= 0."""
+    s = math.sqrt(0.5)
+    ops = [
+        (1, 0, 0, 0),
+        # 180 deg about <100>
+        (0, 1, 0, 0), (0, 0, 1, 0), (0, 0, 0, 1),
+        # 90 deg about <100>
+        (s, s, 0, 0), (s, -s, 0, 0), (s, 0, s, 0), (s, 0, -s, 0), (s, 0, 0, s), (s, 0, 0, -s),
+        # 120 deg about <111>
+        (0.5, 0.5, 0.5, 0.5), (0.5, -0.5, -0.5, -0.5), (0.5, 0.5, -0.5, 0.5),
+        (0.5, -0.5, 0.5, -0.5), (0.5, -0.5, 0.5, 0.5), (0.5, 0.5, -0.5, -0.5),
+        (0.5, -0.5, -0.5, 0.5), (0.5, 0.5, 0.5, -0.5),
+        # 180 deg about <110>
+        (0, s, s, 0), (0, -s, s, 0), (0, 0, s, s), (0, 0, -s, s), (0, s, 0, s), (0, -s, 0, s),
+    ]
+    return np.array(ops, dtype=np.float64)
+
+
+CUBIC_OPERATORS = _cubic_operators()
+
+
+@nb.njit(cache=True, inline="always")
+def quat_multiply_single(a, b, out):
+    out[0] = a[0] * b[0] - a[1] * b[1] - a[2] * b[2] - a[3] * b[3]
+    out[1] = a[0] * b[1] + a[1] * b[0] + a[2] * b[3] - a[3] * b[2]
+    out[2] = a[0] * b[2] - a[1] * b[3] + a[2] * b[0] + a[3] * b[1]
+    out[3] = a[0] * b[3] + a[1] * b[2] - a[2] * b[1] + a[3] * b[0]
+
+
+@nb.njit(cache=True, parallel=True)
+def quat_multiply_rows(a, b, out):
+    for i in nb.prange(a.shape[0]):
+        quat_multiply_single(a[i], b[i], out[i])
+
+
+@nb.njit(cache=True, inline="always")
+def euler_to_quat_single(e, out):
+    # Bunge (z-x-z) passive convention, sample -> crystal, as orix's eu2qu.
+    sigma = 0.5 * (e[0] + e[2])
+    delta = 0.5 * (e[0] - e[2])
+    c = math.cos(0.5 * e[1])
+    s = math.sin(0.5 * e[1])
+    w = c * math.cos(sigma)
+    x = -s * math.cos(delta)
+    y = -s * math.sin(delta)
+    z = -c * math.sin(sigma)
+    if w < 0.0:
+        w, x, y, z = -w, -x, -y, -z
+    out[0] = w
+    out[1] = x
+    out[2] = y
+    out[3] = z
+
+
+@nb.njit(cache=True, parallel=True)
+def euler_to_quat_rows(e, out):
+    for i in nb.prange(e.shape[0]):
+        euler_to_quat_single(e[i], out[i])
+
+
+@nb.njit(cache=True, inline="always")
+def quat_to_euler_single(q, out):
+    # Inverse of euler_to_quat_single (Rowenhorst et al. 2015, qu2eu with P = +1 sign pattern).
+    q0, q1, q2, q3 = q[0], q[1], q[2], q[3]
+    q03 = q0 * q0 + q3 * q3
+    q12 = q1 * q1 + q2 * q2
+    chi = math.sqrt(q03 * q12)
+    if chi < 1e-14:
+        if q12 < 1e-14:
+            phi1 = math.atan2(-2.0 * q0 * q3, q0 * q0 - q3 * q3)
+            big_phi = 0.0
+        else:
+            phi1 = math.atan2(2.0 * q1 * q2, q1 * q1 - q2 * q2)
+            big_phi = math.pi
+        phi2 = 0.0
+    else:
+        phi1 = math.atan2((q1 * q3 - q0 * q2) / chi, (-q0 * q1 - q2 * q3) / chi)
+        big_phi = math.atan2(2.0 * chi, q03 - q12)
+        phi2 = math.atan2((q0 * q2 + q1 * q3) / chi, (q2 * q3 - q0 * q1) / chi)
+    two_pi = 2.0 * math.pi
+    phi1 = phi1 % two_pi
+    phi2 = phi2 % two_pi
+    out[0] = phi1
+    out[1] = big_phi
+    out[2] = phi2
+
+
+@nb.njit(cache=True, parallel=True)
+def quat_to_euler_rows(q, out):
+    for i in nb.prange(q.shape[0]):
+        quat_to_euler_single(q[i], out[i])
+
+
+@nb.njit(cache=True, inline="always")
+def quat_to_matrix_single(q, out):
+    # Matrix of the rotation v' = q v q*, so that quat_rotate and matmul agree.
+    w, x, y, z = q[0], q[1], q[2], q[3]
+    out[0, 0] = 1.0 - 2.0 * (y * y + z * z)
+    out[0, 1] = 2.0 * (x * y - w * z)
+    out[0, 2] = 2.0 * (x * z + w * y)
+    out[1, 0] = 2.0 * (x * y + w * z)
+    out[1, 1] = 1.0 - 2.0 * (x * x + z * z)
+    out[1, 2] = 2.0 * (y * z - w * x)
+    out[2, 0] = 2.0 * (x * z - w * y)
+    out[2, 1] = 2.0 * (y * z + w * x)
+    out[2, 2] = 1.0 - 2.0 * (x * x + y * y)
+
+
+@nb.njit(cache=True, parallel=True)
+def quat_to_matrix_rows(q, out):
+    for i in nb.prange(q.shape[0]):
+        quat_to_matrix_single(q[i], out[i])
+
+
+@nb.njit(cache=True, inline="always")
+def matrix_to_quat_single(m, out):
+    tr = m[0, 0] + m[1, 1] + m[2, 2]
+    if tr > 0.0:
+        s = 2.0 * math.sqrt(tr + 1.0)
+        w = 0.25 * s
+        x = (m[2, 1] - m[1, 2]) / s
+        y = (m[0, 2] - m[2, 0]) / s
+        z = (m[1, 0] - m[0, 1]) / s
+    elif m[0, 0] > m[1, 1] and m[0, 0] > m[2, 2]:
+        s = 2.0 * math.sqrt(1.0 + m[0, 0] - m[1, 1] - m[2, 2])
+        w = (m[2, 1] - m[1, 2]) / s
+        x = 0.25 * s
+        y = (m[0, 1] + m[1, 0]) / s
+        z = (m[0, 2] + m[2, 0]) / s
+    elif m[1, 1] > m[2, 2]:
+        s = 2.0 * math.sqrt(1.0 + m[1, 1] - m[0, 0] - m[2, 2])
+        w = (m[0, 2] - m[2, 0]) / s
+        x = (m[0, 1] + m[1, 0]) / s
+        y = 0.25 * s
+        z = (m[1, 2] + m[2, 1]) / s
+    else:
+        s = 2.0 * math.sqrt(1.0 + m[2, 2] - m[0, 0] - m[1, 1])
+        w = (m[1, 0] - m[0, 1]) / s
+        x = (m[0, 2] + m[2, 0]) / s
+        y = (m[1, 2] + m[2, 1]) / s
+        z = 0.25 * s
+    n = math.sqrt(w * w + x * x + y * y + z * z)
+    if w < 0.0:
+        n = -n
+    out[0] = w / n
+    out[1] = x / n
+    out[2] = y / n
+    out[3] = z / n
+
+
+@nb.njit(cache=True, parallel=True)
+def matrix_to_quat_rows(m, out):
+    for i in nb.prange(m.shape[0]):
+        matrix_to_quat_single(m[i], out[i])
+
+
+@nb.njit(cache=True, inline="always")
+def quat_rotate_single(q, v, out):
+    # v' = q v q*, written out (t = 2 q_vec x v; v' = v + w t + q_vec x t).
+    w, x, y, z = q[0], q[1], q[2], q[3]
+    tx = 2.0 * (y * v[2] - z * v[1])
+    ty = 2.0 * (z * v[0] - x * v[2])
+    tz = 2.0 * (x * v[1] - y * v[0])
+    out[0] = v[0] + w * tx + (y * tz - z * ty)
+    out[1] = v[1] + w * ty + (z * tx - x * tz)
+    out[2] = v[2] + w * tz + (x * ty - y * tx)
+
+
+@nb.njit(cache=True, parallel=True)
+def quat_rotate_rows(q, v, out):
+    for i in nb.prange(q.shape[0]):
+        quat_rotate_single(q[i], v[i], out[i])
+
+
+@nb.njit(cache=True, inline="always")
+def _sort4_desc(a, b, c, d):
+    if a < b:
+        a, b = b, a
+    if c < d:
+        c, d = d, c
+    if a < c:
+        a, c = c, a
+    if b < d:
+        b, d = d, b
+    if b < c:
+        b, c = c, b
+    return a, b, c, d
+
+
+@nb.njit(cache=True, inline="always")
+def cubic_max_w_single(q):
+    """Largest |w| over the 24 cubic equivalents of ``q`` (closed form)."""
+    a, b, c, d = _sort4_desc(abs(q[0]), abs(q[1]), abs(q[2]), abs(q[3]))
+    w = a
+    w2 = (a + b) * SQRT2_INV
+    if w2 > w:
+        w = w2
+    w3 = 0.5 * (a + b + c + d)
+    if w3 > w:
+        w = w3
+    return w
+
+
+@nb.njit(cache=True, parallel=True)
+def disorientation_angle_rows(qa, qb, out):
+    # dq = qb * conj(qa); only |dq| components enter, so the product is written out inline.
+    for i in nb.prange(qa.shape[0]):
+        a0, a1, a2, a3 = qa[i, 0], -qa[i, 1], -qa[i, 2], -qa[i, 3]
+        b0, b1, b2, b3 = qb[i, 0], qb[i, 1], qb[i, 2], qb[i, 3]
+        w = b0 * a0 - b1 * a1 - b2 * a2 - b3 * a3
+        x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
+        y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
+        z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
+        n = math.sqrt(w * w + x * x + y * y + z * z)
+        a, b, c, d = _sort4_desc(abs(w) / n, abs(x) / n, abs(y) / n, abs(z) / n)
+        m = a
+        m2 = (a + b) * SQRT2_INV
+        if m2 > m:
+            m = m2
+        m3 = 0.5 * (a + b + c + d)
+        if m3 > m:
+            m = m3
+        if m > 1.0:
+            m = 1.0
+        out[i] = 2.0 * math.acos(m)
+
+
+@nb.njit(cache=True, parallel=True)
+def disorientation_rows(qa, qb, ops, angle, axis):
+    """Disorientation angle (rad) and axis (crystal frame, sorted h >= k >= l >= 0)."""
+    for i in nb.prange(qa.shape[0]):
+        a0, a1, a2, a3 = qa[i, 0], -qa[i, 1], -qa[i, 2], -qa[i, 3]
+        b0, b1, b2, b3 = qb[i, 0], qb[i, 1], qb[i, 2], qb[i, 3]
+        w = b0 * a0 - b1 * a1 - b2 * a2 - b3 * a3
+        x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
+        y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
+        z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
+        best = -1.0
+        bx = 0.0
+        by = 0.0
+        bz = 1.0
+        for k in range(ops.shape[0]):
+            s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
+            tw = s0 * w - s1 * x - s2 * y - s3 * z
+            tx = s0 * x + s1 * w + s2 * z - s3 * y
+            ty = s0 * y - s1 * z + s2 * w + s3 * x
+            tz = s0 * z + s1 * y - s2 * x + s3 * w
+            if abs(tw) > best:
+                best = abs(tw)
+                sg = 1.0 if tw >= 0 else -1.0
+                bx, by, bz = sg * tx, sg * ty, sg * tz
+        n = math.sqrt(best * best + bx * bx + by * by + bz * bz)
+        m = best / n
+        if m > 1.0:
+            m = 1.0
+        angle[i] = 2.0 * math.acos(m)
+        vn = math.sqrt(bx * bx + by * by + bz * bz)
+        if vn < 1e-12:
+            axis[i, 0], axis[i, 1], axis[i, 2] = 0.0, 0.0, 1.0
+        else:
+            h, k2, l, _ = _sort4_desc(abs(bx) / vn, abs(by) / vn, abs(bz) / vn, -1.0)
+            axis[i, 0], axis[i, 1], axis[i, 2] = h, k2, l
+
+
+@nb.njit(cache=True, parallel=True)
+def reduce_cubic_rows(q, ops, out):
+    """Cubic equivalent ``S q`` with the largest scalar part, w >= 0."""
+    for i in nb.prange(q.shape[0]):
+        w, x, y, z = q[i, 0], q[i, 1], q[i, 2], q[i, 3]
+        best = -1.0
+        for k in range(ops.shape[0]):
+            s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
+            tw = s0 * w - s1 * x - s2 * y - s3 * z
+            if abs(tw) > best:
+                best = abs(tw)
+                sg = 1.0 if tw >= 0 else -1.0
+                out[i, 0] = sg * tw
+                out[i, 1] = sg * (s0 * x + s1 * w + s2 * z - s3 * y)
+                out[i, 2] = sg * (s0 * y - s1 * z + s2 * w + s3 * x)
+                out[i, 3] = sg * (s0 * z + s1 * y - s2 * x + s3 * w)
+
+
+@nb.njit(cache=True, parallel=True)
+def nearest_cubic_rows(q, ref, ops, out):
+    """Cubic equivalent ``S q`` closest to ``ref`` (one reference per row), sign matched to it."""
+    for i in nb.prange(q.shape[0]):
+        w, x, y, z = q[i, 0], q[i, 1], q[i, 2], q[i, 3]
+        r0, r1, r2, r3 = ref[i, 0], ref[i, 1], ref[i, 2], ref[i, 3]
+        best = -1.0
+        for k in range(ops.shape[0]):
+            s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
+            tw = s0 * w - s1 * x - s2 * y - s3 * z
+            tx = s0 * x + s1 * w + s2 * z - s3 * y
+            ty = s0 * y - s1 * z + s2 * w + s3 * x
+            tz = s0 * z + s1 * y - s2 * x + s3 * w
+            dot = tw * r0 + tx * r1 + ty * r2 + tz * r3
+            if abs(dot) > best:
+                best = abs(dot)
+                sg = 1.0 if dot >= 0 else -1.0
+                out[i, 0] = sg * tw
+                out[i, 1] = sg * tx
+                out[i, 2] = sg * ty
+                out[i, 3] = sg * tz
