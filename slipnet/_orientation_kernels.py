@@ -275,8 +275,8 @@ def disorientation_rows(qa, qb, ops, angle, axis):
         if vn < 1e-12:
             axis[i, 0], axis[i, 1], axis[i, 2] = 0.0, 0.0, 1.0
         else:
-            h, k2, l, _ = _sort4_desc(abs(bx) / vn, abs(by) / vn, abs(bz) / vn, -1.0)
-            axis[i, 0], axis[i, 1], axis[i, 2] = h, k2, l
+            h, k2, l3, _ = _sort4_desc(abs(bx) / vn, abs(by) / vn, abs(bz) / vn, -1.0)
+            axis[i, 0], axis[i, 1], axis[i, 2] = h, k2, l3
 
 
 @nb.njit(cache=True, parallel=True)
