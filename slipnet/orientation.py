@@ -217,7 +217,8 @@ def quat_from_axis_angle(axis, angle, degrees: bool = True) -> np.ndarray:
     if degrees:
         ang = np.deg2rad(ang)
     half = 0.5 * ang[..., None]
-    q = np.concatenate(np.broadcast_arrays(np.cos(half), np.sin(half) * ax / norm), axis=-1)
+    vec = np.sin(half) * ax / norm
+    q = np.concatenate([np.broadcast_to(np.cos(half), (*vec.shape[:-1], 1)), vec], axis=-1)
     return np.where(q[..., :1] < 0, -q, q)
 
 
