@@ -218,6 +218,28 @@ def cubic_max_w_single(q):
     return w
 
 
+@nb.njit(cache=True, inline="always")
+def _closed_form_angle(a, b, c, d):
+    """Smallest rotation angle (rad) among the cubic equivalents of a quaternion whose absolute
+    components, sorted, are a >= b >= c >= d.
+
+    The scalar part of the best equivalent is max(a, (a+b)/sqrt 2, (a+b+c+d)/2); the norm of its
+    vector part is written without the cancellation of sqrt(1 - w^2), and the angle is
+    2 atan2(|v|, w), accurate to rounding even for near-identical orientations.
+    """
+    w = a
+    v2 = b * b + c * c + d * d
+    w2 = (a + b) * SQRT2_INV
+    if w2 > w:
+        w = w2
+        v2 = 0.5 * (a - b) * (a - b) + c * c + d * d
+    w3 = 0.5 * (a + b + c + d)
+    if w3 > w:
+        w = w3
+        v2 = 0.25 * ((a - b) ** 2 + (a - c) ** 2 + (a - d) ** 2 + (b - c) ** 2 + (b - d) ** 2 + (c - d) ** 2)
+    return 2.0 * math.atan2(math.sqrt(v2), w)
+
+
 @nb.njit(cache=True, parallel=True)
 def disorientation_angle_rows(qa, qb, out):
     # dq = qb * conj(qa); only |dq| components enter, so the product is written out inline.
@@ -228,18 +250,8 @@ def disorientation_angle_rows(qa, qb, out):
         x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
         y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
         z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
-        n = math.sqrt(w * w + x * x + y * y + z * z)
-        a, b, c, d = _sort4_desc(abs(w) / n, abs(x) / n, abs(y) / n, abs(z) / n)
-        m = a
-        m2 = (a + b) * SQRT2_INV
-        if m2 > m:
-            m = m2
-        m3 = 0.5 * (a + b + c + d)
-        if m3 > m:
-            m = m3
-        if m > 1.0:
-            m = 1.0
-        out[i] = 2.0 * math.acos(m)
+        a, b, c, d = _sort4_desc(abs(w), abs(x), abs(y), abs(z))
+        out[i] = _closed_form_angle(a, b, c, d)
 
 
 @nb.njit(cache=True, parallel=True)
@@ -266,12 +278,8 @@ def disorientation_rows(qa, qb, ops, angle, axis):
                 best = abs(tw)
                 sg = 1.0 if tw >= 0 else -1.0
                 bx, by, bz = sg * tx, sg * ty, sg * tz
-        n = math.sqrt(best * best + bx * bx + by * by + bz * bz)
-        m = best / n
-        if m > 1.0:
-            m = 1.0
-        angle[i] = 2.0 * math.acos(m)
         vn = math.sqrt(bx * bx + by * by + bz * bz)
+        angle[i] = 2.0 * math.atan2(vn, best)
         if vn < 1e-12:
             axis[i, 0], axis[i, 1], axis[i, 2] = 0.0, 0.0, 1.0
         else:
