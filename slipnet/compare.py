@@ -1,0 +1,874 @@
+"""Score forecasts against measurements: registration, measured localisation, scores, growth records.
+
+Data flow
+---------
+1. A measured displacement or strain series (:mod:`slipnet.strainmaps`) lives in its own image
+   frame. Control points (fiducial marks seen in both the strain images and the orientation map)
+   give a transform strain frame → map frame (:func:`fit_transform`).
+2. The shear strain is resampled onto the map grid (:func:`resample_to_map`) and the grain labels
+   onto the strain grid (:func:`labels_on_strain_grid`).
+3. Measured localisation: strain peaks (:func:`find_strain_peaks`), per-grain and per-boundary-band
+   statistics, slip-band directions from the structure tensor (:func:`band_orientation`).
+4. Scores: sites against peaks (:func:`score_sites`), rank agreement per grain / boundary
+   (:func:`rank_agreement`), path against measured path (:func:`score_path`), band directions
+   against predicted traces (:func:`score_band_directions`).
+5. Growth records: da/dN by ASTM E647 secant and seven-point incremental polynomial methods,
+   dips found and matched to predicted dips (:func:`match_dips`).
+
+Every function takes plain arrays / DataFrames; thin adapters (``*_from_forecast``,
+``predicted_dips_from_growth``) accept the forecast and growth results. :func:`compare_forecast`
+runs the whole comparison and returns a :class:`Comparison`.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy import ndimage, optimize, stats
+
+from ._checks import check_positive
+from ._compare_growth import dadn_incremental_polynomial, dadn_secant, find_rate_dips
+from ._compare_registration import (
+    Transform,
+    _as_points,
+    _grid_geometry,
+    fit_transform,
+    labels_on_strain_grid,
+    read_control_points,
+    resample_to_map,
+)
+from .errors import NumericalError, ParameterError
+from .report import write_summary, write_table
+from .strainmaps import (
+    StrainSeries,
+    equivalent_strain,
+    max_shear_strain,
+    read_strain,
+    strain_from_displacement,
+    write_strain,
+)
+
+__all__ = [
+    "Comparison",
+    "StrainSeries",
+    "Transform",
+    "band_orientation",
+    "boundary_band_statistics",
+    "compare_forecast",
+    "dadn_incremental_polynomial",
+    "dadn_secant",
+    "equivalent_strain",
+    "find_rate_dips",
+    "find_strain_peaks",
+    "fit_transform",
+    "grain_band_directions",
+    "grain_statistics",
+    "labels_on_strain_grid",
+    "match_dips",
+    "match_points",
+    "max_shear_strain",
+    "path_from_forecast",
+    "predicted_dips_from_growth",
+    "rank_agreement",
+    "read_control_points",
+    "read_strain",
+    "resample_to_map",
+    "score_band_directions",
+    "score_path",
+    "score_sites",
+    "sites_from_forecast",
+    "strain_from_displacement",
+    "write_comparison",
+    "write_strain",
+]
+
+
+
+# ============================================================================ measured localisation
+def find_strain_peaks(values, grid, *, threshold: float, min_distance_um: float,
+                      transform: Transform | None = None, max_peaks: int | None = None) -> pd.DataFrame:
+    """Local maxima of a strain field above a threshold, at least ``min_distance_um`` apart.
+
+    Parameters
+    ----------
+    values : (ny, nx) ndarray
+        Field (e.g. γ_max) on the strain grid; NaN ignored.
+    grid : StrainSeries or ((ny, nx), step_um, (x0, y0))
+    threshold : float
+        Smallest accepted peak value (same unit as ``values``).
+    min_distance_um : float
+        Smallest distance between two peaks; the higher one wins.
+    transform : Transform, optional
+        Strain → map frame; if given, ``x_um``/``y_um`` are in the map frame.
+    max_peaks : int, optional
+        Keep only the highest ones.
+
+    Returns
+    -------
+    DataFrame
+        ``x_um``, ``y_um``, ``row``, ``col``, ``value``, sorted by decreasing value.
+    """
+    from scipy.spatial import cKDTree
+
+    shape, step, origin = _grid_geometry(grid)
+    v = np.asarray(values, dtype=np.float64)
+    if v.shape != shape:
+        raise ParameterError(f"values should have the strain grid shape {shape}; got {v.shape}")
+    min_d = check_positive(min_distance_um, "min_distance_um")
+    r = max(math.floor(min_d / step), 1)
+    yy, xx = np.mgrid[-r:r + 1, -r:r + 1]
+    foot = (xx**2 + yy**2) <= r * r
+    filled = np.where(np.isfinite(v), v, -np.inf)
+    mx = ndimage.maximum_filter(filled, footprint=foot, mode="constant", cval=-np.inf)
+    cand = np.isfinite(v) & (filled >= mx) & (v >= float(threshold))
+    rows, cols = np.nonzero(cand)
+    vals = v[rows, cols]
+    order = np.lexsort((cols, rows, -vals))
+    rows, cols, vals = rows[order], cols[order], vals[order]
+    pos = np.stack([origin[0] + cols * step, origin[1] + rows * step], axis=1)
+    keep = np.ones(len(vals), dtype=bool)
+    if len(vals) > 1:
+        # greedy suppression over the (few) candidates: plateaus and near ties give several per blob
+        tree = cKDTree(pos)
+        pairs = tree.query_pairs(min_d - 1e-9 * step, output_type="ndarray")
+        if len(pairs):
+            nbr: dict[int, list[int]] = {}
+            for a, b in pairs:
+                nbr.setdefault(int(min(a, b)), []).append(int(max(a, b)))
+            for k in range(len(vals)):
+                if keep[k]:
+                    for b in nbr.get(k, ()):
+                        keep[b] = False
+    rows, cols, vals, pos = rows[keep], cols[keep], vals[keep], pos[keep]
+    if max_peaks is not None:
+        rows, cols, vals, pos = rows[:max_peaks], cols[:max_peaks], vals[:max_peaks], pos[:max_peaks]
+    if transform is not None and len(pos):
+        pos = transform.apply(pos)
+    return pd.DataFrame({"x_um": pos[:, 0], "y_um": pos[:, 1], "row": rows, "col": cols, "value": vals})
+
+
+def grain_statistics(values, labels) -> pd.DataFrame:
+    """Per-grain statistics of a field over its valid points.
+
+    Parameters
+    ----------
+    values : ndarray
+        Field (e.g. γ_max), NaN where missing.
+    labels : ndarray
+        Grain id of each point, same shape; −1 for none.
+
+    Returns
+    -------
+    DataFrame
+        ``grain``, ``n_points``, ``mean``, ``median``, ``p90``, ``max`` (unit of ``values``).
+    """
+    v = np.asarray(values, dtype=np.float64).ravel()
+    lab = np.asarray(labels).ravel()
+    if v.shape != lab.shape:
+        raise ParameterError(f"values and labels should have the same shape; got {np.shape(values)} "
+                             f"and {np.shape(labels)}")
+    ok = np.isfinite(v) & (lab >= 0)
+    df = pd.DataFrame({"grain": lab[ok].astype(np.int64), "v": v[ok]})
+    g = df.groupby("grain")["v"]
+    out = pd.DataFrame({"n_points": g.size(), "mean": g.mean(), "median": g.median(),
+                        "p90": g.quantile(0.9), "max": g.max()}).reset_index()
+    return out
+
+
+def boundary_band_statistics(values, x, y, boundary_points, boundary_ids, band_um: float) -> pd.DataFrame:
+    """Statistics of a field over the points within ``band_um`` of each boundary.
+
+    Parameters
+    ----------
+    values, x, y : ndarray
+        Field values and their positions in µm (map frame), any matching shapes.
+    boundary_points : (m, 2) ndarray
+        Densely sampled boundary positions (µm), e.g. from :func:`densify_polylines`.
+    boundary_ids : (m,) int ndarray
+        Boundary id of each sample.
+    band_um : float
+        Half-width of the band. A point counts for the boundary nearest to it.
+
+    Returns
+    -------
+    DataFrame
+        ``boundary_id``, ``n_points``, ``mean``, ``p90``, ``max``.
+    """
+    from scipy.spatial import cKDTree
+
+    band = check_positive(band_um, "band_um")
+    v, xx, yy = (np.asarray(a, dtype=np.float64).ravel() for a in np.broadcast_arrays(values, x, y))
+    bp = _as_points(boundary_points, "boundary_points")
+    bid = np.asarray(boundary_ids).ravel()
+    if bid.shape[0] != bp.shape[0]:
+        raise ParameterError("boundary_ids should give one id per boundary point")
+    ok = np.isfinite(v)
+    cols = ["boundary_id", "n_points", "mean", "p90", "max"]
+    if not ok.any() or bp.shape[0] == 0:
+        return pd.DataFrame(columns=cols)
+    d, k = cKDTree(bp).query(np.stack([xx[ok], yy[ok]], 1), distance_upper_bound=band)
+    near = np.isfinite(d)
+    df = pd.DataFrame({"boundary_id": bid[k[near]].astype(np.int64), "v": v[ok][near]})
+    g = df.groupby("boundary_id")["v"]
+    return pd.DataFrame({"n_points": g.size(), "mean": g.mean(), "p90": g.quantile(0.9),
+                         "max": g.max()}).reset_index()[cols]
+
+
+def densify_polylines(polylines: dict, spacing_um: float) -> tuple[np.ndarray, np.ndarray]:
+    """Sample ``{id: [(k, 2) arrays]}`` polylines every ``spacing_um`` → ``(points (m, 2), ids (m,))``."""
+    spacing = check_positive(spacing_um, "spacing_um")
+    pts, ids = [], []
+    for bid, lines in polylines.items():
+        for line in lines:
+            p = _densify(np.asarray(line, float).reshape(-1, 2), spacing)
+            pts.append(p)
+            ids.append(np.full(len(p), int(bid)))
+    if not pts:
+        return np.zeros((0, 2)), np.zeros(0, dtype=np.int64)
+    return np.concatenate(pts), np.concatenate(ids)
+
+
+def _densify(line: np.ndarray, spacing: float) -> np.ndarray:
+    if len(line) == 1:
+        return line
+    seg = np.diff(line, axis=0)
+    length = np.linalg.norm(seg, axis=1)
+    s = np.concatenate([[0.0], np.cumsum(length)])
+    if s[-1] <= 0:
+        return line[:1]
+    t = np.linspace(0.0, s[-1], max(math.ceil(s[-1] / spacing) + 1, 2))
+    return np.stack([np.interp(t, s, line[:, 0]), np.interp(t, s, line[:, 1])], axis=1)
+
+
+def band_orientation(values, step: float, *, sigma_um: float = 2.0) -> tuple[np.ndarray, np.ndarray]:
+    """Local slip-band direction and coherence from the structure tensor of a strain field.
+
+    The structure tensor J = G_σ * (∇f ∇fᵀ) is averaged with normalised convolution so missing
+    points drop out; its dominant eigenvector is across the band, so the band runs at
+    θ = ½·atan2(2J_xy, J_xx − J_yy) + 90°.
+
+    Parameters
+    ----------
+    values : (ny, nx) ndarray
+        Field (e.g. γ_max); NaN where missing.
+    step : float
+        Grid spacing, µm.
+    sigma_um : float
+        Gaussian integration scale, µm.
+
+    Returns
+    -------
+    angle_deg : (ny, nx) ndarray
+        Band direction in degrees from +x towards +y, in [0, 180) (frame of ``values``); NaN where missing.
+    coherence : (ny, nx) ndarray
+        (λ₁ − λ₂)/(λ₁ + λ₂) in [0, 1]; 1 for perfectly straight bands.
+    """
+    step = check_positive(step, "step")
+    sigma = check_positive(sigma_um, "sigma_um") / step
+    f = np.asarray(values, dtype=np.float64)
+    gy, gx = np.gradient(f, step)
+    ok = np.isfinite(gx) & np.isfinite(gy)
+    w = ok.astype(np.float64)
+    gx, gy = np.where(ok, gx, 0.0), np.where(ok, gy, 0.0)
+    norm = ndimage.gaussian_filter(w, sigma, mode="constant")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        jxx = ndimage.gaussian_filter(gx * gx, sigma, mode="constant") / norm
+        jyy = ndimage.gaussian_filter(gy * gy, sigma, mode="constant") / norm
+        jxy = ndimage.gaussian_filter(gx * gy, sigma, mode="constant") / norm
+        theta = 0.5 * np.degrees(np.arctan2(2 * jxy, jxx - jyy)) + 90.0
+        tr = jxx + jyy
+        coh = np.sqrt((jxx - jyy) ** 2 + 4 * jxy**2) / tr
+    valid = np.isfinite(f) & (norm > 1e-6) & (tr > 0)
+    return np.where(valid, theta % 180.0, np.nan), np.where(valid, np.clip(coh, 0, 1), np.nan)
+
+
+def grain_band_directions(values, labels, angle_deg, coherence, *, threshold: float,
+                          min_coherence: float = 0.3, min_points: int = 5) -> pd.DataFrame:
+    """Dominant slip-band direction per grain from the strongly strained, coherent points.
+
+    Angles are averaged on the doubled-angle circle (lines have no sense), weighted by strain ×
+    coherence.
+
+    Returns
+    -------
+    DataFrame
+        ``grain``, ``band_angle_deg`` in [0, 180), ``n_points``, ``spread`` (1 − resultant length,
+        0 for one direction), ``mean_strain``.
+    """
+    v, lab, a, c = (np.asarray(z).ravel() for z in (values, labels, angle_deg, coherence))
+    ok = np.isfinite(v) & np.isfinite(a) & np.isfinite(c) & (lab >= 0) & (v >= threshold) & (c >= min_coherence)
+    wts = v[ok] * c[ok]
+    ar = np.radians(2.0 * a[ok])
+    df = pd.DataFrame({"grain": lab[ok].astype(np.int64), "w": wts, "cw": wts * np.cos(ar),
+                       "sw": wts * np.sin(ar), "v": v[ok]})
+    g = df.groupby("grain").agg(n_points=("w", "size"), w=("w", "sum"), cw=("cw", "sum"), sw=("sw", "sum"),
+                                mean_strain=("v", "mean")).reset_index()
+    g = g[g["n_points"] >= min_points]
+    ang = (0.5 * np.degrees(np.arctan2(g["sw"], g["cw"]))) % 180.0
+    spread = 1.0 - np.hypot(g["cw"], g["sw"]) / g["w"]
+    return pd.DataFrame({"grain": g["grain"].to_numpy(), "band_angle_deg": ang.to_numpy(),
+                         "n_points": g["n_points"].to_numpy(), "spread": spread.to_numpy(),
+                         "mean_strain": g["mean_strain"].to_numpy()})
+
+
+# =========================================================================================== scores
+def match_points(pred, meas, tol: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """One-to-one matching of predicted to measured points within a distance tolerance.
+
+    The assignment first maximises the number of pairs closer than ``tol`` and, among those,
+    minimises the summed distance (``scipy.optimize.linear_sum_assignment`` with a prohibitive
+    cost for pairs beyond the tolerance).
+
+    Parameters
+    ----------
+    pred, meas : (n, d) or (n,) ndarray
+        Positions (µm) of predicted and measured items (1-D for crack lengths).
+    tol : float
+        Distance tolerance, same unit.
+
+    Returns
+    -------
+    pred_index, meas_index, distance : ndarray
+        The matched pairs.
+    """
+    tol = check_positive(tol, "tol")
+    p = np.asarray(pred, float)
+    m = np.asarray(meas, float)
+    p = p.reshape(len(p), -1) if p.size else np.zeros((0, 1))
+    m = m.reshape(len(m), -1) if m.size else np.zeros((0, p.shape[1]))
+    if len(p) == 0 or len(m) == 0:
+        return np.zeros(0, int), np.zeros(0, int), np.zeros(0)
+    if p.shape[1] != m.shape[1]:
+        raise ParameterError(f"predicted and measured points should share a dimension; got {p.shape[1]} and "
+                             f"{m.shape[1]}")
+    d = np.linalg.norm(p[:, None, :] - m[None, :, :], axis=-1)
+    feasible = d <= tol
+    # each feasible pair costs at most 1; an infeasible one more than every feasible pair together
+    big = float(min(len(p), len(m)) + 1)
+    cost = np.where(feasible, d / tol, big)
+    r, c = optimize.linear_sum_assignment(cost)
+    keep = feasible[r, c]
+    return r[keep], c[keep], d[r[keep], c[keep]]
+
+
+def _prf(tp: int, n_pred: int, n_meas: int) -> dict:
+    precision = tp / n_pred if n_pred else 0.0
+    recall = tp / n_meas if n_meas else 0.0
+    f1 = 2 * tp / (n_pred + n_meas) if (n_pred + n_meas) else 0.0
+    return {"true_positives": tp, "false_positives": n_pred - tp, "false_negatives": n_meas - tp,
+            "precision": precision, "recall": recall, "f1": f1}
+
+
+def score_sites(pred_xy, meas_xy, tol_um: float) -> tuple[dict, pd.DataFrame]:
+    """Precision, recall and F1 of predicted localisation sites against measured strain peaks.
+
+    A predicted site is a true positive when it is matched one-to-one (:func:`match_points`) to a
+    measured peak within ``tol_um``.
+
+    Returns
+    -------
+    scores : dict
+        ``true_positives``, ``false_positives``, ``false_negatives``, ``precision``, ``recall``, ``f1``,
+        ``mean_match_distance_um``.
+    pairs : DataFrame
+        ``pred_index``, ``meas_index``, ``distance_um``.
+    """
+    p = _as_points(pred_xy, "pred_xy") if np.size(pred_xy) else np.zeros((0, 2))
+    m = _as_points(meas_xy, "meas_xy") if np.size(meas_xy) else np.zeros((0, 2))
+    pi, mi, d = match_points(p, m, tol_um)
+    out = _prf(len(pi), len(p), len(m))
+    out["mean_match_distance_um"] = float(d.mean()) if len(d) else float("nan")
+    return out, pd.DataFrame({"pred_index": pi, "meas_index": mi, "distance_um": d})
+
+
+def auc_mann_whitney(scores, labels) -> float:
+    """ROC AUC from the Mann–Whitney U statistic: P(score_pos > score_neg) + ½ P(tie).
+
+    NaN if either class is empty.
+    """
+    s = np.asarray(scores, float)
+    y = np.asarray(labels, bool)
+    n1, n0 = int(y.sum()), int((~y).sum())
+    if n1 == 0 or n0 == 0:
+        return float("nan")
+    r = stats.rankdata(s)
+    u = r[y].sum() - n1 * (n1 + 1) / 2.0
+    return float(u / (n1 * n0))
+
+
+def rank_agreement(predicted, measured, *, hot_quantile: float = 0.75) -> dict:
+    """Spearman rank correlation and ROC AUC between predicted scores and measured strain.
+
+    Parameters
+    ----------
+    predicted, measured : (n,) ndarray
+        Per item (grain or boundary) predicted score and measured strain statistic; items where
+        either is NaN are dropped.
+    hot_quantile : float
+        Items whose measured value is at or above this quantile are the "hot" class for the AUC.
+
+    Returns
+    -------
+    dict
+        ``n``, ``spearman_rho``, ``spearman_p``, ``roc_auc``, ``n_hot``.
+    """
+    p = np.asarray(predicted, float).ravel()
+    m = np.asarray(measured, float).ravel()
+    if p.shape != m.shape:
+        raise ParameterError(f"predicted and measured should have equal lengths; got {p.size} and {m.size}")
+    q = float(hot_quantile)
+    if not 0.0 < q < 1.0:
+        raise ParameterError(f"hot_quantile should lie in (0, 1); got {hot_quantile!r}")
+    ok = np.isfinite(p) & np.isfinite(m)
+    p, m = p[ok], m[ok]
+    out = {"n": int(p.size), "spearman_rho": float("nan"), "spearman_p": float("nan"),
+           "roc_auc": float("nan"), "n_hot": 0}
+    if p.size < 3:
+        return out
+    if np.ptp(p) > 0 and np.ptp(m) > 0:
+        res = stats.spearmanr(p, m)
+        out["spearman_rho"], out["spearman_p"] = float(res.statistic), float(res.pvalue)
+    hot = m >= np.quantile(m, q)
+    out["n_hot"] = int(hot.sum())
+    out["roc_auc"] = auc_mann_whitney(p, hot)
+    return out
+
+
+def _segments(path, name: str) -> np.ndarray:
+    """(k, 4) segments x0, y0, x1, y1 from a segment DataFrame or an (n, 2) polyline."""
+    if isinstance(path, pd.DataFrame):
+        missing = [c for c in ("x0", "y0", "x1", "y1") if c not in path.columns]
+        if missing:
+            raise ParameterError(f"{name} should have columns x0, y0, x1, y1 (µm); missing {missing}")
+        seg = path[["x0", "y0", "x1", "y1"]].to_numpy(float)
+    else:
+        p = _as_points(path, name, min_rows=2)
+        seg = np.concatenate([p[:-1], p[1:]], axis=1)
+    if seg.size == 0 or not np.all(np.isfinite(seg)):
+        raise ParameterError(f"{name} should hold at least one finite segment")
+    return seg
+
+
+def _densify_segments(seg: np.ndarray, spacing: float) -> np.ndarray:
+    length = np.hypot(seg[:, 2] - seg[:, 0], seg[:, 3] - seg[:, 1])
+    n = np.maximum(np.ceil(length / spacing).astype(int), 1) + 1
+    idx = np.repeat(np.arange(len(seg)), n)
+    t = np.concatenate([np.linspace(0.0, 1.0, k) for k in n])
+    return np.stack([seg[idx, 0] + t * (seg[idx, 2] - seg[idx, 0]), seg[idx, 1] + t * (seg[idx, 3] - seg[idx, 1])],
+                    axis=1)
+
+
+def point_segment_distance(points, seg: np.ndarray, *, chunk: int = 4096) -> np.ndarray:
+    """Distance (µm) from each of ``(n, 2)`` points to the nearest of ``(k, 4)`` segments."""
+    p = np.asarray(points, float)
+    a, b = seg[:, :2], seg[:, 2:]
+    ab = b - a
+    ll = np.einsum("ij,ij->i", ab, ab)
+    out = np.empty(len(p))
+    for s in range(0, len(p), chunk):
+        q = p[s:s + chunk, None, :]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t = np.where(ll > 0, np.einsum("nkj,kj->nk", q - a, ab) / ll, 0.0)
+        t = np.clip(t, 0.0, 1.0)
+        closest = a + t[..., None] * ab
+        out[s:s + chunk] = np.min(np.linalg.norm(q - closest, axis=-1), axis=1)
+    return out
+
+
+def score_path(predicted, measured, tol_um: float, *, spacing_um: float | None = None) -> dict:
+    """Distances between a predicted crack path and the measured one.
+
+    Parameters
+    ----------
+    predicted, measured : DataFrame with ``x0, y0, x1, y1`` (µm) or (n, 2) polyline
+    tol_um : float
+        Distance tolerance for the share within tolerance.
+    spacing_um : float, optional
+        Sampling of the measured path (default ``tol_um / 5``).
+
+    Returns
+    -------
+    dict
+        ``mean_distance_um`` (measured points to the predicted path), ``max_distance_um``
+        (symmetric Hausdorff distance), ``share_within_tol`` (share of measured path length
+        within ``tol_um`` of the predicted path), ``predicted_length_um``, ``measured_length_um``.
+    """
+    tol = check_positive(tol_um, "tol_um")
+    spacing = check_positive(spacing_um if spacing_um is not None else tol / 5.0, "spacing_um")
+    sp, sm = _segments(predicted, "predicted"), _segments(measured, "measured")
+    mp, pp = _densify_segments(sm, spacing), _densify_segments(sp, spacing)
+    d_mp = point_segment_distance(mp, sp)
+    d_pm = point_segment_distance(pp, sm)
+    return {
+        "mean_distance_um": float(d_mp.mean()),
+        "max_distance_um": float(max(d_mp.max(), d_pm.max())),
+        "share_within_tol": float(np.mean(d_mp <= tol)),
+        "predicted_length_um": float(np.hypot(sp[:, 2] - sp[:, 0], sp[:, 3] - sp[:, 1]).sum()),
+        "measured_length_um": float(np.hypot(sm[:, 2] - sm[:, 0], sm[:, 3] - sm[:, 1]).sum()),
+    }
+
+
+def angle_difference(a_deg, b_deg) -> np.ndarray:
+    """Smallest angle between line directions (mod 180°), degrees in [0, 90]."""
+    d = np.abs(np.asarray(a_deg, float) - np.asarray(b_deg, float)) % 180.0
+    return np.minimum(d, 180.0 - d)
+
+
+def score_band_directions(band_angles_deg, predicted_traces_deg, tol_deg: float) -> tuple[dict, np.ndarray]:
+    """Fraction of measured slip bands whose direction matches a predicted trace of their grain.
+
+    Parameters
+    ----------
+    band_angles_deg : (n,) ndarray
+        Measured band direction per band (degrees, map frame).
+    predicted_traces_deg : (n, k) ndarray
+        Predicted trace directions of the band's grain (e.g. its most active slip systems); NaN pads.
+    tol_deg : float
+        Largest accepted angle difference (mod 180°).
+
+    Returns
+    -------
+    scores : dict
+        ``n_bands``, ``n_matched``, ``fraction_matched``, ``median_error_deg``.
+    errors : (n,) ndarray
+        Smallest angle difference of each band to its grain's traces (NaN if no trace).
+    """
+    tol = check_positive(tol_deg, "tol_deg")
+    a = np.asarray(band_angles_deg, float).ravel()
+    t = np.asarray(predicted_traces_deg, float)
+    t = t.reshape(len(a), -1) if t.size else np.full((len(a), 1), np.nan)
+    if t.shape[0] != a.shape[0]:
+        raise ParameterError("predicted_traces_deg should have one row per band")
+    diff = angle_difference(a[:, None], t)
+    with np.errstate(invalid="ignore"):
+        err = np.where(np.all(np.isnan(diff), axis=1), np.nan, np.nanmin(np.where(np.isnan(diff), np.inf, diff), 1))
+    matched = np.isfinite(err) & (err <= tol)
+    n = int(a.size)
+    return {"n_bands": n, "n_matched": int(matched.sum()),
+            "fraction_matched": float(matched.sum() / n) if n else float("nan"),
+            "median_error_deg": float(np.nanmedian(err)) if np.any(np.isfinite(err)) else float("nan")}, err
+
+
+# =================================================================================== growth dips
+def match_dips(predicted_a, measured_a, tol_um: float) -> tuple[dict, pd.DataFrame]:
+    """Match predicted growth-rate dips to measured ones by crack length (one-to-one within ``tol_um``).
+
+    Returns
+    -------
+    scores : dict
+        ``hits``, ``misses`` (measured dips not predicted), ``false_alarms`` (predicted, not
+        measured), ``precision``, ``recall``, ``f1``.
+    table : DataFrame
+        One row per dip: ``crack_length_um``, ``source`` ("predicted"/"measured"), ``status``
+        ("hit"/"miss"/"false_alarm"), ``partner_um`` (matched dip's crack length, NaN if none).
+    """
+    p = np.asarray(predicted_a, float).ravel()
+    m = np.asarray(measured_a, float).ravel()
+    if not (np.all(np.isfinite(p)) and np.all(np.isfinite(m))):
+        raise ParameterError("dip crack lengths should be finite")
+    pi, mi, _ = match_points(p, m, tol_um)
+    prf = _prf(len(pi), p.size, m.size)
+    scores = {"hits": prf["true_positives"], "misses": prf["false_negatives"],
+              "false_alarms": prf["false_positives"], "precision": prf["precision"], "recall": prf["recall"],
+              "f1": prf["f1"]}
+    p_partner = np.full(p.size, np.nan)
+    m_partner = np.full(m.size, np.nan)
+    p_partner[pi], m_partner[mi] = m[mi], p[pi]
+    table = pd.concat([
+        pd.DataFrame({"crack_length_um": p, "source": "predicted",
+                      "status": np.where(np.isfinite(p_partner), "hit", "false_alarm"), "partner_um": p_partner}),
+        pd.DataFrame({"crack_length_um": m, "source": "measured",
+                      "status": np.where(np.isfinite(m_partner), "hit", "miss"), "partner_um": m_partner}),
+    ], ignore_index=True)
+    return scores, table
+
+
+# ======================================================================================= adapters
+def sites_from_forecast(forecast) -> tuple[np.ndarray, np.ndarray]:
+    """``(xy (n, 2) µm, score (n,))`` of the predicted localisation sites of a ``CrackForecast``
+    (or a DataFrame with columns ``x``, ``y``, ``score``)."""
+    sites = forecast.sites if hasattr(forecast, "sites") else forecast
+    if sites is None or len(sites) == 0:
+        return np.zeros((0, 2)), np.zeros(0)
+    for c in ("x", "y"):
+        if c not in sites.columns:
+            raise ParameterError(f"forecast sites should have columns x, y, score; missing {c!r}")
+    score = sites["score"].to_numpy(float) if "score" in sites.columns else np.ones(len(sites))
+    return sites[["x", "y"]].to_numpy(float), score
+
+
+def path_from_forecast(forecast) -> pd.DataFrame:
+    """The predicted path segments (``x0, y0, x1, y1`` µm) of a ``CrackForecast`` or a segment table."""
+    path = forecast.path if hasattr(forecast, "path") else forecast
+    _segments(path, "forecast path")
+    return path
+
+
+def predicted_dips_from_growth(growth) -> np.ndarray:
+    """Crack lengths (µm) of the predicted growth-rate dips.
+
+    Accepts a DataFrame of dips (column ``crack_length`` or ``crack_length_um``), a growth profile
+    or result understood by ``slipnet.growth.predicted_dips``, or an object with a ``dips`` table.
+    """
+    if growth is None:
+        return np.zeros(0)
+    table = None
+    if isinstance(growth, pd.DataFrame) and "depth" in growth.columns:
+        table = growth
+    elif hasattr(growth, "dips") and isinstance(growth.dips, pd.DataFrame):
+        table = growth.dips
+    else:
+        try:
+            from .growth import predicted_dips
+        except ImportError as err:
+            raise ParameterError("growth should be a dips table (crack_length column) while slipnet.growth "
+                                 "is not available") from err
+        table = predicted_dips(growth)
+    for c in ("crack_length_um", "crack_length"):
+        if c in table.columns:
+            return table[c].to_numpy(float)
+    raise ParameterError(f"predicted dips should have a crack_length column; got {list(table.columns)}")
+
+
+def growth_profile_from(growth) -> pd.DataFrame | None:
+    """A predicted growth profile (``crack_length`` µm, ``dadn`` µm/cycle, optional ``cycles``) or None."""
+    if growth is None:
+        return None
+    prof = growth if isinstance(growth, pd.DataFrame) else getattr(growth, "profile", None)
+    if isinstance(prof, pd.DataFrame) and {"crack_length", "dadn"} <= set(prof.columns):
+        return prof
+    return None
+
+
+# =================================================================================== whole comparison
+@dataclass(eq=False)
+class Comparison:
+    """Everything measured and scored by :func:`compare_forecast`.
+
+    Attributes
+    ----------
+    transform : Transform or None
+        Strain frame → map frame.
+    shear : (ny, nx) ndarray
+        Measured γ_max on the strain grid (dimensionless; NaN where missing).
+    shear_on_map : ndarray or None
+        γ_max resampled onto the map grid.
+    peaks, grain_stats, boundary_stats, bands : DataFrame
+        Measured localisation (positions in the map frame, strains dimensionless).
+    site_pairs : DataFrame
+        Matched predicted sites / peaks.
+    growth_rates : DataFrame or None
+        ``method``, ``crack_length_um``, ``dadn_um_per_cycle`` from the measured record.
+    dips : DataFrame or None
+        Predicted and measured dips with their status.
+    scores : dict
+        Flat dict of every score (see :func:`compare_forecast`).
+    settings : dict
+        The tolerances and options used.
+    """
+
+    transform: Transform | None
+    series: StrainSeries
+    shear: np.ndarray
+    shear_on_map: np.ndarray | None
+    peaks: pd.DataFrame
+    grain_stats: pd.DataFrame | None
+    boundary_stats: pd.DataFrame | None
+    bands: pd.DataFrame | None
+    site_pairs: pd.DataFrame
+    growth_rates: pd.DataFrame | None
+    dips: pd.DataFrame | None
+    scores: dict
+    settings: dict
+    predicted_sites: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
+    predicted_path: pd.DataFrame | None = None
+    measured_path: np.ndarray | None = None
+    predicted_profile: pd.DataFrame | None = None
+
+    def score_table(self) -> pd.DataFrame:
+        """Scores as a two-column table (``score``, ``value``)."""
+        return pd.DataFrame({"score": list(self.scores), "value": [self.scores[k] for k in self.scores]})
+
+
+def _grain_traces(gg, load_axis, n_traces: int) -> np.ndarray | None:
+    """Trace angles (deg, map frame) of the ``n_traces`` highest-Schmid systems of every grain, or None."""
+    try:
+        from .slip import schmid_factors, slip_systems, slip_trace_angles
+    except ImportError:
+        return None
+    systems = slip_systems("bcc")
+    q = np.asarray(gg.mean_quats, float)
+    m = np.abs(schmid_factors(q, np.asarray(load_axis, float), systems))
+    t = slip_trace_angles(q, systems)
+    top = np.argsort(-m, axis=1)[:, :n_traces]
+    return np.take_along_axis(t, top, axis=1)
+
+
+def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, transform: Transform | None = None,
+                     step: int | None = None, strain_method: str = "small", window: int | None = None,
+                     peak_threshold: float | None = None, peak_distance_um: float = 5.0, site_tol_um: float = 5.0,
+                     band_um: float = 2.0, hot_quantile: float = 0.75, measured_path=None, path_tol_um: float = 5.0,
+                     band_sigma_um: float = 2.0, band_tol_deg: float = 10.0, load_axis=None, n_traces: int = 2,
+                     growth_record=None, growth=None, dip_prominence: float = 0.15, dip_tol_um: float = 5.0,
+                     ) -> Comparison:
+    """Measure localisation in a strain series and score a forecast against it (whole job).
+
+    Parameters
+    ----------
+    series : StrainSeries
+        Measured displacement or strain.
+    forecast : CrackForecast or None
+        Predicted sites (``.sites``), path (``.path``) and barriers (``.barriers``).
+    grain_graph : GrainGraph or None
+        Grains of the map (labels, boundary polylines, mean orientations).
+    transform : Transform or None
+        Strain frame → map frame (None: the frames coincide).
+    step : int or None
+        Load step to analyse (default the last).
+    strain_method, window
+        See :func:`strain_from_displacement`.
+    peak_threshold : float or None
+        Smallest γ_max peak (dimensionless); default the 95th percentile of the field.
+    peak_distance_um, site_tol_um, band_um, hot_quantile, path_tol_um, band_sigma_um, band_tol_deg
+        Peak separation, site matching tolerance, boundary band half-width, hot class quantile,
+        path tolerance, structure tensor scale, band direction tolerance.
+    measured_path : (n, 2) ndarray or DataFrame or None
+        The measured crack path in the map frame (µm).
+    load_axis : 3-vector or None
+        Load axis (map frame) for the predicted slip traces of each grain.
+    n_traces : int
+        How many most-stressed systems per grain count as predicted traces.
+    growth_record : DataFrame or None
+        Measured ``crack_length_um`` and ``cycles``.
+    growth : growth result / profile / dips table or None
+        Predicted dips (and profile for the figure).
+    dip_prominence, dip_tol_um
+        Measured dip prominence (decades of rate) and matching tolerance (µm of crack length).
+    """
+    tr = transform if transform is not None else fit_transform(
+        [[0, 0], [1, 0], [0, 1]], [[0, 0], [1, 0], [0, 1]], "affine")
+    s = series.strain(strain_method, window=window)
+    k = s.step_index(step)
+    shear = max_shear_strain(s.components["exx"][k], s.components["eyy"][k], s.components["exy"][k])
+    finite = shear[np.isfinite(shear)]
+    if finite.size == 0:
+        raise NumericalError("the measured strain field has no valid point")
+    thr = float(np.quantile(finite, 0.95)) if peak_threshold is None else float(peak_threshold)
+    peaks = find_strain_peaks(shear, s, threshold=thr, min_distance_um=peak_distance_um, transform=tr)
+    scores: dict = {"registration_rms_um": tr.rms if transform is not None else float("nan"),
+                    "n_measured_peaks": len(peaks)}
+    sx, sy = s.coordinates()
+    mxy = tr.apply(np.stack([sx.ravel(), sy.ravel()], 1))
+    grain_stats = boundary_stats = bands = None
+    shear_on_map = None
+    labels_s = None
+    if grain_graph is not None:
+        omap = grain_graph.omap
+        gx, gy = omap.coordinates()
+        shear_on_map = resample_to_map(shear, s, tr, gx, gy)
+        labels_s = labels_on_strain_grid(grain_graph.labels, omap, s, tr)
+        grain_stats = grain_statistics(shear, labels_s)
+        pts, ids = densify_polylines(grain_graph.boundary_polylines, min(omap.step, s.step) / 2.0)
+        boundary_stats = boundary_band_statistics(shear.ravel(), mxy[:, 0], mxy[:, 1], pts, ids, band_um)
+        ang, coh = band_orientation(shear, s.step, sigma_um=band_sigma_um)
+        bands = grain_band_directions(shear, labels_s, tr.apply_directions(ang), coh, threshold=thr * 0.5)
+        if load_axis is not None and len(bands):
+            traces = _grain_traces(grain_graph, load_axis, n_traces)
+            if traces is not None:
+                t = traces[bands["grain"].to_numpy()]
+                bscore, err = score_band_directions(bands["band_angle_deg"], t, band_tol_deg)
+                bands = bands.assign(trace_error_deg=err, matched=err <= band_tol_deg)
+                scores.update({f"bands_{kk}": vv for kk, vv in bscore.items()})
+    pred_xy = np.zeros((0, 2))
+    site_pairs = pd.DataFrame(columns=["pred_index", "meas_index", "distance_um"])
+    pred_path = None
+    if forecast is not None:
+        pred_xy, pred_score = sites_from_forecast(forecast)
+        sc, site_pairs = score_sites(pred_xy, peaks[["x_um", "y_um"]].to_numpy(), site_tol_um)
+        scores.update({f"sites_{kk}": vv for kk, vv in sc.items()})
+        if grain_stats is not None and len(pred_xy):
+            gid = np.array([grain_graph.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
+            per = pd.DataFrame({"grain": gid, "score": pred_score}).query("grain >= 0").groupby("grain")["score"].max()
+            pg = per.reindex(grain_stats["grain"]).fillna(0.0).to_numpy()
+            ra = rank_agreement(pg, grain_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
+            scores.update({f"grains_{kk}": vv for kk, vv in ra.items()})
+        barriers = getattr(forecast, "barriers", None)
+        if boundary_stats is not None and isinstance(barriers, pd.DataFrame) and len(barriers) and len(boundary_stats):
+            b = barriers.groupby("boundary_id")["score"].max()
+            pb = b.reindex(boundary_stats["boundary_id"]).to_numpy(float)
+            ra = rank_agreement(pb, boundary_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
+            scores.update({f"boundaries_{kk}": vv for kk, vv in ra.items()})
+        if getattr(forecast, "path", None) is not None and len(forecast.path):
+            pred_path = path_from_forecast(forecast)
+            if measured_path is not None:
+                ps = score_path(pred_path, measured_path, path_tol_um)
+                scores.update({f"path_{kk}": vv for kk, vv in ps.items()})
+                scores.update({f"path_{kk}": vv for kk, vv in ps.items()})
+    growth_rates = dips = None
+    profile = growth_profile_from(growth)
+    if growth_record is not None:
+        rec = growth_record
+        for c in ("crack_length_um", "cycles"):
+            if c not in rec.columns:
+                raise ParameterError(f"growth_record should have columns crack_length_um and cycles; missing {c!r}")
+        a, n = rec["crack_length_um"].to_numpy(float), rec["cycles"].to_numpy(float)
+        a1, r1 = dadn_secant(a, n)
+        a2, r2 = dadn_incremental_polynomial(a, n)
+        growth_rates = pd.concat([
+            pd.DataFrame({"method": "secant", "crack_length_um": a1, "dadn_um_per_cycle": r1}),
+            pd.DataFrame({"method": "incremental_polynomial", "crack_length_um": a2, "dadn_um_per_cycle": r2}),
+        ], ignore_index=True)
+        measured_dips = find_rate_dips(a2, r2, prominence=dip_prominence)
+        pred_dips = predicted_dips_from_growth(growth) if growth is not None else np.zeros(0)
+        dsc, dips = match_dips(pred_dips, measured_dips["crack_length_um"].to_numpy(), dip_tol_um)
+        scores.update({f"dips_{kk}": vv for kk, vv in dsc.items()})
+    settings = {"step": k, "strain_method": strain_method, "window": window, "peak_threshold": thr,
+                "peak_distance_um": peak_distance_um, "site_tol_um": site_tol_um, "band_um": band_um,
+                "hot_quantile": hot_quantile, "path_tol_um": path_tol_um, "band_sigma_um": band_sigma_um,
+                "band_tol_deg": band_tol_deg, "dip_prominence": dip_prominence, "dip_tol_um": dip_tol_um,
+                "synthetic": bool(series.meta.get("synthetic", False))}
+    mp = None
+    if measured_path is not None:
+        seg = _segments(measured_path, "measured_path")
+        mp = np.concatenate([seg[:, :2], seg[-1:, 2:]])
+    return Comparison(tr if transform is not None else None, s, shear, shear_on_map, peaks, grain_stats,
+                      boundary_stats, bands, site_pairs, growth_rates, dips, scores, settings, pred_xy, pred_path,
+                      mp, profile)
+
+
+def write_comparison(comp: Comparison, folder: str | os.PathLike, *, title: str = "Forecast against measurements",
+                     figures: bool = True) -> list[Path]:
+    """Write tables, figures and a summary (with the caution) into ``folder``; returns the paths."""
+    folder = Path(folder)
+    written = [write_table(comp.score_table(), folder / "scores.csv"),
+               write_table(comp.peaks, folder / "measured_peaks.csv")]
+    if comp.transform is not None:
+        written.append(write_table(comp.transform.table(), folder / "control_points.csv"))
+    for name, table in (("grain_strain", comp.grain_stats), ("boundary_band_strain", comp.boundary_stats),
+                        ("slip_bands", comp.bands), ("growth_rates", comp.growth_rates), ("dips", comp.dips)):
+        if table is not None:
+            written.append(write_table(table, folder / f"{name}.csv"))
+    if figures:
+        from .figures import compare as fig
+
+        written += fig.write_figures(comp, folder)
+    lines = []
+    if comp.settings.get("synthetic"):
+        lines += ["**The measured strain field and growth record here are SYNTHETIC (invented by slipnet's demo), "
+                  "not measurements.**", ""]
+    if comp.transform is not None:
+        lines.append(f"Registration: {comp.transform.kind}, {len(comp.transform.residuals)} control points, "
+                     f"RMS residual {comp.transform.rms:.3g} µm, largest {comp.transform.residuals.max():.3g} µm.")
+    lines += ["", "| score | value |", "| --- | --- |"]
+    for k, v in comp.scores.items():
+        lines.append(f"| {k} | {v:.4g} |" if isinstance(v, float) else f"| {k} | {v} |")
+    lines += ["", "Strain: γ_max = √(((ε_xx − ε_yy)/2)² + ε_xy²) (tensor shear) of load step "
+              f"{comp.settings['step']} ({comp.settings['strain_method']} strain).",
+              "Settings: " + ", ".join(f"{k}={v}" for k, v in comp.settings.items())]
+    written.append(write_summary(folder, title, lines))
+    return written

@@ -1,0 +1,238 @@
+"""Invented "measurements" for the demo and the tests: SYNTHETIC strain fields and growth records.
+
+Nothing here is measured. The generator builds a displacement field from straight shear bands
+(smooth steps of displacement along each band direction), adds a uniform background strain,
+displacement noise, missing correlation points and dark fiducial marks, and records it in a strain
+image frame that is slightly misregistered (rotated, scaled and shifted) against the map frame,
+the way real strain images are. Every series it returns carries ``meta["synthetic"] = True`` and a
+name starting with ``SYNTHETIC``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from ._checks import check_positive
+from ._compare_registration import Transform
+from .errors import ParameterError
+from .strainmaps import StrainSeries
+
+__all__ = ["SyntheticMeasurement", "band_displacement", "synthetic_crack_path", "synthetic_growth_record",
+           "synthetic_strain_series"]
+
+
+@dataclass(frozen=True, eq=False)
+class SyntheticMeasurement:
+    """A synthetic strain series with its true registration and fiducial marks.
+
+    Attributes
+    ----------
+    series : StrainSeries
+        Displacements ``u, v`` (µm) on the strain grid, strain-image frame; ``meta["synthetic"]``.
+    strain_points, map_points : (k, 2) ndarray
+        Fiducial mark positions as a user would pick them: in the strain image (with picking
+        noise) and in the map (µm).
+    true_transform : Transform
+        The exact strain frame → map frame transform used to build the field.
+    bands : DataFrame
+        The imposed bands in the map frame: ``x_um``, ``y_um``, ``angle_deg``, ``amplitude``
+        (engineering shear at the band centre, last step), ``length_um``, ``width_um``.
+    """
+
+    series: StrainSeries
+    strain_points: np.ndarray
+    map_points: np.ndarray
+    true_transform: Transform
+    bands: pd.DataFrame
+
+
+def band_displacement(x, y, bands: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Displacement (µm) of straight shear bands at map positions ``x, y`` (µm).
+
+    Each band (centre ``x_um, y_um``, direction ``angle_deg``, engineering shear ``amplitude`` at
+    its centre line, Gaussian ``width_um`` across and ``length_um`` along) displaces material along
+    its direction t by A·w·√(π/2)·erf(q/(w√2))·exp(−½(s/L)²), with s, q the coordinates along and
+    across the band, so the shear ∂u_t/∂q = A·exp(−q²/2w²)·exp(−½(s/L)²).
+    """
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    u = np.zeros(np.broadcast_shapes(x.shape, y.shape))
+    v = np.zeros_like(u)
+    for row in bands.itertuples(index=False):  # a few dozen bands, each a whole-array expression
+        a = math.radians(row.angle_deg)
+        t = (math.cos(a), math.sin(a))
+        s = (x - row.x_um) * t[0] + (y - row.y_um) * t[1]
+        q = -(x - row.x_um) * t[1] + (y - row.y_um) * t[0]
+        w = row.width_um
+        amp = row.amplitude * w * math.sqrt(math.pi / 2.0) * special.erf(q / (w * math.sqrt(2.0)))
+        amp = amp * np.exp(-0.5 * (s / row.length_um) ** 2)
+        u += amp * t[0]
+        v += amp * t[1]
+    return u, v
+
+
+def _similarity(rotation_deg: float, scale: float, shift) -> np.ndarray:
+    c, s = math.cos(math.radians(rotation_deg)), math.sin(math.radians(rotation_deg))
+    return np.array([[scale * c, -scale * s, shift[0]], [scale * s, scale * c, shift[1]], [0.0, 0.0, 1.0]])
+
+
+def synthetic_strain_series(map_extent, step: float, bands: pd.DataFrame, *, cycles=(2000.0, 20000.0),
+                            background_strain: float = 0.001, noise_um: float = 0.002, rotation_deg: float = 1.2,
+                            scale: float = 1.01, shift_um=(2.5, -1.5), n_fiducials: int = 5,
+                            fiducial_radius_um: float = 1.5, pick_noise_um: float = 0.15,
+                            missing_fraction: float = 0.01, seed: int = 0) -> SyntheticMeasurement:
+    """A SYNTHETIC displacement series over a map region, misregistered by a small similarity transform.
+
+    Parameters
+    ----------
+    map_extent : (x_min, x_max, y_min, y_max)
+        Map region to cover, µm.
+    step : float
+        Strain grid spacing, µm.
+    bands : DataFrame
+        ``x_um``, ``y_um`` (map frame), ``angle_deg``, ``amplitude`` (engineering shear at the last
+        step), ``length_um``, ``width_um``.
+    cycles : sequence of float
+        Cycle count of each load step; band amplitudes grow linearly to the last one.
+    background_strain : float
+        Uniform uniaxial strain along x at the last step.
+    noise_um : float
+        Standard deviation of the displacement noise, µm.
+    rotation_deg, scale, shift_um
+        The strain-image frame: map = scale·R(rotation)·strain + (x_min, y_min) + shift.
+    n_fiducials : int
+        Fiducial marks (≥ 3) near the corners and the middle; each blanks a disc of
+        ``fiducial_radius_um`` (no correlation on the mark) in every step.
+    pick_noise_um : float
+        Standard deviation of picking the marks in the strain image, µm.
+    missing_fraction : float
+        Share of grid points without correlation (in small clusters).
+    seed : int
+        Random seed.
+    """
+    x_min, x_max, y_min, y_max = (float(v) for v in map_extent)
+    step = check_positive(step, "step")
+    if n_fiducials < 3:
+        raise ParameterError(f"n_fiducials should be at least 3; got {n_fiducials!r}")
+    rng = np.random.default_rng(seed)
+    m = _similarity(rotation_deg, scale, (x_min + shift_um[0], y_min + shift_um[1]))
+    nx = math.floor((x_max - x_min) / step) + 1
+    ny = math.floor((y_max - y_min) / step) + 1
+    i, j = np.indices((ny, nx), dtype=float)
+    xs, ys = j * step, i * step
+    xm = m[0, 0] * xs + m[0, 1] * ys + m[0, 2]
+    ym = m[1, 0] * xs + m[1, 1] * ys + m[1, 2]
+    lin_inv = np.linalg.inv(m[:2, :2])
+    cyc = np.asarray(cycles, float)
+    frac = cyc / cyc[-1]
+    um, vm = band_displacement(xm, ym, bands)
+    # fiducials: four corners inset by a tenth of the region, then the middle and edge midpoints
+    fx = np.array([0.1, 0.9, 0.9, 0.1, 0.5, 0.5, 0.1, 0.9])
+    fy = np.array([0.1, 0.1, 0.9, 0.9, 0.5, 0.1, 0.5, 0.5])
+    k = min(int(n_fiducials), fx.size)
+    map_pts = np.stack([x_min + fx[:k] * (x_max - x_min), y_min + fy[:k] * (y_max - y_min)], axis=1)
+    tr = Transform(m, "similarity", np.zeros(k), np.zeros((k, 2)), map_pts)
+    strain_true = tr.inverse().apply(map_pts)
+    strain_pts = strain_true + rng.normal(0.0, pick_noise_um, strain_true.shape)
+    blank = np.zeros((ny, nx), bool)
+    for p in strain_true:
+        blank |= (xs - p[0]) ** 2 + (ys - p[1]) ** 2 <= fiducial_radius_um**2
+    n_clusters = int(missing_fraction * nx * ny / 5) + 1
+    ci = rng.integers(0, ny, n_clusters)
+    cj = rng.integers(0, nx, n_clusters)
+    holes = np.zeros((ny, nx), bool)
+    holes[ci, cj] = True
+    holes[np.clip(ci + 1, 0, ny - 1), cj] = True
+    holes[ci, np.clip(cj + 1, 0, nx - 1)] = True
+    u_steps, v_steps = [], []
+    for f in frac:
+        # the map-frame displacement seen in the strain-image frame: through the inverse linear part
+        ub = background_strain * f * (xm - x_min)
+        vb = -0.5 * background_strain * f * (ym - y_min)
+        uu, vv = f * um + ub, f * vm + vb
+        us = lin_inv[0, 0] * uu + lin_inv[0, 1] * vv + rng.normal(0.0, noise_um, uu.shape)
+        vs = lin_inv[1, 0] * uu + lin_inv[1, 1] * vv + rng.normal(0.0, noise_um, uu.shape)
+        miss = blank | holes
+        u_steps.append(np.where(miss, np.nan, us))
+        v_steps.append(np.where(miss, np.nan, vs))
+    series = StrainSeries("displacement", {"u": np.stack(u_steps), "v": np.stack(v_steps)}, step, (0.0, 0.0), cyc,
+                          "cycles", "SYNTHETIC strain series (invented by slipnet, not a measurement)",
+                          {"synthetic": True, "seed": int(seed), "n_bands": len(bands)})
+    res = np.linalg.norm(tr.apply(strain_pts) - map_pts, axis=1)
+    true = Transform(m, "similarity", res, strain_pts, map_pts)
+    return SyntheticMeasurement(series, strain_pts, map_pts, true, bands.reset_index(drop=True))
+
+
+def synthetic_crack_path(path, *, deviation_um: float = 1.0, spacing_um: float = 1.0, seed: int = 0) -> np.ndarray:
+    """A SYNTHETIC "measured" crack path: a predicted path with a smooth random sideways wander.
+
+    Parameters
+    ----------
+    path : DataFrame with ``x0, y0, x1, y1`` or (n, 2) polyline
+        The path to perturb (µm).
+    deviation_um : float
+        Typical sideways offset, µm.
+    spacing_um : float
+        Spacing of the output polyline, µm.
+    seed : int
+
+    Returns
+    -------
+    (m, 2) ndarray
+        Polyline in µm.
+    """
+    from .compare import _densify_segments, _segments
+
+    seg = _segments(path, "path")
+    pts = _densify_segments(seg, check_positive(spacing_um, "spacing_um"))
+    keep = np.concatenate([[True], np.linalg.norm(np.diff(pts, axis=0), axis=1) > 1e-9])
+    pts = pts[keep]
+    if len(pts) < 2:
+        return pts
+    rng = np.random.default_rng(seed)
+    tang = np.gradient(pts, axis=0)
+    tang /= np.maximum(np.linalg.norm(tang, axis=1, keepdims=True), 1e-12)
+    normal = np.stack([-tang[:, 1], tang[:, 0]], axis=1)
+    walk = np.cumsum(rng.normal(0.0, 1.0, len(pts)))
+    kernel = np.exp(-0.5 * (np.arange(-10, 11) / 4.0) ** 2)
+    walk = np.convolve(walk - walk.mean(), kernel / kernel.sum(), mode="same")
+    walk = walk - walk[0]  # starts at the tip
+    scale = deviation_um / max(float(np.std(walk)), 1e-12)
+    return pts + normal * (walk * scale)[:, None]
+
+
+def synthetic_growth_record(profile: pd.DataFrame | None = None, *, n_readings: int = 60, noise_um: float = 0.2,
+                            a0_um: float = 5.0, a1_um: float = 150.0, paris_c: float = 2e-6, paris_m: float = 2.0,
+                            dips_um=(), dip_depth: float = 0.7, dip_width_um: float = 4.0,
+                            seed: int = 0) -> pd.DataFrame:
+    """A SYNTHETIC crack-length record (``crack_length_um``, ``cycles``).
+
+    From a predicted growth profile (``crack_length`` µm and ``cycles``) when given, else from a
+    rate C·a^(m/2) (µm/cycle, a in µm) lowered by Gaussian dips at ``dips_um``; read at
+    ``n_readings`` evenly spaced cycle counts with crack-length noise ``noise_um``.
+    """
+    rng = np.random.default_rng(seed)
+    if profile is not None and {"crack_length", "cycles"} <= set(profile.columns):
+        a = profile["crack_length"].to_numpy(float)
+        n = profile["cycles"].to_numpy(float)
+        ok = np.isfinite(a) & np.isfinite(n)
+        a, n = a[ok], n[ok]
+        keep = np.concatenate([[True], np.diff(n) > 0])
+        a, n = a[keep], n[keep]
+    else:
+        a = np.linspace(a0_um, a1_um, 4000)
+        rate = paris_c * a ** (paris_m / 2.0)
+        for d in dips_um:
+            rate = rate * (1.0 - dip_depth * np.exp(-0.5 * ((a - d) / dip_width_um) ** 2))
+        inv = 1.0 / rate
+        n = np.concatenate([[0.0], np.cumsum(0.5 * (inv[1:] + inv[:-1]) * np.diff(a))])
+    if a.size < 2:
+        raise ParameterError("the growth profile should hold at least two finite points")
+    nr = np.linspace(n[0], n[-1], int(n_readings))
+    ar = np.interp(nr, n, a) + rng.normal(0.0, noise_um, nr.size)
+    return pd.DataFrame({"cycles": np.rint(nr), "crack_length_um": ar}).drop_duplicates("cycles")
