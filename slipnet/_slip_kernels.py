@@ -1,0 +1,304 @@
+"""Numba kernels for slip systems and slip transmission.
+
+Public wrappers live in :mod:`slipnet.slip` and :mod:`slipnet.transmission`. Notation: ``q`` an
+orientation quaternion (sample → crystal), ``n`` plane normals and ``d`` slip directions (unit, crystal
+frame), ``l`` the load axis (unit, sample frame). Every row kernel skips rows whose quaternion is NaN
+(unindexed points) and writes NaN (or −1 for indices) there.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+
+from ._orientation_kernels import quat_rotate_single, quat_to_matrix_single
+
+
+@nb.njit(cache=True, parallel=True)
+def schmid_rows(q, load, normals, directions, out):
+    """Signed Schmid factors ``(n·l_c)(d·l_c)`` per row; ``out`` (n, n_sys), float32 or float64.
+
+    ``l_c = g · l`` is formed once per row, then each system costs two 3-dot products and a product.
+    """
+    ns = normals.shape[0]
+    for i in nb.prange(q.shape[0]):
+        if q[i, 0] != q[i, 0]:
+            for s in range(ns):
+                out[i, s] = np.nan
+            continue
+        lc = np.empty(3)
+        quat_rotate_single(q[i], load, lc)
+        for s in range(ns):
+            a = normals[s, 0] * lc[0] + normals[s, 1] * lc[1] + normals[s, 2] * lc[2]
+            b = directions[s, 0] * lc[0] + directions[s, 1] * lc[1] + directions[s, 2] * lc[2]
+            out[i, s] = a * b
+
+
+@nb.njit(cache=True, parallel=True)
+def schmid_summary_rows(q, load, normals, directions, crss_pos, crss_neg,
+                        m_max, s_max, m_second, s_second, eff_max, s_eff, sign_max):
+    """Per row: largest |m| and its system, runner-up |m| and system, largest |m|/crss and system.
+
+    Nothing of size (n, n_sys) is stored, so any number of rows runs in memory O(n).
+    ``sign_max`` holds the sign (+1/−1) of the signed factor of the largest system.
+    """
+    ns = normals.shape[0]
+    for i in nb.prange(q.shape[0]):
+        if q[i, 0] != q[i, 0]:
+            m_max[i] = np.nan
+            m_second[i] = np.nan
+            eff_max[i] = np.nan
+            s_max[i] = -1
+            s_second[i] = -1
+            s_eff[i] = -1
+            sign_max[i] = 0
+            continue
+        lc = np.empty(3)
+        quat_rotate_single(q[i], load, lc)
+        b1 = -1.0
+        b2 = -1.0
+        i1 = -1
+        i2 = -1
+        be = -1.0
+        ie = -1
+        sg = 0
+        for s in range(ns):
+            a = normals[s, 0] * lc[0] + normals[s, 1] * lc[1] + normals[s, 2] * lc[2]
+            b = directions[s, 0] * lc[0] + directions[s, 1] * lc[1] + directions[s, 2] * lc[2]
+            m = a * b
+            am = abs(m)
+            if am > b1:
+                b2 = b1
+                i2 = i1
+                b1 = am
+                i1 = s
+                sg = 1 if m >= 0.0 else -1
+            elif am > b2:
+                b2 = am
+                i2 = s
+            e = am / (crss_pos[s] if m >= 0.0 else crss_neg[s])
+            if e > be:
+                be = e
+                ie = s
+        m_max[i] = b1
+        s_max[i] = i1
+        m_second[i] = b2
+        s_second[i] = i2
+        eff_max[i] = be
+        s_eff[i] = ie
+        sign_max[i] = sg
+
+
+@nb.njit(cache=True, parallel=True)
+def resolved_shear_rows(q, stress, normals, directions, out):
+    """``τ = d · (g σ gᵀ) n`` per row; ``stress`` is (1, 3, 3) (shared) or (n, 3, 3)."""
+    ns = normals.shape[0]
+    shared = stress.shape[0] == 1
+    for i in nb.prange(q.shape[0]):
+        if q[i, 0] != q[i, 0]:
+            for s in range(ns):
+                out[i, s] = np.nan
+            continue
+        g = np.empty((3, 3))
+        quat_to_matrix_single(q[i], g)
+        sig = stress[0] if shared else stress[i]
+        # σ_c = g σ gᵀ (v_crystal = g v_sample)
+        t = np.zeros((3, 3))
+        for a in range(3):
+            for b in range(3):
+                acc = 0.0
+                for k in range(3):
+                    acc += g[a, k] * sig[k, b]
+                t[a, b] = acc
+        sc = np.zeros((3, 3))
+        for a in range(3):
+            for b in range(3):
+                acc = 0.0
+                for k in range(3):
+                    acc += t[a, k] * g[b, k]
+                sc[a, b] = acc
+        for s in range(ns):
+            acc = 0.0
+            for a in range(3):
+                sn = sc[a, 0] * normals[s, 0] + sc[a, 1] * normals[s, 1] + sc[a, 2] * normals[s, 2]
+                acc += directions[s, a] * sn
+            out[i, s] = acc
+
+
+@nb.njit(cache=True, parallel=True)
+def trace_rows(q, normals, angle, inclination):
+    """Surface trace angle (rad, [0, π), +x towards +y) and plane inclination to the surface (rad).
+
+    The plane normal in the sample frame is ``n_s = gᵀ n``; the trace is ``t = n_s × z =
+    (n_y, −n_x, 0)``. A plane parallel to the surface has no trace (NaN).
+    """
+    ns = normals.shape[0]
+    for i in nb.prange(q.shape[0]):
+        if q[i, 0] != q[i, 0]:
+            for s in range(ns):
+                angle[i, s] = np.nan
+                inclination[i, s] = np.nan
+            continue
+        qc = np.empty(4)
+        qc[0] = q[i, 0]
+        qc[1] = -q[i, 1]
+        qc[2] = -q[i, 2]
+        qc[3] = -q[i, 3]
+        v = np.empty(3)
+        for s in range(ns):
+            quat_rotate_single(qc, normals[s], v)
+            nz = min(abs(v[2]), 1.0)
+            inclination[i, s] = math.acos(nz)
+            if v[0] * v[0] + v[1] * v[1] < 1e-24:
+                angle[i, s] = np.nan
+                continue
+            a = math.atan2(-v[0], v[1])
+            if a < 0.0:
+                a += math.pi
+            if a >= math.pi:
+                a -= math.pi
+            angle[i, s] = a
+
+
+@nb.njit(cache=True, inline="always")
+def _rot_t(g, v, out):
+    # out = gᵀ v : crystal frame -> sample frame
+    out[0] = g[0, 0] * v[0] + g[1, 0] * v[1] + g[2, 0] * v[2]
+    out[1] = g[0, 1] * v[0] + g[1, 1] * v[1] + g[2, 1] * v[2]
+    out[2] = g[0, 2] * v[0] + g[1, 2] * v[1] + g[2, 2] * v[2]
+
+
+@nb.njit(cache=True, inline="always")
+def _line_in_boundary(n, gbn, out):
+    # unit line where a plane of normal n meets the boundary plane (normal gbn); zero if parallel
+    out[0] = n[1] * gbn[2] - n[2] * gbn[1]
+    out[1] = n[2] * gbn[0] - n[0] * gbn[2]
+    out[2] = n[0] * gbn[1] - n[1] * gbn[0]
+    s = math.sqrt(out[0] * out[0] + out[1] * out[1] + out[2] * out[2])
+    if s < 1e-12:
+        out[0] = 0.0
+        out[1] = 0.0
+        out[2] = 0.0
+    else:
+        out[0] /= s
+        out[1] /= s
+        out[2] /= s
+
+
+@nb.njit(cache=True, parallel=True)
+def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sys_plane, sys_dir,
+                          normals, directions, gb_normal, burgers, eff_scale,
+                          mp_in, out_sys, score, score_sys, resid, shen, mp_max):
+    """Transmission summaries for every boundary and both directions.
+
+    Parameters (all arrays C-contiguous)
+    ------------------------------------
+    quats (n_grains, 4); grain_a, grain_b (n_b,) int grain ids; eff (n_grains, n_sys) effective
+    Schmid factors; in_sys (n_grains,) most-stressed system per grain; planes (n_p, 3) and dirs
+    (n_d, 3) the distinct unit plane normals / directions, sys_plane, sys_dir (n_sys,) indices into
+    them; normals, directions (n_sys, 3); gb_normal (n_b, 3) boundary-plane normals (sample frame);
+    burgers (n_b,) Burgers vector length; eff_scale the factor that maps effective Schmid factors
+    onto [0, 1].
+
+    Outputs, column 0 = A→B, column 1 = B→A: mp_in, score, resid, shen (n_b, 2) float; out_sys,
+    score_sys (n_b, 2) int; mp_max (n_b,) the largest |m′| over all system pairs.
+
+    Notes
+    -----
+    m′ = (n_A·n_B)(d_A·d_B) with both in the sample frame equals ``(n_A · R n_B)(d_A · R d_B)``
+    with ``R = g_A g_Bᵀ`` in crystal A's frame, so the per-boundary work is one 3×3 product and
+    the dot products of the *distinct* planes and directions (for 48 BCC systems: 24 planes and
+    4 directions), then one product per system pair.
+    """
+    nb_ = grain_a.shape[0]
+    npl = planes.shape[0]
+    nd = dirs.shape[0]
+    ns = sys_plane.shape[0]
+    for k in nb.prange(nb_):
+        a = grain_a[k]
+        b = grain_b[k]
+        if quats[a, 0] != quats[a, 0] or quats[b, 0] != quats[b, 0]:
+            for c in range(2):
+                mp_in[k, c] = np.nan
+                score[k, c] = np.nan
+                resid[k, c] = np.nan
+                shen[k, c] = np.nan
+                out_sys[k, c] = -1
+                score_sys[k, c] = -1
+            mp_max[k] = np.nan
+            continue
+        ga = np.empty((3, 3))
+        gb = np.empty((3, 3))
+        quat_to_matrix_single(quats[a], ga)
+        quat_to_matrix_single(quats[b], gb)
+        r = np.zeros((3, 3))
+        for i in range(3):
+            for j in range(3):
+                r[i, j] = ga[i, 0] * gb[j, 0] + ga[i, 1] * gb[j, 1] + ga[i, 2] * gb[j, 2]
+        # plane and direction dot products, crystal A frame: P[pa, pb] = p_pa · R p_pb
+        pdot = np.empty((npl, npl))
+        w = np.empty(3)
+        for j in range(npl):
+            for i in range(3):
+                w[i] = r[i, 0] * planes[j, 0] + r[i, 1] * planes[j, 1] + r[i, 2] * planes[j, 2]
+            for i in range(npl):
+                pdot[i, j] = planes[i, 0] * w[0] + planes[i, 1] * w[1] + planes[i, 2] * w[2]
+        ddot = np.empty((nd, nd))
+        for j in range(nd):
+            for i in range(3):
+                w[i] = r[i, 0] * dirs[j, 0] + r[i, 1] * dirs[j, 1] + r[i, 2] * dirs[j, 2]
+            for i in range(nd):
+                ddot[i, j] = dirs[i, 0] * w[0] + dirs[i, 1] * w[1] + dirs[i, 2] * w[2]
+        best = 0.0
+        for i in range(ns):
+            pi = sys_plane[i]
+            di = sys_dir[i]
+            for j in range(ns):
+                v = abs(pdot[pi, sys_plane[j]] * ddot[di, sys_dir[j]])
+                if v > best:
+                    best = v
+        mp_max[k] = best
+        gbn = gb_normal[k]
+        na = np.empty(3)
+        nbv = np.empty(3)
+        la = np.empty(3)
+        lb = np.empty(3)
+        for c in range(2):
+            # c = 0: A -> B (incoming system in A, outgoing in B); c = 1: B -> A.
+            src = a if c == 0 else b
+            dst = b if c == 0 else a
+            i = in_sys[src]
+            bm = -1.0
+            bj = -1
+            bs = -1.0
+            bsj = -1
+            for j in range(ns):
+                if c == 0:
+                    v = abs(pdot[sys_plane[i], sys_plane[j]] * ddot[sys_dir[i], sys_dir[j]])
+                else:
+                    v = abs(pdot[sys_plane[j], sys_plane[i]] * ddot[sys_dir[j], sys_dir[i]])
+                if v > bm:
+                    bm = v
+                    bj = j
+                sv = v * eff[dst, j] * eff_scale
+                if sv > bs:
+                    bs = sv
+                    bsj = j
+            mp_in[k, c] = bm
+            out_sys[k, c] = bj
+            score[k, c] = bs
+            score_sys[k, c] = bsj
+            dd = ddot[sys_dir[i], sys_dir[bj]] if c == 0 else ddot[sys_dir[bj], sys_dir[i]]
+            # |b_in − b_out| with the sign of b_out that minimises it: |b|·sqrt(2 − 2|d_in·d_out|)
+            x = 2.0 - 2.0 * abs(dd)
+            resid[k, c] = burgers[k] * math.sqrt(x if x > 0.0 else 0.0)
+            # Shen et al. (1986): lines of the slip planes in the boundary plane (sample frame)
+            gs = ga if c == 0 else gb
+            gd = gb if c == 0 else ga
+            _rot_t(gs, normals[i], na)
+            _rot_t(gd, normals[bj], nbv)
+            _line_in_boundary(na, gbn, la)
+            _line_in_boundary(nbv, gbn, lb)
+            shen[k, c] = abs(la[0] * lb[0] + la[1] * lb[1] + la[2] * lb[2]) * abs(dd)
