@@ -75,7 +75,8 @@ def read_bundle(path: str | os.PathLike) -> OrientationMap:
     """Read a slipnet bundle; raise :class:`InputFileError` when it is not one or is damaged."""
     path = str(path)
     try:
-        with np.load(path, allow_pickle=False) as npz:
+        # our own file handle: numpy leaves its handle open when the archive is damaged
+        with open(path, "rb") as fh, np.load(fh, allow_pickle=False) as npz:
             names = set(npz.files)
             if "bundle_format" not in names:
                 raise InputFileError(

@@ -125,7 +125,7 @@ def place_points(
         k = int(np.flatnonzero(off)[0])
         desc, line = where(k)
         raise InputFileError(
-            f"{desc} has y = {y[k]!r} µm, which is not on a {grid} grid with rows {row_spacing:.9g} µm apart "
+            f"{desc} has y = {float(y[k])!r} µm, which is not on a {grid} grid with rows {row_spacing:.9g} µm apart "
             f"starting at y = {y0!r}; every point must sit on one uniform grid (check step and grid in the header)",
             path=path,
             line=line,
@@ -142,7 +142,7 @@ def place_points(
         desc, line = where(k)
         odd = " (an odd row, so shifted by step/2)" if grid == "hex" and i[k] % 2 else ""
         raise InputFileError(
-            f"{desc} has x = {x[k]!r} µm, which is not on row {int(i[k])}{odd} of a {grid} grid with step "
+            f"{desc} has x = {float(x[k])!r} µm, which is not on row {int(i[k])}{odd} of a {grid} grid with step "
             f"{step!r} µm starting at x = {x0!r}; every point must sit on one uniform grid "
             "(check step and grid in the header)",
             path=path,
@@ -157,8 +157,8 @@ def place_points(
         k = int(np.flatnonzero(outside)[0])
         desc, line = where(k)
         raise InputFileError(
-            f"{desc} at x = {x[k]!r}, y = {y[k]!r} µm falls on row {int(i[k])}, column {int(j[k])}, outside the "
-            f"declared {ny} rows × {nx} columns; fix ny/nx in the header or remove the point",
+            f"{desc} at x = {float(x[k])!r}, y = {float(y[k])!r} µm falls on row {int(i[k])}, "
+            f"column {int(j[k])}, outside the declared {ny} rows × {nx} columns; fix ny/nx in the header or remove the point",
             path=path,
             line=line,
         )
@@ -174,8 +174,8 @@ def place_points(
         k = int(first_dup.min())
         desc, line = where(k)
         raise InputFileError(
-            f"{desc} at x = {x[k]!r}, y = {y[k]!r} µm repeats a point given earlier; each grid point must "
-            "appear exactly once (remove the duplicate)",
+            f"{desc} at x = {float(x[k])!r}, y = {float(y[k])!r} µm repeats a point given earlier; "
+            "each grid point must appear exactly once (remove the duplicate)",
             path=path,
             line=line,
         )

@@ -94,8 +94,8 @@ def _lattice_nm(phase, structure: str) -> tuple[float, bool]:
         a = float(phase.structure.lattice.a)
     except AttributeError:
         return _DEFAULT_LATTICE_NM[structure], False
-    if 1.5 <= a <= 10.0:  # Å, as orix's readers store it
-        return a / 10.0, True
+    if 1.5 <= a <= 10.0:  # Å, as orix's readers store it; rounding undoes the ×10 of to_orix exactly
+        return round(a / 10.0, 12), True
     if 0.15 <= a < 1.0:  # already nm
         return a, True
     return _DEFAULT_LATTICE_NM[structure], False  # e.g. diffpy's unit default lattice
@@ -206,7 +206,7 @@ def from_orix(
     for orix_id, k in lookup.items():
         table[orix_id] = k
     new_pid = np.where(pid >= 0, table[np.clip(pid, -1, None)], -1).astype(np.int32)
-    meta["orix_phase_ids"] = {str(k): int(v) for v, k in lookup.items()}
+    meta["orix_phase_ids"] = {str(o): k for o, k in lookup.items()}
     if dropped:
         meta["unindexed_non_cubic_phases"] = dropped
     if notes:

@@ -307,7 +307,7 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
         if bad.any():
             k = int(np.flatnonzero(bad)[0])
             raise InputFileError(
-                f"value {cols[c][k]!r} is not a finite number; write a number (unindexed points: phase -1 and "
+                f"value {float(cols[c][k])!r} is not a finite number; write a number (unindexed points: phase -1 and "
                 "angles 0)",
                 path=path,
                 line=where(k)[1],
@@ -318,7 +318,7 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
     if bad.any():
         k = int(np.flatnonzero(bad)[0])
         raise InputFileError(
-            f"unknown phase {ph[k]!r}; phases are the whole numbers 0..{len(phases) - 1} listed in the header "
+            f"unknown phase {float(ph[k])!r}; phases are the whole numbers 0..{len(phases) - 1} listed in the header "
             "('# phase N = ...'), or -1 for unindexed points",
             path=path,
             line=where(k)[1],
@@ -331,7 +331,7 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
         if bad.any():
             k = int(np.flatnonzero(bad)[0])
             raise InputFileError(
-                f"angle {a[k]!r}° lies outside [0, {hi:g}]; Bunge angles are in degrees with φ1, φ2 in [0, 360] "
+                f"angle {float(a[k])!r}° lies outside [0, {hi:g}]; Bunge angles are in degrees with φ1, φ2 in [0, 360] "
                 "and Φ in [0, 180] (wrap negative angles by adding 360)",
                 path=path,
                 line=where(k)[1],

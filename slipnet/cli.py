@@ -32,9 +32,46 @@ def _run_demo(args) -> int:
     return 0
 
 
+def _add_map(sub) -> None:
+    p = sub.add_parser(
+        "map",
+        help="convert an orientation map between formats, or print a summary of it",
+        description="Read IN (slipnet text table, slipnet .npz bundle, or any file orix reads) and write OUT "
+        "(.txt/.tsv text table or .npz bundle), and/or print a summary with --info.",
+    )
+    p.add_argument("input", metavar="IN", help="map file to read")
+    p.add_argument("output", metavar="OUT", nargs="?", help="file to write (.txt, .tsv or .npz)")
+    p.add_argument("--info", action="store_true", help="print shape, grid, step, phases and indexed fraction")
+    p.add_argument(
+        "--frame-rotation",
+        metavar="ROT",
+        help="rotation taking the recorded sample frame into the map frame: 'AXIS@DEG' (e.g. 1,0,0@180) "
+        "or a quaternion 'w,x,y,z'",
+    )
+    p.add_argument("--quality-prop", metavar="NAME", help="orix property used as quality (files read by orix)")
+    p.add_argument("--no-overwrite", action="store_true", help="refuse to replace an existing OUT")
+    p.set_defaults(func=_run_map)
+
+
+def _run_map(args) -> int:
+    from .errors import ParameterError
+    from .io import map_summary, read_map, write_map
+
+    if args.output is None and not args.info:
+        raise ParameterError("map: give an output file OUT, or --info to print a summary")
+    omap = read_map(args.input, frame_rotation=args.frame_rotation, quality_prop=args.quality_prop)
+    if args.info:
+        print("\n".join(map_summary(omap)))
+    if args.output is not None:
+        path = write_map(omap, args.output, overwrite=not args.no_overwrite)
+        print(f"map written to {path}")
+    return 0
+
+
 # (name, register function); each register function sets ``func`` on its parser.
 _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("demo", _add_demo),
+    ("map", _add_map),
 ]
 
 

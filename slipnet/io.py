@@ -50,14 +50,17 @@ def parse_frame_rotation(rotation) -> np.ndarray:
     Parameters
     ----------
     rotation
-        Either 4 numbers (normalised here) or a pair ``(axis (3,), angle in degrees)``, e.g.
-        ``((1, 0, 0), 180)`` for a sample frame turned over about x.
+        Either 4 numbers (normalised here), a pair ``(axis (3,), angle in degrees)``, e.g.
+        ``((1, 0, 0), 180)`` for a sample frame turned over about x, or the same as text:
+        ``"1,0,0@180"`` or ``"w,x,y,z"``.
 
     Returns
     -------
     (4,) ndarray
         The unit quaternion ``R`` with ``v_map = R · v_recorded``.
     """
+    if isinstance(rotation, str):
+        rotation = _rotation_from_text(rotation)
     if isinstance(rotation, Sequence) and not isinstance(rotation, str) and len(rotation) == 2:
         axis, angle = rotation
         ax = np.asarray(axis, dtype=np.float64).reshape(-1)
@@ -81,6 +84,19 @@ def parse_frame_rotation(rotation) -> np.ndarray:
             f"got {rotation!r}"
         )
     return q / norm
+
+
+def _rotation_from_text(text: str):
+    """``"1,0,0@180"`` → ``((1, 0, 0), 180)``; ``"w,x,y,z"`` → 4 numbers."""
+    try:
+        if "@" in text:
+            axis, angle = text.split("@", 1)
+            return tuple(float(v) for v in axis.split(",")), float(angle)
+        return [float(v) for v in text.split(",")]
+    except ValueError as err:
+        raise ParameterError(
+            f"frame rotation should read 'AXIS@DEGREES' (e.g. '1,0,0@180') or 'w,x,y,z'; got {text!r}"
+        ) from err
 
 
 def _sniff(path: Path) -> str:
