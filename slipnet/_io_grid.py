@@ -158,7 +158,8 @@ def place_points(
         desc, line = where(k)
         raise InputFileError(
             f"{desc} at x = {float(x[k])!r}, y = {float(y[k])!r} µm falls on row {int(i[k])}, "
-            f"column {int(j[k])}, outside the declared {ny} rows × {nx} columns; fix ny/nx in the header or remove the point",
+            f"column {int(j[k])}, outside the declared {ny} rows × {nx} columns; "
+            "fix ny/nx in the header or remove the point",
             path=path,
             line=line,
         )
