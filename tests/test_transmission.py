@@ -1,0 +1,191 @@
+"""Tests of m′, residual Burgers vector, Shen factor and the boundary summaries on the grain graph."""
+
+from __future__ import annotations
+
+from types import SimpleNamespace
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+import pytest
+
+from slipnet import _slip_kernels as K
+from slipnet.errors import ParameterError
+from slipnet.maps import OrientationMap, Phase
+from slipnet.orientation import CUBIC_OPERATORS, quat_from_axis_angle, quat_from_euler, quat_multiply, random_quats
+from slipnet.slip import effective_schmid, schmid_factors, slip_systems
+from slipnet.transmission import (
+    EDGE_KEYS,
+    annotate_transmission,
+    boundary_plane_normals,
+    m_prime,
+    residual_burgers,
+    shen_factor,
+    transmission_summaries,
+)
+
+SYS = slip_systems("bcc", "all")
+
+
+def test_m_prime_identity_properties():
+    q = random_quats(1, seed=1)[0]
+    m = m_prime(q, q, SYS)
+    # Luster & Morris (1995): m′ = cos ψ cos κ = 1 for a system with itself
+    np.testing.assert_allclose(np.diag(m), 1.0)
+    assert m.max() <= 1.0 + 1e-12 and m.min() >= 0.0
+    # residual Burgers vector vanishes for identical orientations (Lee, Robertson & Birnbaum 1990)
+    np.testing.assert_allclose(np.diag(residual_burgers(q, q, SYS)), 0.0, atol=1e-12)
+
+
+def test_m_prime_transpose_and_symmetry_invariance():
+    qa, qb = random_quats(2, seed=7)
+    m = m_prime(qa, qb, SYS)
+    np.testing.assert_allclose(m_prime(qb, qa, SYS), m.T, atol=1e-12)
+    # a cubic symmetry operator S applied to an orientation (q -> S q) only permutes systems
+    # (and flips signs), so the multiset of m′ values in each row/column is unchanged
+    for op in CUBIC_OPERATORS[[1, 4, 10, 18]]:
+        m2 = m_prime(quat_multiply(op, qa), qb, SYS)
+        np.testing.assert_allclose(np.sort(m2.ravel()), np.sort(m.ravel()), atol=1e-12)
+        assert m2.max() == pytest.approx(m.max())
+        m3 = m_prime(qa, quat_multiply(op, qb), SYS)
+        np.testing.assert_allclose(np.sort(m3.ravel()), np.sort(m.ravel()), atol=1e-12)
+    # and a system's best partner value is unchanged: compare row maxima as sets
+    m4 = m_prime(quat_multiply(CUBIC_OPERATORS[5], qa), qb, SYS)
+    np.testing.assert_allclose(np.sort(m4.max(axis=1)), np.sort(m.max(axis=1)), atol=1e-12)
+
+
+def test_m_prime_hand_case_twist_about_plane_normal():
+    # rotate grain B by θ about the (110) normal: for the system (110)[1-11] the plane normals stay
+    # parallel (cos ψ = 1) and the direction turns by θ (cos κ = cos θ) -> m′ = cos θ
+    s = slip_systems("bcc", "{110}<111>")
+    k = int(np.flatnonzero(s.labels == "(110)[1-11]")[0])
+    for theta in (10.0, 35.0, 60.0):
+        qb = quat_from_axis_angle([1, 1, 0], theta)
+        assert m_prime(np.array([1.0, 0, 0, 0]), qb, s)[k, k] == pytest.approx(np.cos(np.deg2rad(theta)))
+
+
+def test_residual_burgers_units_and_sign_choice():
+    s = slip_systems("bcc", "{110}<111>")
+    qa = np.array([1.0, 0, 0, 0])
+    qb = quat_from_axis_angle([0, 0, 1], 90.0)  # a cubic symmetry: the same crystal
+    r = residual_burgers(qa, qb, s, lattice_parameter_nm=0.2866)
+    # every system has an exact partner: smallest residual 0; otherwise |b1 ∓ b2| for two
+    # <111> at 70.53° (cos = 1/3): |b|·sqrt(2 − 2/3) with |b| = a√3/2 (a/2<111>, common practice)
+    assert np.allclose(r.min(axis=1), 0.0, atol=1e-12)
+    b = 0.2866 * np.sqrt(3) / 2
+    vals = np.unique(np.round(r, 9))
+    np.testing.assert_allclose(vals, np.round([0.0, b * np.sqrt(2 - 2 / 3)], 9))
+
+
+def test_boundary_plane_normals_and_shen_hand_case():
+    n = boundary_plane_normals([0.0, 90.0], 90.0)
+    np.testing.assert_allclose(n, [[0, 1, 0], [-1, 0, 0]], atol=1e-12)
+    n45 = boundary_plane_normals(0.0, 45.0)
+    np.testing.assert_allclose(n45, [0, np.sqrt(0.5), np.sqrt(0.5)], atol=1e-12)
+    with pytest.raises(ParameterError, match="inclination_deg"):
+        boundary_plane_normals(0.0, 0.0)
+    # identical grains: lines coincide and directions coincide -> N = 1 on the diagonal unless
+    # the slip plane is parallel to the boundary plane (N = 0 by convention)
+    q = np.array([1.0, 0, 0, 0])
+    s = slip_systems("bcc", "{110}<111>")
+    nmat = shen_factor(q, q, s, 90.0)  # boundary plane x = const, normal (−1, 0, 0)
+    parallel = np.abs(np.abs(s.normals[:, 0]) - 1) < 1e-12
+    diag = np.diag(nmat)
+    np.testing.assert_allclose(diag[~parallel], 1.0)
+    assert not parallel.any()  # no {110} plane is (100); all diagonal entries are 1
+    assert nmat.max() <= 1 + 1e-12
+
+
+def test_summaries_match_the_full_matrices_and_py_func():
+    q = random_quats(30, seed=4)
+    ga, gb = np.arange(29), np.arange(1, 30)
+    th = np.linspace(0, 175, 29)
+    f = schmid_factors(q, [1, 0, 0], SYS)
+    r = transmission_summaries(q, ga, gb, SYS, factors=f, trace_angle_deg=th, inclination_deg=60.0)
+    eff = effective_schmid(f, SYS)
+    for k in range(29):
+        a, b = ga[k], gb[k]
+        mm = m_prime(q[a], q[b], SYS)
+        assert r["m_prime_max"][k] == pytest.approx(mm.max())
+        for c, (src, dst, mat) in enumerate(((a, b, mm), (b, a, mm.T))):
+            i = eff[src].argmax()
+            j = mat[i].argmax()
+            assert r["slip_in"][k, c] == i and r["slip_out"][k, c] == j
+            assert r["m_prime"][k, c] == pytest.approx(mat[i, j])
+            assert r["score"][k, c] == pytest.approx((mat[i] * eff[dst]).max() / 0.5)
+            rb = residual_burgers(q[src], q[dst], SYS)
+            assert r["residual_burgers"][k, c] == pytest.approx(rb[i, j])
+            sh = shen_factor(q[src], q[dst], SYS, th[k], inclination_deg=60.0)
+            assert r["shen"][k, c] == pytest.approx(sh[i, j])
+    assert np.all((r["score"] >= 0) & (r["score"] <= 1))
+    # the compiled kernel and its Python source agree
+    eff_c = np.ascontiguousarray(eff)
+    ins = np.ascontiguousarray(eff.argmax(axis=1).astype(np.int64))
+    gbn = boundary_plane_normals(th, 60.0)
+    outs = []
+    for fn in (K.boundary_summary_rows, K.boundary_summary_rows.py_func):
+        o = [np.empty((29, 2)), np.empty((29, 2), np.int64), np.empty((29, 2)), np.empty((29, 2), np.int64),
+             np.empty((29, 2)), np.empty((29, 2)), np.empty(29)]
+        fn(q, ga, gb, eff_c, ins, SYS.planes, SYS.directions_distinct, SYS.plane_index, SYS.direction_index,
+           SYS.normals, SYS.directions, gbn, np.full(29, 0.25), 2.0, *o)
+        outs.append(o)
+    for x, y in zip(*outs, strict=True):
+        np.testing.assert_allclose(x, y)
+
+
+def test_summaries_directional_and_nan_grains():
+    q = random_quats(3, seed=12)
+    q[2] = np.nan
+    r = transmission_summaries(q, [0, 1], [1, 2], SYS, load_axis=[0, 1, 0])
+    assert np.all(np.isfinite(r["m_prime"][0]))
+    assert np.all(np.isnan(r["m_prime"][1])) and np.all(r["slip_out"][1] == -1)
+    with pytest.raises(ParameterError, match="factors"):
+        transmission_summaries(q, [0], [1], SYS)
+    with pytest.raises(ParameterError, match="grain ids"):
+        transmission_summaries(q, [0], [5], SYS, load_axis=[1, 0, 0])
+
+
+def _bicrystal():
+    euler = np.zeros((4, 6, 3))
+    euler[:, 3:] = [30.0, 40.0, 10.0]
+    omap = OrientationMap.from_euler(euler, step=1.0, phases=(Phase("ferrite", "bcc", 0.2866),))
+    labels = np.zeros((4, 6), np.int64)
+    labels[:, 3:] = 1
+    g = nx.Graph()
+    for k, x in ((0, 1.0), (1, 4.0)):
+        g.add_node(k, phase=0, centroid_x_um=x, centroid_y_um=1.5, ecd_um=3.0)
+    g.add_edge(0, 1, boundary_id=0, trace_angle_deg=90.0, length_um=4.0)
+    mean = np.stack([quat_from_euler([0, 0, 0]), quat_from_euler([30.0, 40.0, 10.0])])
+    bnd = pd.DataFrame({"boundary_id": [0], "grain_a": [0], "grain_b": [1]})
+    return SimpleNamespace(omap=omap, labels=labels, graph=g, mean_quats=mean, boundaries=bnd,
+                           boundary_polylines={0: [np.array([[2.5, -0.5], [2.5, 3.5]])]})
+
+
+def test_annotate_transmission_on_a_bicrystal():
+    gg = _bicrystal()
+    t = annotate_transmission(gg, [1, 0, 0], SYS, inclination_deg=90.0)
+    assert len(t) == 2 and set(t["grain_in"]) == {0, 1}
+    e = gg.graph.edges[0, 1]
+    for key in EDGE_KEYS:
+        assert key in e
+        assert isinstance(e[key], (int, float))
+    mm = m_prime(gg.mean_quats[0], gg.mean_quats[1], SYS)
+    assert e["m_prime_max"] == pytest.approx(mm.max())
+    row = t[t["grain_in"] == 0].iloc[0]
+    assert e["m_prime_ab"] == pytest.approx(row["m_prime"])
+    assert row["label_in"] == SYS.labels[row["system_in"]]
+    # residual in nm: a = 0.2866 nm, |b| = a√3/2
+    rb = residual_burgers(gg.mean_quats[0], gg.mean_quats[1], SYS, lattice_parameter_nm=0.2866)
+    assert row["residual_burgers_nm"] == pytest.approx(rb[row["system_in"], row["system_out"]])
+    assert e["transmission_max"] == pytest.approx(t["transmission_score"].max())
+    with pytest.raises(ParameterError, match="inclination_deg"):
+        annotate_transmission(gg, [1, 0, 0], SYS, inclination_deg=120.0)
+
+
+def test_bad_quaternion_inputs():
+    with pytest.raises(ParameterError, match="q_a"):
+        m_prime([1, 0, 0], [1, 0, 0, 0], SYS)
+    with pytest.raises(ParameterError, match="q_b"):
+        m_prime([1, 0, 0, 0], [2, 0, 0, 0], SYS)
+    with pytest.raises(ParameterError, match="SlipSystems"):
+        m_prime([1, 0, 0, 0], [1, 0, 0, 0], "bcc")
