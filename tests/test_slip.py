@@ -377,3 +377,19 @@ def test_grains_of_other_structure_are_skipped():
     gg = _two_grain_graph()
     t = grain_schmid_table(gg, [1, 0, 0], slip_systems("fcc"))
     assert t["schmid_max"].isna().all() and (t["system_max"] == -1).all()
+
+
+def test_write_slip_outputs_writes_tables_pictures_and_caution(tmp_path):
+    from slipnet.cautions import CAUTION
+    from slipnet.slip import write_slip_outputs
+
+    gg = _two_grain_graph()
+    res = write_slip_outputs(gg, [1, 0, 0], tmp_path / "slip", systems=slip_systems("bcc", "all"))
+    for name in ("grains_slip.csv", "slip_traces.csv", "transmission.csv", "systems.csv", "schmid_map.png",
+                 "transmission_map.png", "slip_traces.png", "summary.md"):
+        assert (tmp_path / "slip" / name).stat().st_size > 0
+    text = (tmp_path / "slip" / "summary.md").read_text(encoding="utf-8")
+    assert CAUTION in text and "ASSUMED" in text
+    back = pd.read_csv(tmp_path / "slip" / "grains_slip.csv")
+    np.testing.assert_allclose(back["schmid_max"], res["grain_table"]["schmid_max"])
+    assert "schmid_max" in gg.graph.nodes[0] and "transmission_ab" in gg.graph.edges[0, 1]
