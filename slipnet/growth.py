@@ -670,8 +670,9 @@ def simulate_growth(
     n_points
         Crack lengths on the evenly spaced grid (crossing points are added).
     samples
-        Monte Carlo draws for the bands. ``None``: use the forecast's samples when it carries per-sample
-        paths, else none. An integer > 0: draw barrier strengths with log-normal scatter.
+        Monte Carlo draws for the bands. ``None``: follow the forecast's Monte Carlo: its per-sample
+        paths when it carries them, else as many barrier-strength draws as it has samples (its seed),
+        else none. An integer > 0: that many log-normal barrier-strength draws.
     strength_scatter
         Log-normal σ of the barrier strength draws.
     seed
@@ -817,7 +818,12 @@ def _sample_paths(source, path: GrowthPath, samples, scatter: float, seed: int, 
             paths = _forecast_sample_paths(source)
             if paths:
                 notes.append(f"bands from {len(paths)} forecast Monte Carlo paths")
-            return paths
+                return paths
+            table = getattr(source, "samples", None)
+            if isinstance(table, pd.DataFrame) and len(table):
+                # the forecast keeps per-sample summaries, not paths: draw as many barrier-strength samples
+                settings = getattr(source, "settings", None) or {}
+                return _sample_paths(path, path, len(table), scatter, int(settings.get("seed", seed)), notes)
         return []
     scatter = check_positive(scatter, "strength_scatter", allow_zero=True)
     rng = np.random.default_rng(seed)
@@ -874,9 +880,33 @@ def _bands(paths: list[GrowthPath], s: float, p: GrowthParameters, a: np.ndarray
 # --------------------------------------------------------------------------------------------
 
 
+def _match_transmission(table: pd.DataFrame | None, grains: np.ndarray, positions: np.ndarray, offset: float,
+                        from_col: str, into_col: str, mp: np.ndarray, tw: np.ndarray, bid: np.ndarray,
+                        done: np.ndarray) -> None:
+    """Fill |m′|, twist and boundary id of the path barriers from a crossing or barrier table."""
+    if table is None or len(table) == 0 or from_col not in table.columns or into_col not in table.columns:
+        return
+    ga = table[from_col].to_numpy(np.int64)
+    gb = table[into_col].to_numpy(np.int64)
+    dist = table["distance_um"].to_numpy(float) + offset if "distance_um" in table.columns else None
+    for i in np.flatnonzero(~done):  # per barrier on the path: tens at most
+        g0, g1 = grains[i], grains[i + 1]
+        m = np.flatnonzero(((ga == g0) & (gb == g1)) | ((ga == g1) & (gb == g0)))
+        if m.size == 0:
+            continue
+        if dist is not None:
+            m = m[np.argsort(np.abs(np.nan_to_num(dist[m], nan=np.inf) - positions[i]), kind="stable")]
+        row = table.iloc[int(m[0])]
+        mp[i] = float(row["m_prime"]) if "m_prime" in table.columns else 1.0
+        tw[i] = float(row["twist_deg"]) if "twist_deg" in table.columns else 0.0
+        bid[i] = int(row["boundary_id"]) if "boundary_id" in table.columns else -1
+        done[i] = True
+
+
 def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | None = None, *,
+                     crossings: pd.DataFrame | None = None, offset_um: float = 0.0,
                      source: str = "path table") -> GrowthPath:
-    """A :class:`GrowthPath` from a forecast path table (and optionally its barrier table).
+    """A :class:`GrowthPath` from a forecast path table (and optionally its crossing / barrier tables).
 
     Parameters
     ----------
@@ -885,8 +915,22 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
         ``length_um``, ``s_start_um`` and ``schmid`` (the ``CrackForecast.path`` contract).
     barrier_table
         ``CrackForecast.barriers``: ``grain_a``, ``grain_b``, ``m_prime``, ``twist_deg``,
-        ``distance_um``, ``boundary_id``, ``on_path``. Barriers are matched by grain pair, then by
-        distance; an unmatched barrier gets neutral transmission (|m′| = 1, twist 0).
+        ``distance_um``, ``boundary_id``, ``on_path``.
+    crossings
+        ``CrackForecast.crossings`` (preferred: one row per crossing of the main path, ``branch`` 0):
+        ``grain_a`` (from), ``grain_b`` (into), ``m_prime``, ``twist_deg``, ``distance_um``.
+    offset_um
+        Crack already present behind the path start (µm): every position is shifted by it, so the
+        crack length is the whole length (the forecast's ``initial_crack_um``).
+    source
+        Name used in error messages.
+
+    Notes
+    -----
+    Barrier positions are the path distances where the grain changes; grain factors are the
+    length-weighted ``schmid`` of each grain's segments. |m′|, twist and boundary id are matched by
+    grain pair (nearest distance first), from the crossings, then the barriers; an unmatched
+    barrier gets neutral transmission (|m′| = 1, twist 0).
     """
     need = {"grain", "x0", "y0", "x1", "y1", "length_um", "s_start_um", "schmid"}
     if path_table is None or len(path_table) == 0:
@@ -894,9 +938,10 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
     missing = need - set(path_table.columns)
     if missing:
         raise ParameterError(f"{source} should have columns {sorted(need)}; missing {sorted(missing)}")
+    offset = check_positive(offset_um, "offset_um", allow_zero=True)
     t = path_table.sort_values("s_start_um").reset_index(drop=True)
     grain = t["grain"].to_numpy(np.int64)
-    s0 = t["s_start_um"].to_numpy(float)
+    s0 = t["s_start_um"].to_numpy(float) + offset
     ln = t["length_um"].to_numpy(float)
     schmid = np.abs(t["schmid"].to_numpy(float))
     change = np.flatnonzero(grain[1:] != grain[:-1]) + 1
@@ -904,37 +949,22 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
     ends = np.concatenate([change, [len(t)]])
     positions = s0[change]
     grains = grain[starts]
-    # length-weighted orientation factor of each grain's segments
-    gf = np.array([np.average(schmid[i:j], weights=np.maximum(ln[i:j], 1e-12)) for i, j in zip(starts, ends,
-                                                                                                 strict=True)])
-    gf = np.where(np.isfinite(gf) & (gf > 0), gf, np.nan)
-    if np.all(np.isnan(gf)):
+    # length-weighted orientation factor of each grain's segments (per grain on the path: tens)
+    gf = np.array([np.average(np.nan_to_num(schmid[i:j]), weights=np.maximum(ln[i:j], 1e-12))
+                   for i, j in zip(starts, ends, strict=True)])
+    if not np.any(gf > 0):
         gf = np.ones_like(gf)
-    gf = np.where(np.isnan(gf), np.nanmedian(gf), gf)
     gf = np.maximum(gf, 1e-3)  # a grain with no resolved shear: very hard, never infinitely so
     k = positions.size
-    mp = np.ones(k)
-    tw = np.zeros(k)
+    mp, tw = np.ones(k), np.zeros(k)
     bid = np.full(k, -1, dtype=np.int64)
-    if barrier_table is not None and len(barrier_table) and k:
-        bt = barrier_table
-        if "on_path" in bt.columns:
-            bt = bt[bt["on_path"].astype(bool)]
-        ga = bt["grain_a"].to_numpy(np.int64) if "grain_a" in bt.columns else np.full(len(bt), -2)
-        gb = bt["grain_b"].to_numpy(np.int64) if "grain_b" in bt.columns else np.full(len(bt), -2)
-        dist = bt["distance_um"].to_numpy(float) if "distance_um" in bt.columns else np.full(len(bt), np.nan)
-        for i in range(k):  # per barrier on the path: tens at most
-            g0, g1 = grains[i], grains[i + 1]
-            m = np.flatnonzero(((ga == g0) & (gb == g1)) | ((ga == g1) & (gb == g0)))
-            if m.size == 0 and np.any(np.isfinite(dist)):
-                j = int(np.nanargmin(np.abs(dist - positions[i])))
-                m = np.array([j]) if abs(dist[j] - positions[i]) < 1e-6 * max(1.0, positions[i]) + 0.5 else m
-            if m.size:
-                j = m[np.argmin(np.abs(np.nan_to_num(dist[m], nan=0.0) - positions[i]))]
-                row = bt.iloc[j]
-                mp[i] = float(row["m_prime"]) if "m_prime" in bt.columns else 1.0
-                tw[i] = float(row["twist_deg"]) if "twist_deg" in bt.columns else 0.0
-                bid[i] = int(row["boundary_id"]) if "boundary_id" in bt.columns else -1
+    done = np.zeros(k, dtype=bool)
+    if crossings is not None and len(crossings) and "branch" in crossings.columns:
+        crossings = crossings[crossings["branch"] == 0]
+    _match_transmission(crossings, grains, positions, offset, "grain_a", "grain_b", mp, tw, bid, done)
+    if barrier_table is not None and len(barrier_table) and "on_path" in barrier_table.columns:
+        barrier_table = barrier_table[barrier_table["on_path"].astype(bool)]
+    _match_transmission(barrier_table, grains, positions, offset, "grain_a", "grain_b", mp, tw, bid, done)
     total = float(s0[-1] + ln[-1])
     poly_s = np.concatenate([s0, [total]])
     poly_x = np.concatenate([t["x0"].to_numpy(float), [float(t["x1"].iloc[-1])]])
@@ -945,15 +975,27 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
                       polyline=np.column_stack([poly_s, poly_x, poly_y])[keep])
 
 
-def path_from_forecast(forecast, **kwargs: Any) -> GrowthPath:
-    """A :class:`GrowthPath` from a ``CrackForecast`` (its ``.path`` and ``.barriers`` tables).
+def path_from_forecast(forecast, *, offset_um: float | None = None) -> GrowthPath:
+    """A :class:`GrowthPath` from a ``CrackForecast`` (its ``.path``, ``.crossings``, ``.barriers``).
 
-    Barrier positions are the path distances where the grain changes; grain factors are the
-    length-weighted ``schmid`` of each grain's segments; |m′| and twist come from the barrier table.
+    Parameters
+    ----------
+    forecast
+        The forecast.
+    offset_um
+        Crack length already behind the forecast tip (µm); default the forecast's
+        ``settings["initial_crack_um"]`` (0 for a notch root).
+
+    See :func:`path_from_tables` for how the tables are read.
     """
     if not hasattr(forecast, "path"):
         raise ParameterError(f"forecast should be a CrackForecast with a .path table; got {type(forecast).__name__}")
-    return path_from_tables(forecast.path, getattr(forecast, "barriers", None), source="forecast.path", **kwargs)
+    if offset_um is None:
+        settings = getattr(forecast, "settings", None) or {}
+        offset_um = float(settings.get("initial_crack_um", 0.0) or 0.0)
+    return path_from_tables(forecast.path, getattr(forecast, "barriers", None),
+                            crossings=getattr(forecast, "crossings", None), offset_um=offset_um,
+                            source="forecast.path")
 
 
 # --------------------------------------------------------------------------------------------
