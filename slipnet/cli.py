@@ -68,10 +68,64 @@ def _run_map(args) -> int:
     return 0
 
 
+def _add_slip(sub) -> None:
+    p = sub.add_parser(
+        "slip",
+        help="Schmid factors, slip traces, Taylor factors and slip transmission per grain and boundary",
+        description="Rebuild grains from IN, then write per-grain slip tables, slip traces, boundary "
+        "transmission (m′, residual Burgers vector, Shen factor) and pictures into --out.",
+    )
+    p.add_argument("input", metavar="IN", help="orientation map file")
+    p.add_argument("--out", default="slipnet-slip", help="output folder (default: slipnet-slip)")
+    p.add_argument("--load-axis", nargs=3, type=float, default=(1.0, 0.0, 0.0), metavar=("X", "Y", "Z"),
+                   help="uniaxial load axis in the map frame (default 1 0 0)")
+    p.add_argument("--threshold", type=float, default=15.0, help="grain boundary threshold, degrees (default 15)")
+    p.add_argument("--structure", choices=("bcc", "fcc"), help="crystal structure (default: of the first phase)")
+    p.add_argument("--families", nargs="+", metavar="FAMILY",
+                   help="slip families, e.g. '{110}<111>' '{112}<111>' (or 'all'); default {110}+{112} for BCC")
+    p.add_argument("--crss", nargs="+", default=(), metavar="FAMILY=VALUE",
+                   help="relative critical resolved shear stress per family, e.g. '{112}<111>=1.05'")
+    p.add_argument("--twinning-asymmetry", type=float, default=1.0,
+                   help="CRSS anti-twinning / twinning sense for {112}<111> (default 1)")
+    p.add_argument("--inclination", type=float, default=90.0,
+                   help="assumed boundary-plane inclination to the surface for the Shen factor, degrees (default 90)")
+    p.add_argument("--no-taylor", action="store_true", help="skip the Taylor factor linear programmes")
+    p.add_argument("--frame-rotation", metavar="ROT", help="as for 'slipnet map'")
+    p.set_defaults(func=_run_slip)
+
+
+def _run_slip(args) -> int:
+    from .errors import ParameterError
+    from .grains import build_grain_graph
+    from .io import read_map
+    from .slip import slip_systems, write_slip_outputs
+
+    crss = {}
+    for item in args.crss:
+        fam, sep, val = item.partition("=")
+        try:
+            crss[fam.strip()] = float(val)
+        except ValueError as err:
+            raise ParameterError(f"--crss should be FAMILY=VALUE, e.g. '{{112}}<111>=1.05'; got {item!r}") from err
+        if not sep:
+            raise ParameterError(f"--crss should be FAMILY=VALUE; got {item!r}")
+    omap = read_map(args.input, frame_rotation=args.frame_rotation)
+    structure = args.structure or omap.phases[0].structure
+    families = args.families[0] if args.families and args.families == ["all"] else args.families
+    systems = slip_systems(structure, families, crss, twinning_asymmetry=args.twinning_asymmetry)
+    gg = build_grain_graph(omap, threshold_deg=args.threshold)
+    res = write_slip_outputs(gg, args.load_axis, args.out, systems=systems, inclination_deg=args.inclination,
+                             taylor=not args.no_taylor)
+    print(f"slip: {len(res['grain_table'])} grains, {len(res['transmission_table']) // 2} boundaries; "
+          f"outputs written to {args.out}")
+    return 0
+
+
 # (name, register function); each register function sets ``func`` on its parser.
 _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("demo", _add_demo),
     ("map", _add_map),
+    ("slip", _add_slip),
 ]
 
 
