@@ -261,6 +261,7 @@ def plot_ipf_map(
     if key:
         add_ipf_key(ax, direction)
         if not omap.indexed.all():
-            ax.legend(handles=[Patch(color=UNINDEXED_COLOR, label="unindexed")], loc="upper left",
-                      bbox_to_anchor=(1.03, 0.5), frameon=False, fontsize=8)
+            # added as an artist so that a later ax.legend() call (e.g. for markers) keeps it
+            ax.add_artist(ax.legend(handles=[Patch(color=UNINDEXED_COLOR, label="unindexed")], loc="upper left",
+                                    bbox_to_anchor=(1.03, 0.5), frameon=False, fontsize=8))
     return ax
