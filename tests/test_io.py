@@ -466,3 +466,18 @@ def test_million_point_map_reads_and_writes_in_seconds(tmp_path):
         assert back.shape == shape
     # seconds, not minutes (generous bound for a shared machine)
     assert time.perf_counter() - t0 < 90.0
+
+
+def test_format_document_example_reads(tmp_path):
+    import pathlib
+    import re
+
+    doc = pathlib.Path(__file__).resolve().parents[1] / "docs" / "map-format.md"
+    block = re.search(r"```\n(# slipnet-points.*?)```", doc.read_text(encoding="utf-8"), re.S).group(1)
+    path = tmp_path / "example.txt"
+    path.write_text(block, encoding="utf-8")
+    omap = read_map(path)
+    assert omap.shape == (2, 3) and omap.grid == "square" and omap.step == 0.5
+    assert omap.name == "coupon 4, notch root"
+    assert not omap.indexed[0, 2] and omap.phase[1, 0] == 1
+    np.testing.assert_allclose(omap.euler()[0, 1], [12.7, 45.1, 79.8], atol=1e-9)
