@@ -211,7 +211,7 @@ def boundary_band_statistics(values, x, y, boundary_points, boundary_ids, band_u
     cols = ["boundary_id", "n_points", "mean", "p90", "max"]
     if not ok.any() or bp.shape[0] == 0:
         return pd.DataFrame(columns=cols)
-    d, k = cKDTree(bp).query(np.stack([xx[ok], yy[ok]], 1), distance_upper_bound=band)
+    d, k = cKDTree(bp).query(np.stack([xx[ok], yy[ok]], 1), distance_upper_bound=band * (1 + 1e-12))  # band inclusive
     near = np.isfinite(d)
     df = pd.DataFrame({"boundary_id": bid[k[near]].astype(np.int64), "v": v[ok][near]})
     g = df.groupby("boundary_id")["v"]
