@@ -42,7 +42,7 @@ from slipnet.compare import (
 )
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.maps import OrientationMap
-from slipnet.strainmaps import StrainSeries, write_strain
+from slipnet.strainmaps import write_strain
 from slipnet.synthetic_measurements import (
     synthetic_crack_path,
     synthetic_growth_record,
@@ -443,7 +443,7 @@ def _scenario(tmp_path=None):
     omap = _omap(labels)
     gg = SimpleNamespace(
         omap=omap, labels=labels, boundary_polylines={0: [np.array([[39.5, 0.0], [39.5, 59.0]])]},
-        grain_at=lambda x, y: int(labels[int(round(y)), int(round(x))]) if 0 <= x < 80 and 0 <= y < 60 else -1,
+        grain_at=lambda x, y: int(labels[round(y), round(x)]) if 0 <= x < 80 and 0 <= y < 60 else -1,
         mean_quats=np.array([[1.0, 0, 0, 0], [1.0, 0, 0, 0]]),
     )
     sites = pd.DataFrame({"x": [20.0, 55.0, 70.0], "y": [20.0, 40.0, 10.0], "score": [3.0, 2.0, 1.0]})
@@ -488,7 +488,7 @@ def test_compare_forecast_on_a_synthetic_measurement(tmp_path):
 def test_cli_compare(tmp_path, capsys):
     from slipnet.cli import main
 
-    gg, forecast, sm = _scenario()
+    _gg, forecast, sm = _scenario()
     write_strain(sm.series, tmp_path / "strain.npz")
     pd.DataFrame({"strain_x_um": sm.strain_points[:, 0], "strain_y_um": sm.strain_points[:, 1],
                   "map_x_um": sm.map_points[:, 0], "map_y_um": sm.map_points[:, 1]}).to_csv(tmp_path / "cp.csv",
