@@ -1,0 +1,481 @@
+"""Numba kernels for grain reconstruction; the public wrapper lives in :mod:`slipnet.grains`.
+
+Points are addressed by their flat index ``p = i * nx + j`` (row ``i``, column ``j``), held as
+int32 to halve the memory of the pair arrays on large maps. Neighbour pairs come from an offset
+table ``(2, k, 2)`` of ``(di, dj)`` rows, one block per row parity (even, odd), so square and
+hexagonal grids share every kernel.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+
+from ._orientation_kernels import _sort4_desc
+
+SQRT2_INV = 1.0 / math.sqrt(2.0)
+
+# Forward offsets (each unordered neighbour pair once). Hex grid: odd rows shifted +step/2, so the
+# row below an even row is met at columns j-1 and j, below an odd row at j and j+1.
+FORWARD_OFFSETS = {
+    "square": np.array([[[0, 1], [1, 0]], [[0, 1], [1, 0]]], dtype=np.int64),
+    "hex": np.array([[[0, 1], [1, -1], [1, 0]], [[0, 1], [1, 0], [1, 1]]], dtype=np.int64),
+}
+# All neighbours of a point (used by the majority fill).
+ALL_OFFSETS = {
+    "square": np.array([[[0, 1], [0, -1], [1, 0], [-1, 0]]] * 2, dtype=np.int64),
+    "hex": np.array(
+        [
+            [[0, 1], [0, -1], [1, -1], [1, 0], [-1, -1], [-1, 0]],
+            [[0, 1], [0, -1], [1, 0], [1, 1], [-1, 0], [-1, 1]],
+        ],
+        dtype=np.int64,
+    ),
+}
+
+
+# ----------------------------------------------------------------------------- neighbour pairs
+@nb.njit(cache=True)
+def row_pair_counts(ny, nx, offsets):
+    """Number of in-grid forward pairs starting on each row, shape (ny,)."""
+    out = np.zeros(ny, dtype=np.int64)
+    for i in range(ny):
+        par = i % 2
+        c = 0
+        for k in range(offsets.shape[1]):
+            di = offsets[par, k, 0]
+            dj = offsets[par, k, 1]
+            if i + di < 0 or i + di >= ny:
+                continue
+            lo = max(0, -dj)
+            hi = min(nx, nx - dj)
+            if hi > lo:
+                c += hi - lo
+        out[i] = c
+    return out
+
+
+@nb.njit(cache=True, parallel=True)
+def fill_pairs(ny, nx, offsets, row_start, a, b):
+    """Write the forward pairs of every row into ``a``/``b`` (flat indices) from ``row_start[i]``."""
+    for i in nb.prange(ny):
+        par = i % 2
+        pos = row_start[i]
+        for j in range(nx):
+            for k in range(offsets.shape[1]):
+                ii = i + offsets[par, k, 0]
+                jj = j + offsets[par, k, 1]
+                if ii < 0 or ii >= ny or jj < 0 or jj >= nx:
+                    continue
+                a[pos] = i * nx + j
+                b[pos] = ii * nx + jj
+                pos += 1
+
+
+# ----------------------------------------------------------------------------- disorientation
+@nb.njit(cache=True, inline="always")
+def cubic_angle(w, x, y, z):
+    """Smallest rotation angle (rad) among the 24 cubic equivalents of an (unnormalised) quaternion.
+
+    With sorted absolute components a >= b >= c >= d the best scalar part is
+    max(a, (a+b)/√2, (a+b+c+d)/2); the angle is taken as 2·atan2(|v|, w) with |v|² written
+    from differences of components, which stays accurate for nearly equal orientations.
+    """
+    n = math.sqrt(w * w + x * x + y * y + z * z)
+    a, b, c, d = _sort4_desc(abs(w) / n, abs(x) / n, abs(y) / n, abs(z) / n)
+    best = a
+    v2 = b * b + c * c + d * d
+    s2 = (a + b) * SQRT2_INV
+    if s2 > best:
+        best = s2
+        v2 = 0.5 * (a - b) * (a - b) + c * c + d * d
+    s3 = 0.5 * (a + b + c + d)
+    if s3 > best:
+        best = s3
+        v2 = 0.25 * ((a - b) ** 2 + (a - c) ** 2 + (a - d) ** 2 + (b - c) ** 2 + (b - d) ** 2 + (c - d) ** 2)
+    return 2.0 * math.atan2(math.sqrt(v2), best)
+
+
+@nb.njit(cache=True, inline="always")
+def _angle_between(q, p, r):
+    # angle of q[p] * conj(q[r]) reduced by cubic symmetry
+    a0, a1, a2, a3 = q[r, 0], -q[r, 1], -q[r, 2], -q[r, 3]
+    b0, b1, b2, b3 = q[p, 0], q[p, 1], q[p, 2], q[p, 3]
+    w = b0 * a0 - b1 * a1 - b2 * a2 - b3 * a3
+    x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
+    y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
+    z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
+    return cubic_angle(w, x, y, z)
+
+
+@nb.njit(cache=True, parallel=True)
+def pair_disorientation(quats, valid, phase, a, b, out):
+    """Cubic disorientation (degrees, float32) of every pair; NaN if a point is invalid or phases differ."""
+    to_deg = 180.0 / math.pi
+    for k in nb.prange(a.shape[0]):
+        p = a[k]
+        r = b[k]
+        if valid[p] and valid[r] and phase[p] == phase[r]:
+            out[k] = _angle_between(quats, r, p) * to_deg
+        else:
+            out[k] = np.nan
+
+
+@nb.njit(cache=True, parallel=True)
+def point_to_reference(quats, valid, labels, refs, out):
+    """Disorientation (degrees, float32) of every valid labelled point to ``refs[label]``; NaN elsewhere."""
+    to_deg = 180.0 / math.pi
+    for p in nb.prange(labels.shape[0]):
+        g = labels[p]
+        if g < 0 or not valid[p]:
+            out[p] = np.nan
+            continue
+        a0, a1, a2, a3 = refs[g, 0], -refs[g, 1], -refs[g, 2], -refs[g, 3]
+        b0, b1, b2, b3 = quats[p, 0], quats[p, 1], quats[p, 2], quats[p, 3]
+        w = b0 * a0 - b1 * a1 - b2 * a2 - b3 * a3
+        x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
+        y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
+        z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
+        out[p] = cubic_angle(w, x, y, z) * to_deg
+
+
+@nb.njit(cache=True, parallel=True)
+def csl_deviation(dq, angle_deg, equivalents, csl_angle_deg, limit_deg, out):
+    """Smallest angle (degrees) between each misorientation and each CSL rotation.
+
+    ``dq`` (n, 4) misorientations with disorientation angles ``angle_deg`` (n,); ``equivalents``
+    (n_csl, 24, 4) holds ``C·S`` for the 24 cubic operators S, so that the closed-form reduction
+    (left symmetry) of ``dq · (C·S)⁻¹`` over all 24 right factors covers every symmetric
+    equivalent ``S1 · dq · S2`` of the misorientation. Since the deviation is at least
+    ``|angle − θ_C|`` (triangle inequality), pairs farther apart than ``limit_deg`` are skipped
+    and get ``inf``.
+    """
+    to_deg = 180.0 / math.pi
+    for i in nb.prange(dq.shape[0]):
+        b0, b1, b2, b3 = dq[i, 0], dq[i, 1], dq[i, 2], dq[i, 3]
+        for c in range(equivalents.shape[0]):
+            if abs(angle_deg[i] - csl_angle_deg[c]) > limit_deg[c]:
+                out[i, c] = np.inf
+                continue
+            best = 1e9
+            for s in range(equivalents.shape[1]):
+                a0 = equivalents[c, s, 0]
+                a1 = -equivalents[c, s, 1]
+                a2 = -equivalents[c, s, 2]
+                a3 = -equivalents[c, s, 3]
+                w = b0 * a0 - b1 * a1 - b2 * a2 - b3 * a3
+                x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
+                y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
+                z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
+                ang = cubic_angle(w, x, y, z)
+                if ang < best:
+                    best = ang
+            out[i, c] = best * to_deg
+
+
+COS_22_5 = math.cos(math.radians(22.5))
+
+
+@nb.njit(cache=True)
+def quat_moment_sums(quats, valid, labels, refs, only, ops, acc):
+    """Accumulate the 10 distinct terms of Σ q qᵀ per label, each q first brought to its cubic
+    equivalent nearest ``refs[label]`` (what :func:`slipnet.orientation.nearest_equivalent` does).
+
+    Within 45° of the reference the identity is the nearest equivalent (the closest other copies
+    are 90° away), so only the sign is matched; otherwise the 24 operators ``ops`` are searched.
+    ``only`` (n,) bool selects the labels to accumulate; ``acc`` (n, 10) float64, terms in
+    row-major upper-triangle order (00, 01, 02, 03, 11, 12, 13, 22, 23, 33).
+    """
+    for p in range(labels.shape[0]):
+        g = labels[p]
+        if g < 0 or not valid[p] or not only[g]:
+            continue
+        w, x, y, z = quats[p, 0], quats[p, 1], quats[p, 2], quats[p, 3]
+        r0, r1, r2, r3 = refs[g, 0], refs[g, 1], refs[g, 2], refs[g, 3]
+        dot = w * r0 + x * r1 + y * r2 + z * r3
+        if abs(dot) < COS_22_5:
+            best = -1.0
+            bw, bx, by, bz = w, x, y, z
+            for k in range(ops.shape[0]):
+                s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
+                tw = s0 * w - s1 * x - s2 * y - s3 * z
+                tx = s0 * x + s1 * w + s2 * z - s3 * y
+                ty = s0 * y - s1 * z + s2 * w + s3 * x
+                tz = s0 * z + s1 * y - s2 * x + s3 * w
+                d = tw * r0 + tx * r1 + ty * r2 + tz * r3
+                if abs(d) > best:
+                    best = abs(d)
+                    dot = d
+                    bw, bx, by, bz = tw, tx, ty, tz
+            w, x, y, z = bw, bx, by, bz
+        if dot < 0.0:
+            w, x, y, z = -w, -x, -y, -z
+        acc[g, 0] += w * w
+        acc[g, 1] += w * x
+        acc[g, 2] += w * y
+        acc[g, 3] += w * z
+        acc[g, 4] += x * x
+        acc[g, 5] += x * y
+        acc[g, 6] += x * z
+        acc[g, 7] += y * y
+        acc[g, 8] += y * z
+        acc[g, 9] += z * z
+
+
+# ----------------------------------------------------------------------------- union-find
+@nb.njit(cache=True, inline="always")
+def _find(parent, i):
+    # path halving: every visited node skips to its grandparent
+    while parent[i] != i:
+        parent[i] = parent[parent[i]]
+        i = parent[i]
+    return i
+
+
+@nb.njit(cache=True)
+def union_pairs(parent, a, b, join):
+    """Union ``a[k]`` and ``b[k]`` wherever ``join[k]``; the root of a set is its smallest index.
+
+    ``parent`` (n,) int32 is updated in place and fully flattened on return
+    (``parent[i]`` is the root of ``i``).
+    """
+    for k in range(a.shape[0]):
+        if not join[k]:
+            continue
+        ra = _find(parent, a[k])
+        rb = _find(parent, b[k])
+        if ra == rb:
+            continue
+        if ra < rb:
+            parent[rb] = ra
+        else:
+            parent[ra] = rb
+    for i in range(parent.shape[0]):
+        parent[i] = _find(parent, i)
+
+
+@nb.njit(cache=True)
+def union_below(parent, a, b, angle, threshold):
+    """Union the pairs whose angle is below ``threshold`` (NaN never joins); as :func:`union_pairs`."""
+    for k in range(a.shape[0]):
+        if not angle[k] < threshold:
+            continue
+        ra = _find(parent, a[k])
+        rb = _find(parent, b[k])
+        if ra == rb:
+            continue
+        if ra < rb:
+            parent[rb] = ra
+        else:
+            parent[ra] = rb
+    for i in range(parent.shape[0]):
+        parent[i] = _find(parent, i)
+
+
+@nb.njit(cache=True)
+def compact_labels(roots, keep, out):
+    """Consecutive ids 0..n-1 in raster order of each set's first point; -1 where not ``keep``.
+
+    ``roots`` must be flattened and each root must be the smallest index of its set, so a set is
+    numbered when its root is met. Returns the number of sets.
+    """
+    n = roots.shape[0]
+    newid = np.full(n, -1, dtype=np.int32)
+    count = 0
+    for i in range(n):
+        if not keep[i]:
+            out[i] = -1
+            continue
+        r = roots[i]
+        if newid[r] < 0:
+            newid[r] = count
+            count += 1
+        out[i] = newid[r]
+    return count
+
+
+# ----------------------------------------------------------------------------- clean-up
+@nb.njit(cache=True, parallel=True)
+def _fill_sweep(labels, new, ny, nx, offsets):
+    changed = 0
+    for i in nb.prange(ny):
+        par = i % 2
+        cand = np.empty(offsets.shape[1], dtype=np.int64)
+        for j in range(nx):
+            p = i * nx + j
+            new[p] = labels[p]
+            if labels[p] >= 0:
+                continue
+            m = 0
+            for k in range(offsets.shape[1]):
+                ii = i + offsets[par, k, 0]
+                jj = j + offsets[par, k, 1]
+                if ii < 0 or ii >= ny or jj < 0 or jj >= nx:
+                    continue
+                lab = labels[ii * nx + jj]
+                if lab >= 0:
+                    cand[m] = lab
+                    m += 1
+            if m == 0:
+                continue
+            # majority; ties go to the smaller id so the result does not depend on scan order
+            best = -1
+            best_n = 0
+            for u in range(m):
+                c = 0
+                for v in range(m):
+                    if cand[v] == cand[u]:
+                        c += 1
+                if c > best_n or (c == best_n and cand[u] < best):
+                    best_n = c
+                    best = cand[u]
+            new[p] = best
+            changed += 1
+    return changed
+
+
+@nb.njit(cache=True)
+def fill_majority(labels, ny, nx, offsets, max_sweeps):
+    """Give unlabelled points (-1) the most common label among their neighbours, sweep by sweep.
+
+    Each sweep reads the labels of the previous one (synchronous update), so the result does not
+    depend on scan order. Stops when a sweep changes nothing or after ``max_sweeps``.
+    Returns ``(points filled, sweeps run)``; ``labels`` (ny*nx,) int32 is updated in place.
+    """
+    new = np.empty_like(labels)
+    total = 0
+    sweeps = 0
+    while sweeps < max_sweeps:
+        changed = _fill_sweep(labels, new, ny, nx, offsets)
+        sweeps += 1
+        if changed == 0:
+            break
+        labels[:] = new
+        total += changed
+    return total, sweeps
+
+
+# ----------------------------------------------------------------------------- per-grain sums
+@nb.njit(cache=True)
+def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, n, sums, bbox, first, ph, edge):
+    """One pass over the points accumulating per-grain geometry.
+
+    ``sums`` (n, 7): count, Σx, Σy, Σxx, Σxy, Σyy, count of valid points (µm, origin at point 0);
+    ``bbox`` (n, 4): x_min, x_max, y_min, y_max; ``first`` (n,) first valid point; ``ph`` (n,)
+    phase of that point; ``edge`` (n,) whether the grain touches the map edge.
+    """
+    for g in range(n):
+        bbox[g, 0] = np.inf
+        bbox[g, 1] = -np.inf
+        bbox[g, 2] = np.inf
+        bbox[g, 3] = -np.inf
+        first[g] = -1
+        ph[g] = -1
+        edge[g] = False
+    for i in range(ny):
+        shift = 0.5 * step if (hex_grid and i % 2 == 1) else 0.0
+        y = i * row_spacing
+        for j in range(nx):
+            p = i * nx + j
+            g = labels[p]
+            if g < 0:
+                continue
+            x = j * step + shift
+            sums[g, 0] += 1.0
+            sums[g, 1] += x
+            sums[g, 2] += y
+            sums[g, 3] += x * x
+            sums[g, 4] += x * y
+            sums[g, 5] += y * y
+            if valid[p]:
+                sums[g, 6] += 1.0
+                if first[g] < 0:
+                    first[g] = p
+                    ph[g] = phase[p]
+            if x < bbox[g, 0]:
+                bbox[g, 0] = x
+            if x > bbox[g, 1]:
+                bbox[g, 1] = x
+            if y < bbox[g, 2]:
+                bbox[g, 2] = y
+            if y > bbox[g, 3]:
+                bbox[g, 3] = y
+            if i == 0 or j == 0 or i == ny - 1 or j == nx - 1:
+                edge[g] = True
+
+
+@nb.njit(cache=True)
+def kam_sums(a, b, angle, labels, threshold, sums, counts):
+    """Accumulate, per point, the angles of its pairs inside one grain and below ``threshold``."""
+    for k in range(a.shape[0]):
+        ang = angle[k]
+        if not ang < threshold:
+            continue
+        p = a[k]
+        r = b[k]
+        if labels[p] < 0 or labels[p] != labels[r]:
+            continue
+        sums[p] += ang
+        sums[r] += ang
+        counts[p] += 1
+        counts[r] += 1
+
+
+# ----------------------------------------------------------------------------- boundary chains
+@nb.njit(cache=True, parallel=True)
+def chain_edges(bstart, ev0, ev1, inc_v, inc_e, order, first_of_chain, start_v, end_v):
+    """Order the edges of every boundary into chains (polylines) through shared vertices.
+
+    Edges of boundary k occupy ``[bstart[k], bstart[k+1])`` with end vertices ``ev0``/``ev1``.
+    ``inc_v``/``inc_e`` list the 2 incidences (vertex, edge) per edge, sorted by boundary then
+    vertex, so boundary k owns incidences ``[2*bstart[k], 2*bstart[k+1])``. Chains start at
+    vertices of odd degree (ends of open lines), then any edge left (closed loops).
+    Writes the edge order into ``order``, flags the first edge of each chain, and stores each
+    chain's start vertex and end vertex at the position of its first edge.
+    """
+    nb_ = bstart.shape[0] - 1
+    m = ev0.shape[0]
+    used = np.zeros(m, dtype=np.bool_)
+    for k in nb.prange(nb_):
+        s = 2 * bstart[k]
+        e = 2 * bstart[k + 1]
+        verts = inc_v[s:e]
+        pos = bstart[k]
+        for phase_ in range(2):
+            u = s
+            while u < e:
+                # run of incidences at one vertex
+                w = u
+                while w < e and inc_v[w] == inc_v[u]:
+                    w += 1
+                deg = w - u
+                if phase_ == 1 or deg % 2 == 1:
+                    for t in range(u, w):
+                        e0 = inc_e[t]
+                        if used[e0]:
+                            continue
+                        v = inc_v[u]
+                        first_of_chain[pos] = True
+                        start_v[pos] = v
+                        head = pos
+                        cur = e0
+                        while True:
+                            used[cur] = True
+                            order[pos] = cur
+                            pos += 1
+                            v = ev1[cur] if ev0[cur] == v else ev0[cur]
+                            lo = np.searchsorted(verts, v)
+                            nxt = -1
+                            q = s + lo
+                            while q < e and inc_v[q] == v:
+                                if not used[inc_e[q]]:
+                                    nxt = inc_e[q]
+                                    break
+                                q += 1
+                            if nxt < 0:
+                                break
+                            cur = nxt
+                        end_v[head] = v
+                u = w

@@ -1,0 +1,1015 @@
+"""Grains and grain boundaries of an orientation map, as a graph.
+
+:func:`build_grain_graph` turns an :class:`~slipnet.maps.OrientationMap` into a :class:`GrainGraph`:
+a label image, a grain table, a boundary table, a triple-junction table and a networkx graph with
+one node per grain and one edge per boundary (attributes are plain numbers and strings, so the
+graph exports to GraphML).
+
+Method
+------
+1. Neighbour pairs are listed from an explicit offset table (square grid: 2 forward offsets;
+   hexagonal grid: 3 forward offsets that depend on the row parity, odd rows shifted +step/2).
+2. The cubic disorientation of every pair is computed in one numba kernel call (float32, degrees).
+3. Union–find joins pairs below ``threshold_deg``; points of different phases never join, and
+   unindexed / below-quality points take part in nothing (label −1).
+4. Optional clean-up, each step logged (python ``logging`` and :attr:`GrainGraph.log`):
+   grains smaller than ``min_grain_size`` points (or ``min_grain_area_um2``) merge into the
+   same-phase neighbour with which they share the longest boundary; then, if
+   ``fill_unindexed``, unlabelled points take the majority label of their labelled neighbours,
+   sweep by sweep.
+5. Grain mean orientations: every point is brought to the cubic equivalent nearest a reference
+   (first the grain's first point, then the first mean), and the principal eigenvector of
+   Σ q qᵀ is taken (Markley, Cheng, Crassidis & Oshman 2007, J. Guid. Control Dyn. 30:1193,
+   doi:10.2514/1.28949).
+6. Boundaries: one per adjacent grain pair. Length from shared point edges (square: ``step`` per
+   4-neighbour pair; hexagonal: ``step/√3`` per 6-neighbour pair, the side of the hexagonal cell).
+   Misorientation angle and axis from the two mean orientations. Geometry: the shared cell edges
+   are chained through their common vertices into polylines whose points are the chain's start
+   vertex, the midpoints of its edges in order, and its end vertex (µm). The trace direction is
+   the principal axis of the second moment of the boundary's edge segments.
+
+Boundary classes (:data:`BOUNDARY_CLASSES`), in order of precedence:
+
+* ``"phase_boundary"``: the two grains belong to different phases;
+* ``"subgrain"``: misorientation below ``subgrain_deg`` (only when it is given; such grain–grain
+  boundaries are rare, because sub-grain boundaries normally lie *inside* grains: those are kept
+  apart, in :attr:`GrainGraph.subgrain_labels` and :attr:`GrainGraph.subgrain_boundaries`);
+* ``"low_angle"``: below 15° (common practice; low-angle takes precedence over CSL, i.e. Σ1);
+* ``"sigma3"`` … ``"sigma29b"``: coincidence-site-lattice boundaries by the Brandon (1966, Acta
+  Metall. 14:1479) criterion: the disorientation between the boundary misorientation and the CSL
+  rotation, searched over all symmetric equivalents, is at most 15°·Σ^(−1/2); if several match,
+  the lowest Σ wins;
+* ``"high_angle"``: everything else.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import os
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+
+from . import _grain_kernels as _k
+from ._checks import check_positive, check_range
+from ._files import atomic_path
+from .errors import ParameterError
+from .maps import OrientationMap
+from .orientation import (
+    CUBIC_OPERATORS,
+    disorientation,
+    disorientation_angle,
+    euler_from_quat,
+    misorientation,
+    quat_from_axis_angle,
+    quat_multiply,
+    random_quats,
+)
+
+__all__ = [
+    "BOUNDARY_CLASSES",
+    "CSL_TABLE",
+    "EDGE_KEYS",
+    "LOW_ANGLE_DEG",
+    "MAX_THRESHOLD_DEG",
+    "NODE_KEYS",
+    "GrainGraph",
+    "build_grain_graph",
+    "csl_rotations",
+    "mackenzie_cdf",
+    "mackenzie_density",
+    "write_grain_outputs",
+]
+
+logger = logging.getLogger(__name__)
+
+#: Largest cubic disorientation is 62.8° (Mackenzie 1958); a threshold at or above it joins everything.
+MAX_THRESHOLD_DEG = 62.8
+#: Low-angle / high-angle limit, degrees (common practice).
+LOW_ANGLE_DEG = 15.0
+
+#: Coincidence site lattice rotations for cubic lattices: (class, Σ, axis ⟨hkl⟩, m, n), with the
+#: rotation angle θ = 2·atan(n·√(h²+k²+l²)/m) and Σ = (m² + n²(h²+k²+l²)) / 2^k odd
+#: (Ranganathan 1966, Acta Cryst. 21:197; angles as tabulated by Grimmer, Bollmann & Warrington
+#: 1974, Acta Cryst. A30:197).
+CSL_TABLE: tuple[tuple[str, int, tuple[int, int, int], int, int], ...] = (
+    ("sigma3", 3, (1, 1, 1), 3, 1),
+    ("sigma5", 5, (1, 0, 0), 3, 1),
+    ("sigma7", 7, (1, 1, 1), 5, 1),
+    ("sigma9", 9, (1, 1, 0), 4, 1),
+    ("sigma11", 11, (1, 1, 0), 3, 1),
+    ("sigma13a", 13, (1, 0, 0), 5, 1),
+    ("sigma13b", 13, (1, 1, 1), 7, 1),
+    ("sigma15", 15, (2, 1, 0), 5, 1),
+    ("sigma17a", 17, (1, 0, 0), 4, 1),
+    ("sigma17b", 17, (2, 2, 1), 5, 1),
+    ("sigma19a", 19, (1, 1, 0), 6, 1),
+    ("sigma19b", 19, (1, 1, 1), 4, 1),
+    ("sigma21a", 21, (1, 1, 1), 9, 1),
+    ("sigma21b", 21, (2, 1, 1), 6, 1),
+    ("sigma23", 23, (3, 1, 1), 9, 1),
+    ("sigma25a", 25, (1, 0, 0), 7, 1),
+    ("sigma25b", 25, (3, 3, 1), 9, 1),
+    ("sigma27a", 27, (1, 1, 0), 5, 1),
+    ("sigma27b", 27, (2, 1, 0), 7, 1),
+    ("sigma29a", 29, (1, 0, 0), 5, 2),
+    ("sigma29b", 29, (2, 2, 1), 7, 1),
+)
+
+#: Every value the ``boundary_class`` column / edge attribute can take.
+BOUNDARY_CLASSES: tuple[str, ...] = (
+    "phase_boundary", "subgrain", "low_angle", *(row[0] for row in CSL_TABLE), "high_angle",
+)
+
+#: Graph node attribute keys (plain numbers / strings / bools).
+NODE_KEYS: tuple[str, ...] = (
+    "phase", "n_points", "area_um2", "ecd_um", "centroid_x_um", "centroid_y_um",
+    "mean_qw", "mean_qx", "mean_qy", "mean_qz", "gos_deg", "touches_edge",
+)
+#: Graph edge attribute keys.
+EDGE_KEYS: tuple[str, ...] = (
+    "boundary_id", "length_um", "misorientation_deg", "axis_h", "axis_k", "axis_l",
+    "boundary_class", "trace_angle_deg",
+)
+
+
+
+# ============================================================================ CSL and Mackenzie
+def csl_rotations() -> pd.DataFrame:
+    """The CSL rotations of :data:`CSL_TABLE` as a table.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``boundary_class``, ``sigma``, ``axis_h``, ``axis_k``, ``axis_l``, ``angle_deg``,
+        ``brandon_limit_deg`` (15°·Σ^(−1/2)), ``qw``, ``qx``, ``qy``, ``qz``.
+    """
+    rows = []
+    for name, sigma, axis, m, n in CSL_TABLE:
+        angle = math.degrees(2.0 * math.atan(n * math.sqrt(sum(h * h for h in axis)) / m))
+        q = quat_from_axis_angle(axis, angle)
+        rows.append((name, sigma, *axis, angle, 15.0 / math.sqrt(sigma), *q))
+    return pd.DataFrame(rows, columns=["boundary_class", "sigma", "axis_h", "axis_k", "axis_l", "angle_deg",
+                                       "brandon_limit_deg", "qw", "qx", "qy", "qz"])
+
+
+@lru_cache(maxsize=2)
+def _mackenzie_sample(n_pairs: int, seed: int) -> np.ndarray:
+    a = random_quats(n_pairs, seed=seed)
+    b = random_quats(n_pairs, seed=seed + 1)
+    out = np.sort(disorientation_angle(a, b))
+    out.setflags(write=False)
+    return out
+
+
+def mackenzie_cdf(angle_deg, *, n_pairs: int = 1_000_000, seed: int = 0) -> np.ndarray:
+    """Cumulative Mackenzie (1958) distribution of random cubic disorientations, computed numerically.
+
+    Parameters
+    ----------
+    angle_deg : array_like
+        Angles in degrees.
+    n_pairs, seed
+        Number of uniformly random orientation pairs drawn (seeded) to build the curve.
+
+    Returns
+    -------
+    ndarray
+        P(disorientation ≤ angle), same shape as ``angle_deg``.
+    """
+    s = _mackenzie_sample(int(n_pairs), int(seed))
+    return np.searchsorted(s, np.asarray(angle_deg, dtype=np.float64), side="right") / s.size
+
+
+def mackenzie_density(edges_deg, *, n_pairs: int = 1_000_000, seed: int = 0) -> np.ndarray:
+    """Mackenzie (1958) probability density per degree in each bin of ``edges_deg`` (k+1 edges → k values)."""
+    e = np.asarray(edges_deg, dtype=np.float64)
+    return np.diff(mackenzie_cdf(e, n_pairs=n_pairs, seed=seed)) / np.diff(e)
+
+
+# ============================================================================ container
+class _Polylines(Mapping):
+    """Read-only ``{boundary_id: [(k, 2) µm arrays]}`` built on access from flat chain arrays."""
+
+    def __init__(self, xy: np.ndarray, chain_offsets: np.ndarray, boundary_chains: np.ndarray) -> None:
+        self._xy = xy
+        self._off = chain_offsets
+        self._bc = boundary_chains
+
+    def __getitem__(self, key: int) -> list[np.ndarray]:
+        k = int(key)
+        if not 0 <= k < self._bc.size - 1:
+            raise KeyError(key)
+        return [self._xy[self._off[c]:self._off[c + 1]] for c in range(self._bc[k], self._bc[k + 1])]
+
+    def __iter__(self) -> Iterator[int]:
+        return iter(range(self._bc.size - 1))
+
+    def __len__(self) -> int:
+        return self._bc.size - 1
+
+
+@dataclass(eq=False)
+class GrainGraph:
+    """Grains, boundaries and their adjacency graph for one orientation map.
+
+    Attributes
+    ----------
+    omap : OrientationMap
+        The map the grains were built from.
+    labels : (ny, nx) int64 ndarray
+        Grain id per point (0..n_grains−1, numbered in raster order of each grain's first point);
+        −1 where no grain (unindexed, below quality and not filled).
+    graph : networkx.Graph
+        One node per grain id with attributes :data:`NODE_KEYS`; one edge per boundary with
+        attributes :data:`EDGE_KEYS` (``boundary_class`` one of :data:`BOUNDARY_CLASSES`,
+        ``trace_angle_deg`` in [0, 180) from +x towards +y).
+    grains : DataFrame
+        One row per grain (column ``grain`` = id); units in the column names.
+    boundaries : DataFrame
+        One row per adjacent grain pair (``boundary_id``, ``grain_a`` < ``grain_b``, ...).
+    triple_junctions : DataFrame
+        Cell vertices where three or more grains meet: ``junction_id``, ``x_um``, ``y_um``,
+        ``n_grains``, ``grain_1`` … ``grain_4`` (−1 where fewer grains).
+    mean_quats : (n_grains, 4) ndarray
+        Mean orientation of each grain (w ≥ 0).
+    boundary_polylines : Mapping[int, list of (k, 2) ndarray]
+        µm polylines of each boundary (start vertex, edge midpoints in order, end vertex; a closed
+        loop repeats its first vertex at the end).
+    kam_deg : (ny, nx) float32 ndarray
+        Kernel average misorientation: mean disorientation to first neighbours in the same grain
+        with disorientation below the threshold; NaN where no such neighbour.
+    misorientation_to_mean_deg : (ny, nx) float32 ndarray
+        Disorientation of each point to its grain's mean orientation; NaN where no orientation.
+    subgrain_labels : (ny, nx) int64 ndarray or None
+        Sub-grain id per point when ``subgrain_deg`` was given (components joined below it).
+    subgrain_boundaries : DataFrame or None
+        ``subgrain_a``, ``subgrain_b``, ``grain``, ``length_um``, ``misorientation_deg``.
+    settings : dict
+        The parameters used.
+    log : list of str
+        One line per reconstruction and clean-up step.
+    """
+
+    omap: OrientationMap
+    labels: np.ndarray
+    graph: nx.Graph
+    grains: pd.DataFrame
+    boundaries: pd.DataFrame
+    triple_junctions: pd.DataFrame
+    mean_quats: np.ndarray
+    boundary_polylines: Mapping
+    kam_deg: np.ndarray
+    misorientation_to_mean_deg: np.ndarray
+    subgrain_labels: np.ndarray | None = None
+    subgrain_boundaries: pd.DataFrame | None = None
+    settings: dict = field(default_factory=dict)
+    log: list[str] = field(default_factory=list)
+
+    # ------------------------------------------------------------------ queries
+    @property
+    def n_grains(self) -> int:
+        """Number of grains."""
+        return int(self.mean_quats.shape[0])
+
+    def _check_grain(self, g, name: str = "grain") -> int:
+        try:
+            gi = int(g)
+        except (TypeError, ValueError) as err:
+            raise ParameterError(f"{name} should be a grain id (int); got {g!r}") from err
+        if not 0 <= gi < self.n_grains:
+            raise ParameterError(f"{name} should be a grain id in 0..{self.n_grains - 1}; got {g!r}")
+        return gi
+
+    def grain_at(self, x, y):
+        """Grain id at position ``(x, y)`` µm (nearest grid point); −1 outside the map or where no grain.
+
+        Scalars give an ``int``; arrays give an int64 array of the broadcast shape.
+        """
+        xa, ya = np.broadcast_arrays(np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64))
+        i, j = self.omap.index_of(xa, ya)
+        inside = i >= 0
+        out = np.where(inside, self.labels[np.where(inside, i, 0), np.where(inside, j, 0)], -1)
+        if out.ndim == 0:
+            return int(out)
+        return out.astype(np.int64)
+
+    def neighbours(self, g: int) -> list[int]:
+        """Ids of the grains sharing a boundary with grain ``g``, ascending."""
+        gi = self._check_grain(g)
+        return sorted(int(v) for v in self.graph.neighbors(gi))
+
+    def boundary(self, a: int, b: int) -> dict:
+        """The boundary between grains ``a`` and ``b`` as a dict.
+
+        Holds every column of :attr:`boundaries` for that row plus ``polylines`` (list of (k, 2)
+        µm arrays) and ``triple_junctions`` ((t, 2) µm array of junctions on it).
+
+        Raises
+        ------
+        ParameterError
+            If the grains are not adjacent.
+        """
+        ai, bi = self._check_grain(a, "a"), self._check_grain(b, "b")
+        if not self.graph.has_edge(ai, bi):
+            raise ParameterError(f"grains {ai} and {bi} share no boundary; neighbours of {ai}: {self.neighbours(ai)}")
+        bid = int(self.graph.edges[ai, bi]["boundary_id"])
+        row = {k: (v.item() if hasattr(v, "item") else v) for k, v in self.boundaries.iloc[bid].items()}
+        row["polylines"] = self.boundary_polylines[bid]
+        tj = self.triple_junctions
+        cols = tj[["grain_1", "grain_2", "grain_3", "grain_4"]].to_numpy()
+        on = (cols == ai).any(axis=1) & (cols == bi).any(axis=1)
+        row["triple_junctions"] = tj.loc[on, ["x_um", "y_um"]].to_numpy()
+        return row
+
+    def grains_on_segment(self, p0, p1) -> list[tuple[int, float, float]]:
+        """Grains crossed by the straight segment from ``p0`` to ``p1`` (µm), in order.
+
+        The segment is sampled at spacing ≤ step/2 through the label image; a boundary is placed
+        halfway between the last sample of one grain and the first of the next.
+
+        Returns
+        -------
+        list of (grain, s_enter_um, s_leave_um)
+            Distances along the segment from ``p0``; stretches with no grain are skipped.
+        """
+        a = np.asarray(p0, dtype=np.float64).reshape(-1)
+        b = np.asarray(p1, dtype=np.float64).reshape(-1)
+        if a.size != 2 or b.size != 2 or not (np.all(np.isfinite(a)) and np.all(np.isfinite(b))):
+            raise ParameterError(f"p0 and p1 should be finite (x, y) points in µm; got {p0!r}, {p1!r}")
+        length = float(np.hypot(*(b - a)))
+        n = max(2, math.ceil(length / (0.5 * self.omap.step)) + 1)
+        t = np.linspace(0.0, length, n)
+        u = (b - a) / length if length > 0 else np.zeros(2)
+        labs = self.grain_at(a[0] + t * u[0], a[1] + t * u[1])
+        starts = np.concatenate(([0], np.flatnonzero(labs[1:] != labs[:-1]) + 1))
+        ends = np.concatenate((starts[1:] - 1, [n - 1]))
+        s_in = np.where(starts == 0, 0.0, 0.5 * (t[starts] + t[np.maximum(starts - 1, 0)]))
+        s_out = np.where(ends == n - 1, length, 0.5 * (t[ends] + t[np.minimum(ends + 1, n - 1)]))
+        g = labs[starts]
+        keep = g >= 0
+        return [(int(gg), float(si), float(so)) for gg, si, so in zip(g[keep], s_in[keep], s_out[keep], strict=True)]
+
+    def grains_within(self, x: float, y: float, r_um: float) -> list[int]:
+        """Ids of grains with at least one point within ``r_um`` of ``(x, y)`` µm, ascending."""
+        r = check_positive(r_um, "r_um", allow_zero=True)
+        om = self.omap
+        x0, y0 = om.origin
+        ny, nx_ = om.shape
+        i0 = max(0, math.floor((float(y) - r - y0) / om.row_spacing) - 1)
+        i1 = min(ny, math.ceil((float(y) + r - y0) / om.row_spacing) + 2)
+        j0 = max(0, math.floor((float(x) - r - x0) / om.step) - 1)
+        j1 = min(nx_, math.ceil((float(x) + r - x0) / om.step) + 2)
+        if i0 >= i1 or j0 >= j1:
+            return []
+        ii, jj = np.mgrid[i0:i1, j0:j1]
+        px = x0 + jj * om.step + (0.5 * om.step * (ii % 2) if om.grid == "hex" else 0.0)
+        py = y0 + ii * om.row_spacing
+        near = (px - float(x)) ** 2 + (py - float(y)) ** 2 <= r * r
+        labs = self.labels[i0:i1, j0:j1][near]
+        return [int(v) for v in np.unique(labs[labs >= 0])]
+
+    # ------------------------------------------------------------------ export
+    def write_graphml(self, path: str | os.PathLike) -> Path:
+        """Write :attr:`graph` as GraphML (atomically); returns the path."""
+        path = Path(path)
+        with atomic_path(path) as tmp:
+            nx.write_graphml(self.graph, tmp)
+        return path
+
+    def write_labels(self, path: str | os.PathLike) -> Path:
+        """Write the label image as a NumPy ``.npy`` file (atomically); returns the path."""
+        path = Path(path)
+        with atomic_path(path) as tmp, open(tmp, "wb") as fh:
+            np.save(fh, self.labels)
+        return path
+
+    def write_tables(self, folder: str | os.PathLike) -> dict[str, Path]:
+        """Write the grain, boundary, triple-junction (and sub-grain boundary) tables as CSV."""
+        from .report import write_table
+
+        folder = Path(folder)
+        out = {
+            "grains": write_table(self.grains, folder / "grains.csv"),
+            "boundaries": write_table(self.boundaries, folder / "boundaries.csv"),
+            "triple_junctions": write_table(self.triple_junctions, folder / "triple_junctions.csv"),
+        }
+        if self.subgrain_boundaries is not None:
+            out["subgrain_boundaries"] = write_table(self.subgrain_boundaries, folder / "subgrain_boundaries.csv")
+        return out
+
+
+# ============================================================================ building blocks
+def _neighbour_pairs(shape: tuple[int, int], grid: str) -> tuple[np.ndarray, np.ndarray]:
+    """Forward neighbour pairs as flat int32 index arrays ``(a, b)``, row-major order."""
+    ny, nx_ = shape
+    offsets = _k.FORWARD_OFFSETS[grid]
+    counts = _k.row_pair_counts(ny, nx_, offsets)
+    start = np.zeros(ny + 1, dtype=np.int64)
+    np.cumsum(counts, out=start[1:])
+    a = np.empty(int(start[-1]), dtype=np.int32)
+    b = np.empty(int(start[-1]), dtype=np.int32)
+    _k.fill_pairs(ny, nx_, offsets, start[:-1], a, b)
+    return a, b
+
+
+def _compact(labels: np.ndarray) -> tuple[np.ndarray, int]:
+    out = np.empty(labels.shape[0], dtype=np.int32)
+    n = _k.compact_labels(labels, labels >= 0, out)
+    return out, int(n)
+
+
+def _mean_orientations(qflat: np.ndarray, valid: np.ndarray, labels: np.ndarray, n: int,
+                       ref: np.ndarray, only: np.ndarray | None = None) -> np.ndarray:
+    """Symmetry-aware mean quaternion per label (Markley et al. 2007).
+
+    Each point is replaced by its cubic equivalent nearest ``ref[label]`` and the ten distinct
+    terms of Σ q qᵀ are accumulated, in one kernel pass over the points (no temporary copy of
+    the quaternions); the eigenvector of the largest eigenvalue of each 4×4 matrix (batched
+    ``eigh``) is the mean. ``only`` (n,) bool restricts the work to some labels (the others
+    come back as ``ref``).
+    """
+    sel = np.ones(n, dtype=np.bool_) if only is None else only
+    acc = np.zeros((n, 10))
+    _k.quat_moment_sums(qflat, valid, labels, np.ascontiguousarray(ref), sel, CUBIC_OPERATORS, acc)
+    iu = np.triu_indices(4)
+    mat = np.zeros((n, 4, 4))
+    mat[:, iu[0], iu[1]] = acc
+    mat[:, iu[1], iu[0]] = acc
+    _, vec = np.linalg.eigh(mat)
+    mean = vec[:, :, -1]
+    mean /= np.linalg.norm(mean, axis=1, keepdims=True)
+    mean[~sel] = ref[~sel]
+    return np.where(mean[:, :1] < 0, -mean, mean)
+
+
+def _grain_means(qflat, valid, labels, n, first):
+    ref = qflat[np.maximum(first, 0)]
+    mean = _mean_orientations(qflat, valid, labels, n, ref)
+    # second pass, with the first mean as reference, for grains whose first point lay far from
+    # the mean (an outlier reference could pick the wrong symmetric copy of distant points)
+    redo = disorientation_angle(ref, mean) > 5.0
+    if redo.any():
+        mean = _mean_orientations(qflat, valid, labels, n, mean, only=redo)
+    return mean
+
+
+def _merge_small(labels: np.ndarray, a: np.ndarray, b: np.ndarray, phase_flat: np.ndarray, min_points: int,
+                 log) -> np.ndarray:
+    """Merge grains with fewer than ``min_points`` points into the same-phase neighbour with the longest
+    shared boundary, pass after pass until none is left (or none can merge). Works on root labels."""
+    n = labels.size
+    la, lb = labels[a], labels[b]
+    sel = (la != lb) & (la >= 0) & (lb >= 0)
+    ea, eb = a[sel], b[sel]
+    del la, lb, sel
+    lab_phase = np.full(n, -1, dtype=np.int32)
+    lab_phase[labels[labels >= 0]] = phase_flat[labels >= 0]
+    merged_total = 0
+    passes = 0
+    for passes in range(1, 101):  # noqa: B007 - the count is logged
+        sizes = np.bincount(labels[labels >= 0], minlength=n)
+        small = (sizes > 0) & (sizes < min_points)
+        if not small.any():
+            passes -= 1
+            break
+        la, lb = labels[ea], labels[eb]
+        keep = la != lb
+        ea, eb, la, lb = ea[keep], eb[keep], la[keep], lb[keep]
+        src = np.concatenate((la, lb)).astype(np.int64)
+        dst = np.concatenate((lb, la)).astype(np.int64)
+        ok = small[src] & (lab_phase[src] == lab_phase[dst])
+        src, dst = src[ok], dst[ok]
+        if src.size == 0:
+            break
+        key, cnt = np.unique(src * n + dst, return_counts=True)
+        s, d = key // n, key % n
+        # longest shared boundary first; ties: the larger neighbour, then the smaller id
+        order = np.lexsort((d, -sizes[d], -cnt, s))
+        s, d = s[order], d[order]
+        first = np.concatenate(([True], s[1:] != s[:-1]))
+        s, d = s[first], d[first]
+        parent = np.arange(n, dtype=np.int32)
+        _k.union_pairs(parent, s.astype(np.int32), d.astype(np.int32), np.ones(s.size, dtype=np.bool_))
+        m = labels >= 0
+        labels[m] = parent[labels[m]]
+        merged_total += int(s.size)
+    left = int(((np.bincount(labels[labels >= 0], minlength=n) > 0)
+                & (np.bincount(labels[labels >= 0], minlength=n) < min_points)).sum())
+    log(f"merged {merged_total} grains smaller than {min_points} points into their neighbour with the longest "
+        f"shared boundary ({passes} passes); {left} small grains left without a same-phase neighbour")
+    return labels
+
+
+def _edge_geometry(ea: np.ndarray, eb: np.ndarray, omap: OrientationMap):
+    """Midpoints, unit directions and integer vertex ids of the cell edges shared by point pairs."""
+    nx_ = omap.shape[1]
+    step, rs = omap.step, omap.row_spacing
+    hexg = omap.grid == "hex"
+
+    def xy(idx):
+        i, j = np.divmod(idx.astype(np.int64), nx_)
+        x = j * step + (0.5 * step * (i % 2) if hexg else 0.0)
+        return x, i * rs
+
+    xa, ya = xy(ea)
+    xb, yb = xy(eb)
+    mx, my = 0.5 * (xa + xb), 0.5 * (ya + yb)
+    dx, dy = xb - xa, yb - ya
+    norm = np.hypot(dx, dy)
+    tx, ty = -dy / norm, dx / norm  # edge direction: perpendicular to the pair
+    half = 0.5 * step / (math.sqrt(3.0) if hexg else 1.0)
+    # vertices sit on a lattice: x in multiples of step/2; y in multiples of step/2 (square) or rs/3 (hex)
+    ys, off = (3.0 / rs, 3) if hexg else (2.0 / step, 2)
+    width = 2 * nx_ + 8
+
+    def vid(vx, vy):
+        return (np.rint(vy * ys).astype(np.int64) + off) * width + (np.rint(vx * 2.0 / step).astype(np.int64) + 2)
+
+    v0 = vid(mx + half * tx, my + half * ty)
+    v1 = vid(mx - half * tx, my - half * ty)
+
+    def vxy(v):
+        r, c = np.divmod(v, width)
+        return (c - 2) * (0.5 * step), (r - off) / ys
+
+    return mx, my, tx, ty, v0, v1, vxy, 2.0 * half
+
+
+def _classify(angle: np.ndarray, dq: np.ndarray, same_phase: np.ndarray, subgrain_deg: float | None):
+    table = csl_rotations()
+    cq = table[["qw", "qx", "qy", "qz"]].to_numpy()
+    equiv = np.ascontiguousarray(quat_multiply(cq[:, None, :], CUBIC_OPERATORS[None, :, :]))
+    dev = np.empty((dq.shape[0], len(table)))
+    if dq.shape[0]:
+        _k.csl_deviation(np.ascontiguousarray(dq), np.ascontiguousarray(angle, dtype=np.float64), equiv,
+                         table["angle_deg"].to_numpy(), table["brandon_limit_deg"].to_numpy(), dev)
+    match = dev <= table["brandon_limit_deg"].to_numpy()[None, :]
+    first = np.argmax(match, axis=1)
+    anym = match.any(axis=1)
+    names = table["boundary_class"].to_numpy(dtype=object)
+    cls = np.where(angle < LOW_ANGLE_DEG, "low_angle", "high_angle").astype(object)
+    csl = anym & (angle >= LOW_ANGLE_DEG)
+    cls[csl] = names[first[csl]]
+    deviation = np.where(csl, dev[np.arange(dev.shape[0]), first], np.nan)
+    if subgrain_deg is not None:
+        cls[angle < subgrain_deg] = "subgrain"
+    cls[~same_phase] = "phase_boundary"
+    deviation[~same_phase] = np.nan
+    return cls, deviation
+
+
+class _Steps:
+    """Progress bar over named steps (tqdm), silent unless asked."""
+
+    def __init__(self, total: int, enabled: bool) -> None:
+        self.bar = None
+        if enabled:
+            from tqdm.auto import tqdm
+
+            self.bar = tqdm(total=total, desc="grains", unit="step", leave=False)
+
+    def __call__(self, name: str) -> None:
+        if self.bar is not None:
+            self.bar.set_postfix_str(name)
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+# ============================================================================ public entry
+def build_grain_graph(
+    omap: OrientationMap,
+    threshold_deg: float = 15.0,
+    *,
+    subgrain_deg: float | None = None,
+    min_quality: float | None = None,
+    fill_unindexed: bool = False,
+    min_grain_size: int | None = None,
+    min_grain_area_um2: float | None = None,
+    fill_sweeps: int | None = None,
+    progress: bool = False,
+) -> GrainGraph:
+    """Reconstruct grains and boundaries of an orientation map as a graph.
+
+    Parameters
+    ----------
+    omap
+        The orientation map (square or hexagonal grid, cubic phases).
+    threshold_deg
+        Neighbouring points join one grain when their cubic disorientation is below this,
+        degrees, in (0, 62.8).
+    subgrain_deg
+        Optional lower threshold in (0, threshold_deg): sub-grains inside each grain are the
+        components joined below it (:attr:`GrainGraph.subgrain_labels`,
+        :attr:`GrainGraph.subgrain_boundaries`).
+    min_quality
+        Points with quality below this are left out like unindexed points.
+    fill_unindexed
+        Give unlabelled points the majority label of their labelled neighbours, sweep by sweep
+        (after the small-grain merge). Filled points count towards areas and boundaries, never
+        towards orientation statistics.
+    min_grain_size
+        Grains with fewer points merge into the same-phase neighbour with the longest shared
+        boundary.
+    min_grain_area_um2
+        The same limit as an area in µm² (converted to points with the point area; the larger
+        of the two limits applies).
+    fill_sweeps
+        Largest number of fill sweeps (default: until nothing changes).
+    progress
+        Show a progress bar over the steps.
+
+    Returns
+    -------
+    GrainGraph
+
+    Raises
+    ------
+    ParameterError
+        Threshold out of range, no usable point, or a malformed option.
+
+    Notes
+    -----
+    Memory is dominated by the neighbour-pair arrays: 12 bytes per pair (two int32 indices and a
+    float32 angle), 2 pairs per point on square grids and 3 on hexagonal ones. Union–find is
+    near-linear in the number of pairs.
+    """
+    if not isinstance(omap, OrientationMap):
+        raise ParameterError(f"omap should be an OrientationMap; got {type(omap).__name__}")
+    thr = check_range(threshold_deg, "threshold_deg", 0.0, MAX_THRESHOLD_DEG, inclusive=False)
+    sub = None
+    if subgrain_deg is not None:
+        sub = check_range(subgrain_deg, "subgrain_deg", 0.0, thr, inclusive=False)
+    min_points = 0
+    if min_grain_size is not None:
+        if isinstance(min_grain_size, bool) or int(min_grain_size) != min_grain_size or min_grain_size < 1:
+            raise ParameterError(f"min_grain_size should be a whole number of points >= 1; got {min_grain_size!r}")
+        min_points = int(min_grain_size)
+    if min_grain_area_um2 is not None:
+        area = check_positive(min_grain_area_um2, "min_grain_area_um2")
+        min_points = max(min_points, math.ceil(area / omap.point_area - 1e-9))
+    max_sweeps = 1 << 30
+    if fill_sweeps is not None:
+        if int(fill_sweeps) != fill_sweeps or fill_sweeps < 1:
+            raise ParameterError(f"fill_sweeps should be a whole number >= 1; got {fill_sweeps!r}")
+        max_sweeps = int(fill_sweeps)
+
+    log_lines: list[str] = []
+
+    def log(msg: str) -> None:
+        logger.info(msg)
+        log_lines.append(msg)
+
+    ny, nx_ = omap.shape
+    npts = ny * nx_
+    valid = omap.indexed.reshape(-1)
+    if not valid.any():
+        raise ParameterError(f"the map {omap.name!r} has no indexed point (all {npts} unindexed); nothing to build")
+    if min_quality is not None:
+        mq = float(min_quality)
+        if not math.isfinite(mq):
+            raise ParameterError(f"min_quality should be a finite number; got {min_quality!r}")
+        valid = valid & (omap.quality.reshape(-1) >= mq)
+        if not valid.any():
+            raise ParameterError(
+                f"min_quality={min_quality!r} leaves no point; the map's quality ranges "
+                f"{float(omap.quality.min()):g}..{float(omap.quality.max()):g}"
+            )
+        log(f"left out {int(omap.indexed.sum() - valid.sum())} indexed points with quality below {mq:g}")
+    log(f"{int(valid.sum())} of {npts} points carry an orientation ({omap.grid} grid {ny}x{nx_}, step {omap.step:g} µm)")
+
+    steps = _Steps(8, progress)
+    qflat = omap.quats.reshape(-1, 4)
+    phase_flat = omap.phase.reshape(-1)
+
+    # 1-2. neighbour pairs and their disorientations
+    a, b = _neighbour_pairs((ny, nx_), omap.grid)
+    ang = np.empty(a.size, dtype=np.float32)
+    _k.pair_disorientation(qflat, valid, phase_flat, a, b, ang)
+    steps("pairs")
+
+    # 3. union-find below the threshold
+    parent = np.arange(npts, dtype=np.int32)
+    _k.union_below(parent, a, b, ang, np.float32(thr))
+    labels = np.where(valid, parent, -1).astype(np.int32)
+    del parent
+    n_raw = int(np.count_nonzero(labels == np.arange(npts, dtype=np.int32)))
+    log(f"union-find below {thr:g}°: {n_raw} grains")
+    steps("union-find")
+
+    # 4. clean-up
+    if min_points > 1:
+        labels = _merge_small(labels, a, b, phase_flat, min_points, log)
+    if fill_unindexed:
+        n_fill, sweeps = _k.fill_majority(labels, ny, nx_, _k.ALL_OFFSETS[omap.grid], max_sweeps)
+        log(f"filled {int(n_fill)} unlabelled points from the majority of their neighbours ({int(sweeps)} sweeps)")
+    labels, n = _compact(labels)
+    log(f"{n} grains after clean-up")
+    steps("clean-up")
+
+    # 5. per-grain sums and mean orientations
+    sums = np.zeros((n, 7))
+    bbox = np.empty((n, 4))
+    first = np.empty(n, dtype=np.int64)
+    gphase = np.empty(n, dtype=np.int32)
+    edge = np.empty(n, dtype=np.bool_)
+    _k.grain_point_sums(labels, valid, phase_flat, ny, nx_, omap.step, omap.row_spacing, omap.grid == "hex", n,
+                        sums, bbox, first, gphase, edge)
+    means = _grain_means(qflat, valid, labels, n, first)
+    mis = np.empty(npts, dtype=np.float32)
+    _k.point_to_reference(qflat, valid, labels, means, mis)
+    lab_valid = np.where(valid, labels, -1)
+    ok = lab_valid >= 0
+    gos = np.bincount(lab_valid[ok], weights=mis[ok], minlength=n) / np.maximum(sums[:, 6], 1)
+    del ok
+    ksum = np.zeros(npts)
+    kcnt = np.zeros(npts, dtype=np.int32)
+    _k.kam_sums(a, b, ang, labels, np.float32(thr), ksum, kcnt)
+    kam = np.full(npts, np.nan, dtype=np.float32)
+    np.divide(ksum, kcnt, out=kam, where=kcnt > 0, casting="unsafe")
+    del ksum, kcnt
+    steps("orientations")
+
+    # 6. boundaries
+    la = labels[a]
+    lb = labels[b]
+    sel = (la != lb) & (la >= 0) & (lb >= 0)
+    ea, eb = a[sel], b[sel]
+    ga, gb = la[sel].astype(np.int64), lb[sel].astype(np.int64)
+    del la, lb, sel
+    lo, hi = np.minimum(ga, gb), np.maximum(ga, gb)
+    key = lo * max(n, 1) + hi
+    order = np.argsort(key, kind="stable")
+    key, ea, eb, ga, gb = key[order], ea[order], eb[order], ga[order], gb[order]
+    del order, lo, hi
+    # key is sorted: unique values from the positions where it changes
+    bstart_ = np.flatnonzero(np.concatenate(([True], key[1:] != key[:-1]))) if key.size else np.zeros(0, np.int64)
+    ukey = key[bstart_]
+    counts = np.diff(np.append(bstart_, key.size))
+    nbd = ukey.size
+    bstart = np.append(bstart_, key.size).astype(np.int64)
+    bid = np.repeat(np.arange(nbd), counts)
+    del key
+    grain_a, grain_b = ukey // max(n, 1), ukey % max(n, 1)
+    mx, my, tx, ty, v0, v1, vxy, edge_len = _edge_geometry(ea, eb, omap)
+    length = counts * edge_len
+    # trace: second moment of the union of edge segments = cov(midpoints) + ℓ²/12 · mean(t tᵀ)
+    w = np.maximum(counts, 1)
+    sx, sy = np.bincount(bid, mx, nbd) / w, np.bincount(bid, my, nbd) / w
+    cxx = np.bincount(bid, mx * mx, nbd) / w - sx * sx + edge_len**2 / 12 * np.bincount(bid, tx * tx, nbd) / w
+    cyy = np.bincount(bid, my * my, nbd) / w - sy * sy + edge_len**2 / 12 * np.bincount(bid, ty * ty, nbd) / w
+    cxy = np.bincount(bid, mx * my, nbd) / w - sx * sy + edge_len**2 / 12 * np.bincount(bid, tx * ty, nbd) / w
+    trace = np.degrees(0.5 * np.arctan2(2.0 * cxy, cxx - cyy)) % 180.0
+    mq_a, mq_b = means[grain_a], means[grain_b]
+    angle, axis = disorientation(mq_a, mq_b)
+    same_phase = gphase[grain_a] == gphase[grain_b]
+    bclass, deviation = _classify(angle, misorientation(mq_a, mq_b), same_phase, sub)
+    steps("boundaries")
+
+    # chains of edges → polylines
+    m_edges = ea.size
+    vmax = int(max(v0.max(initial=0), v1.max(initial=0))) + 1
+    inc_v = np.concatenate((v0, v1))
+    inc_e = np.concatenate((np.arange(m_edges), np.arange(m_edges)))
+    inc_b = np.concatenate((bid, bid))
+    o2 = np.argsort(inc_b * vmax + inc_v, kind="stable")
+    inc_v, inc_e = inc_v[o2], inc_e[o2]
+    del inc_b, o2
+    eorder = np.empty(m_edges, dtype=np.int64)
+    first_of_chain = np.zeros(m_edges, dtype=np.bool_)
+    start_v = np.zeros(m_edges, dtype=np.int64)
+    end_v = np.zeros(m_edges, dtype=np.int64)
+    if m_edges:
+        _k.chain_edges(bstart, v0, v1, inc_v, inc_e, eorder, first_of_chain, start_v, end_v)
+    del inc_v, inc_e
+    chain_id = np.cumsum(first_of_chain) - 1
+    n_chains = int(first_of_chain.sum())
+    cstart = np.flatnonzero(first_of_chain)
+    cend = np.append(cstart[1:], m_edges) - 1
+    xy = np.empty((m_edges + 2 * n_chains, 2))
+    pos_mid = np.arange(m_edges) + 2 * chain_id + 1
+    xy[pos_mid, 0] = mx[eorder]
+    xy[pos_mid, 1] = my[eorder]
+    sxv, syv = vxy(start_v[cstart])
+    exv, eyv = vxy(end_v[cstart])
+    ps = cstart + 2 * np.arange(n_chains)
+    pe = cend + 2 * np.arange(n_chains) + 2
+    xy[ps, 0], xy[ps, 1] = sxv, syv
+    xy[pe, 0], xy[pe, 1] = exv, eyv
+    xy += np.asarray(omap.origin)
+    chain_off = np.append(ps, xy.shape[0]).astype(np.int64)
+    chain_b = bid[eorder[cstart]] if n_chains else np.zeros(0, dtype=np.int64)
+    boundary_chains = np.searchsorted(chain_b, np.arange(nbd + 1)).astype(np.int64)
+    polylines = _Polylines(xy, chain_off, boundary_chains)
+    # end points: those of the longest chain of each boundary
+    clen = cend - cstart + 1
+    ordc = np.lexsort((-clen, chain_b))
+    firstc = ordc[np.concatenate(([True], chain_b[ordc][1:] != chain_b[ordc][:-1]))] if n_chains else ordc
+    ends_xy = np.column_stack((sxv[firstc], syv[firstc], exv[firstc], eyv[firstc])) + np.tile(omap.origin, 2)
+    n_chain_per_b = np.diff(boundary_chains)
+    del mx, my, tx, ty, eorder, first_of_chain, chain_id
+    steps("polylines")
+
+    # triple junctions: vertices touched by edges of >= 3 distinct grains
+    vk = np.concatenate((v0, v1, v0, v1)) * max(n, 1) + np.concatenate((ga, ga, gb, gb))
+    vk.sort()
+    vk = vk[np.concatenate(([True], vk[1:] != vk[:-1]))] if vk.size else vk
+    vv, gg = vk // max(n, 1), vk % max(n, 1)
+    del vk
+    run_start = np.concatenate(([True], vv[1:] != vv[:-1])) if vv.size else np.zeros(0, dtype=bool)
+    rs_idx = np.flatnonzero(run_start)
+    run_len = np.diff(np.append(rs_idx, vv.size))
+    jsel = run_len >= 3
+    jv = vv[rs_idx[jsel]]
+    jx, jy = vxy(jv)
+    jg = np.full((jv.size, 4), -1, dtype=np.int64)
+    for r in range(4):
+        has = run_len[jsel] > r
+        jg[has, r] = gg[rs_idx[jsel][has] + r]
+    tj = pd.DataFrame({
+        "junction_id": np.arange(jv.size), "x_um": jx + omap.origin[0], "y_um": jy + omap.origin[1],
+        "n_grains": run_len[jsel].astype(np.int64),
+        "grain_1": jg[:, 0], "grain_2": jg[:, 1], "grain_3": jg[:, 2], "grain_4": jg[:, 3],
+    })
+    del vv, gg, v0, v1
+    log(f"{nbd} boundaries, {n_chains} boundary lines, {jv.size} triple junctions")
+    steps("junctions")
+
+    # 7. tables
+    cnt = sums[:, 0]
+    cx, cy = sums[:, 1] / cnt, sums[:, 2] / cnt
+    vxx = sums[:, 3] / cnt - cx * cx
+    vxy_ = sums[:, 4] / cnt - cx * cy
+    vyy = sums[:, 5] / cnt - cy * cy
+    half_tr = 0.5 * (vxx + vyy)
+    disc = np.sqrt(np.maximum(0.25 * (vxx - vyy) ** 2 + vxy_**2, 0.0))
+    lam1, lam2 = half_tr + disc, np.maximum(half_tr - disc, 0.0)
+    major, minor = 4.0 * np.sqrt(lam1), 4.0 * np.sqrt(lam2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        aspect = np.where(minor > 0, major / np.where(minor > 0, minor, 1.0), np.inf)
+    major_angle = np.degrees(0.5 * np.arctan2(2.0 * vxy_, vxx - vyy)) % 180.0
+    area = cnt * omap.point_area
+    eul = euler_from_quat(means) if n else np.zeros((0, 3))
+    kam_flat_ok = np.isfinite(kam)
+    kam_grain = np.bincount(labels[kam_flat_ok], weights=kam[kam_flat_ok], minlength=n) / np.maximum(
+        np.bincount(labels[kam_flat_ok], minlength=n), 1)
+    n_nb = np.bincount(np.concatenate((grain_a, grain_b)), minlength=n)
+    phase_names = np.array([p.name for p in omap.phases], dtype=object)
+    x0, y0 = omap.origin
+    grains = pd.DataFrame({
+        "grain": np.arange(n, dtype=np.int64),
+        "phase": gphase.astype(np.int64),
+        "phase_name": phase_names[gphase],
+        "n_points": cnt.astype(np.int64),
+        "n_indexed": sums[:, 6].astype(np.int64),
+        "area_um2": area,
+        "ecd_um": 2.0 * np.sqrt(area / np.pi),
+        "centroid_x_um": cx + x0,
+        "centroid_y_um": cy + y0,
+        "major_axis_um": major,
+        "minor_axis_um": minor,
+        "major_axis_angle_deg": major_angle,
+        "aspect_ratio": aspect,
+        "x_min_um": bbox[:, 0] + x0, "x_max_um": bbox[:, 1] + x0,
+        "y_min_um": bbox[:, 2] + y0, "y_max_um": bbox[:, 3] + y0,
+        "touches_edge": edge.astype(bool),
+        "mean_qw": means[:, 0], "mean_qx": means[:, 1], "mean_qy": means[:, 2], "mean_qz": means[:, 3],
+        "mean_phi1_deg": eul[:, 0], "mean_Phi_deg": eul[:, 1], "mean_phi2_deg": eul[:, 2],
+        "gos_deg": gos,
+        "kam_mean_deg": kam_grain,
+        "n_neighbours": n_nb.astype(np.int64),
+    })
+    boundaries = pd.DataFrame({
+        "boundary_id": np.arange(nbd, dtype=np.int64),
+        "grain_a": grain_a.astype(np.int64),
+        "grain_b": grain_b.astype(np.int64),
+        "n_edges": counts.astype(np.int64),
+        "length_um": length,
+        "misorientation_deg": angle,
+        "axis_h": axis[:, 0], "axis_k": axis[:, 1], "axis_l": axis[:, 2],
+        "boundary_class": bclass.astype(str),
+        "csl_deviation_deg": deviation,
+        "trace_angle_deg": trace,
+        "x_start_um": ends_xy[:, 0], "y_start_um": ends_xy[:, 1],
+        "x_end_um": ends_xy[:, 2], "y_end_um": ends_xy[:, 3],
+        "n_lines": n_chain_per_b.astype(np.int64),
+    })
+    counts_by_class = boundaries["boundary_class"].value_counts().to_dict()
+    log("boundary classes: " + ", ".join(f"{k} {v}" for k, v in sorted(counts_by_class.items())))
+
+    # sub-grains
+    sub_labels = sub_table = None
+    if sub is not None:
+        parent = np.arange(npts, dtype=np.int32)
+        _k.union_below(parent, a, b, ang, np.float32(sub))
+        sl, n_sub = _compact(np.where(valid & (labels >= 0), parent, -1).astype(np.int32))
+        del parent
+        sfirst = np.full(n_sub, npts, dtype=np.int64)
+        okp = sl >= 0
+        np.minimum.at(sfirst, sl[okp], np.flatnonzero(okp))
+        smeans = _mean_orientations(qflat, valid, sl, n_sub, _mean_orientations(
+            qflat, valid, sl, n_sub, qflat[sfirst]))
+        sa_, sb_ = sl[a], sl[b]
+        ssel = (sa_ >= 0) & (sb_ >= 0) & (sa_ != sb_) & (labels[a] == labels[b])
+        s_lo = np.minimum(sa_[ssel], sb_[ssel]).astype(np.int64)
+        s_hi = np.maximum(sa_[ssel], sb_[ssel]).astype(np.int64)
+        skey, scount = np.unique(s_lo * n_sub + s_hi, return_counts=True)
+        s_a, s_b = skey // n_sub, skey % n_sub
+        sub_table = pd.DataFrame({
+            "subgrain_boundary_id": np.arange(skey.size, dtype=np.int64),
+            "subgrain_a": s_a, "subgrain_b": s_b,
+            "grain": labels[sfirst[s_a]].astype(np.int64),
+            "length_um": scount * edge_len,
+            "misorientation_deg": disorientation_angle(smeans[s_a], smeans[s_b]),
+        })
+        sub_labels = sl.astype(np.int64).reshape(ny, nx_)
+        log(f"sub-grains below {sub:g}°: {n_sub} sub-grains, {skey.size} sub-grain boundaries inside grains")
+    steps("tables")
+
+    # 8. graph
+    graph = nx.Graph(threshold_deg=thr, step_um=float(omap.step), grid=omap.grid, name=str(omap.name))
+    ncols = {k: grains[k].tolist() for k in NODE_KEYS}
+    graph.add_nodes_from((g, {k: ncols[k][g] for k in NODE_KEYS}) for g in range(n))
+    ecols = {k: boundaries[k].tolist() for k in EDGE_KEYS}
+    ga_l, gb_l = boundaries["grain_a"].tolist(), boundaries["grain_b"].tolist()
+    graph.add_edges_from((ga_l[i], gb_l[i], {k: ecols[k][i] for k in EDGE_KEYS}) for i in range(nbd))
+    steps.close()
+
+    settings = {
+        "threshold_deg": thr, "subgrain_deg": sub, "min_quality": min_quality, "fill_unindexed": bool(fill_unindexed),
+        "min_grain_points": min_points or None, "fill_sweeps": fill_sweeps, "grid": omap.grid, "step_um": omap.step,
+    }
+    return GrainGraph(
+        omap=omap,
+        labels=labels.astype(np.int64).reshape(ny, nx_),
+        graph=graph,
+        grains=grains,
+        boundaries=boundaries,
+        triple_junctions=tj,
+        mean_quats=means,
+        boundary_polylines=polylines,
+        kam_deg=kam.reshape(ny, nx_),
+        misorientation_to_mean_deg=mis.reshape(ny, nx_),
+        subgrain_labels=sub_labels,
+        subgrain_boundaries=sub_table,
+        settings=settings,
+        log=log_lines,
+    )
+
+
+def write_grain_outputs(gg: GrainGraph, folder: str | os.PathLike, *, figures: bool = True,
+                        progress: bool = False) -> list[Path]:
+    """Write tables (CSV), graph (GraphML), label image (``.npy``), pictures and a summary into ``folder``.
+
+    Returns the paths written. The summary carries the caution text.
+    """
+    from .report import write_summary
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    jobs = ["tables", "graph", "labels"] + (["grain map", "histogram"] if figures else [])
+    bar = _Steps(len(jobs), progress)
+    paths = list(gg.write_tables(folder).values())
+    bar("tables")
+    paths.append(gg.write_graphml(folder / "grain_graph.graphml"))
+    bar("graph")
+    paths.append(gg.write_labels(folder / "grain_labels.npy"))
+    bar("labels")
+    if figures:
+        from .figures.grains import plot_grain_map, plot_misorientation_histogram
+        from .figures._common import save_figure
+
+        fig = plot_grain_map(gg)
+        save_figure(fig, folder / "grain_map.png")
+        paths.append(folder / "grain_map.png")
+        bar("grain map")
+        fig = plot_misorientation_histogram(gg)
+        save_figure(fig, folder / "misorientation_histogram.png")
+        paths.append(folder / "misorientation_histogram.png")
+        bar("histogram")
+    bar.close()
+    cls = gg.boundaries["boundary_class"].value_counts()
+    lines = [
+        f"Map: {gg.omap.name or '(unnamed)'}, {gg.omap.grid} grid {gg.omap.shape[0]} x {gg.omap.shape[1]}, "
+        f"step {gg.omap.step:g} µm.",
+        f"Threshold {gg.settings['threshold_deg']:g}°; {gg.n_grains} grains, {len(gg.boundaries)} boundaries, "
+        f"{len(gg.triple_junctions)} triple junctions.",
+        "",
+        "Boundary classes (count): " + ", ".join(f"{k} {v}" for k, v in cls.items()),
+        "",
+        "Steps:",
+        *(f"- {line}" for line in gg.log),
+        "",
+        "Files: " + ", ".join(p.name for p in paths),
+    ]
+    paths.append(write_summary(folder, "Grains and boundaries", lines))
+    return paths
