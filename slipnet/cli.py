@@ -121,11 +121,117 @@ def _run_slip(args) -> int:
     return 0
 
 
+def _add_growth(sub) -> None:
+    p = sub.add_parser(
+        "growth",
+        help="short-crack growth rate along a path: dips at barriers, crossings, arrest, cycles",
+        description="Predict da/dN and cycles against crack length along a crack path, from a barrier table "
+        "(CSV: position_um [, grain_factor, m_prime, twist_deg]) or from a saved forecast folder "
+        "(forecast_path.csv, forecast_crossings.csv, forecast_barriers.csv, forecast_settings.json). "
+        "With --record, first fit friction stress, coefficient and exponent to a measured growth record.",
+    )
+    src = p.add_mutually_exclusive_group(required=True)
+    src.add_argument("--barriers", metavar="CSV", help="barrier table, one row per barrier along the path")
+    src.add_argument("--forecast", metavar="DIR", help="folder written by 'slipnet forecast'")
+    p.add_argument("--stress-amplitude", type=float, metavar="MPA",
+                   help="stress amplitude σ_a = Δσ/2, MPa (default: the forecast's, else required)")
+    p.add_argument("--out", default="slipnet-growth", help="output folder (default: slipnet-growth)")
+    p.add_argument("--length", type=float, metavar="UM", help="path length for --barriers (default 1.5 × last barrier)")
+    p.add_argument("--first-grain-factor", type=float, default=1.0,
+                   help="orientation factor of the first grain for --barriers (default 1)")
+    p.add_argument("--friction-stress", type=float, default=400.0, help="σ_f, MPa (default 400)")
+    p.add_argument("--coefficient", type=float, default=0.05, help="C in da/dN = C·φ^m, µm/cycle (default 0.05)")
+    p.add_argument("--exponent", type=float, default=1.5, help="m in da/dN = C·φ^m (default 1.5)")
+    p.add_argument("--barrier-stress", type=float, default=500.0,
+                   help="critical stress on the source beyond a neutral barrier, MPa (default 500)")
+    p.add_argument("--source-distance", type=float, default=1.0,
+                   help="source distance r₀ beyond a barrier, µm (default 1)")
+    p.add_argument("--transmission-weight", type=float, default=0.5, help="k_m of the |m′| coupling (default 0.5)")
+    p.add_argument("--twist-weight", type=float, default=0.5, help="k_α of the twist coupling (default 0.5)")
+    p.add_argument("--initial-length", type=float, metavar="UM",
+                   help="first crack length (default 0.1 × first barrier)")
+    p.add_argument("--final-length", type=float, metavar="UM", help="last crack length (default the path length)")
+    p.add_argument("--points", type=int, default=2000, help="crack lengths in the profile (default 2000)")
+    p.add_argument("--samples", type=int, help="Monte Carlo draws of barrier strength for bands "
+                   "(default: the forecast's sample count, else 0)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the draws (default 0)")
+    p.add_argument("--record", metavar="CSV", help="measured record (columns crack_length_um, cycles) to calibrate on")
+    p.add_argument("--no-figures", action="store_true", help="write tables only")
+    p.set_defaults(func=_run_growth)
+
+
+def _run_growth(args) -> int:
+    import json
+    from pathlib import Path
+
+    import pandas as pd
+
+    from .errors import InputFileError, ParameterError
+    from .growth import GrowthParameters, GrowthPath, calibrate, path_from_tables, simulate_growth, write_growth
+
+    def read_csv(path, what):
+        try:
+            return pd.read_csv(path)
+        except FileNotFoundError as err:
+            raise InputFileError(f"{what} not found", path=str(path)) from err
+        except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
+            raise InputFileError(f"{what} is not a readable CSV table ({err})", path=str(path)) from err
+
+    amplitude = args.stress_amplitude
+    samples = args.samples
+    seed = args.seed
+    if args.barriers:
+        table = read_csv(args.barriers, "barrier table")
+        if "position_um" not in table.columns:
+            raise InputFileError("should have a 'position_um' column", path=args.barriers, column="position_um")
+        path = GrowthPath.from_table(table, first_grain_factor=args.first_grain_factor, length_um=args.length,
+                                     source=f"barrier table {args.barriers}")
+    else:
+        folder = Path(args.forecast)
+        settings = {}
+        if (folder / "forecast_settings.json").exists():
+            settings = json.loads((folder / "forecast_settings.json").read_text(encoding="utf-8"))
+        optional = {name: read_csv(folder / f"forecast_{name}.csv", f"forecast {name} table")
+                    for name in ("crossings", "barriers") if (folder / f"forecast_{name}.csv").exists()}
+        path = path_from_tables(read_csv(folder / "forecast_path.csv", "forecast path table"),
+                                optional.get("barriers"), crossings=optional.get("crossings"),
+                                offset_um=float(settings.get("initial_crack_um", 0.0) or 0.0),
+                                source=str(folder / "forecast_path.csv"))
+        if amplitude is None:
+            amplitude = settings.get("stress_amplitude_mpa")
+        if samples is None:
+            samples = int(settings.get("samples", 0) or 0)
+            seed = int(settings.get("seed", seed))
+    if amplitude is None:
+        raise ParameterError("growth: give --stress-amplitude (MPa)")
+    params = GrowthParameters(friction_stress=args.friction_stress, coefficient=args.coefficient,
+                              exponent=args.exponent, barrier_stress=args.barrier_stress,
+                              source_distance=args.source_distance, transmission_weight=args.transmission_weight,
+                              twist_weight=args.twist_weight)
+    fit = None
+    if args.record:
+        rec = read_csv(args.record, "growth record")
+        for col in ("crack_length_um", "cycles"):
+            if col not in rec.columns:
+                raise InputFileError(f"should have columns crack_length_um and cycles; missing {col!r}",
+                                     path=args.record, column=col)
+        fit = calibrate(rec["crack_length_um"], rec["cycles"], path, float(amplitude), initial=params)
+        params = fit.params
+    res = simulate_growth(path, float(amplitude), params=params, initial_length=args.initial_length,
+                          final_length=args.final_length, n_points=args.points, samples=samples or 0, seed=seed)
+    write_growth(res, args.out, figures=not args.no_figures, calibration=fit)
+    arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
+              else "no arrest on the path")
+    print(f"growth: {path.n_barriers} barriers, {len(res.dips)} dips, {arrest}; outputs written to {args.out}")
+    return 0
+
+
 # (name, register function); each register function sets ``func`` on its parser.
 _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("demo", _add_demo),
     ("map", _add_map),
     ("slip", _add_slip),
+    ("growth", _add_growth),
 ]
 
 
