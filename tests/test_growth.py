@@ -408,3 +408,99 @@ def test_bad_inputs_raise_clear_errors():
         growth_profile("not a path", 200.0)
     with pytest.raises(ParameterError, match="position_um"):
         GrowthPath.from_table(pd.DataFrame({"x": [1.0]}))
+
+
+# ------------------------------------------------------------------ outputs: CLI, demo step, figures
+
+
+def _fake_forecast():
+    fc = type("FakeForecast", (), {})()
+    fc.path = _segment_table()
+    fc.crossings = pd.DataFrame({"boundary_id": [17], "grain_a": [4], "grain_b": [9], "distance_um": [25.0],
+                                 "m_prime": [0.7], "twist_deg": [30.0], "branch": [0]})
+    fc.barriers = None
+    fc.samples = None
+    fc.settings = {"stress_amplitude_mpa": 220.0, "initial_crack_um": 5.0, "seed": 1}
+    return fc
+
+
+def test_path_from_forecast_uses_crossings_and_the_existing_crack_length():
+    from slipnet.growth import path_from_forecast
+
+    path = path_from_forecast(_fake_forecast())
+    np.testing.assert_allclose(path.barrier_positions_um, [30.0])  # 25 µm ahead of a 5 µm crack
+    assert path.m_prime[0] == 0.7 and path.twist_deg[0] == 30.0 and path.boundary_ids[0] == 17
+    assert path.length_um == 60.0
+    x, _ = path.locate([5.0])
+    assert x[0] == 0.0  # the forecast tip sits at crack length 5 µm
+    with pytest.raises(ParameterError, match="CrackForecast"):
+        path_from_forecast(object())
+
+
+def test_demo_step_writes_growth_outputs(tmp_path):
+    from slipnet.demo import _step_growth
+
+    ctx = {"out": tmp_path, "seed": 2, "quick": True, "forecast": _fake_forecast()}
+    _step_growth(ctx)
+    res = ctx["growth"]
+    assert res.stress_amplitude == 220.0
+    for name in ("growth_profile.csv", "growth_barriers.csv", "growth_dips.csv", "growth_rate.png",
+                 "growth_map.png", "growth_cycles.png", "summary.md"):
+        assert (tmp_path / "growth" / name).exists(), name
+    from slipnet.cautions import CAUTION
+
+    assert CAUTION in (tmp_path / "growth" / "summary.md").read_text(encoding="utf-8")
+    prof = pd.read_csv(tmp_path / "growth" / "growth_profile.csv")
+    assert {"crack_length", "cycles", "dadn"} <= set(prof.columns)
+    ctx2 = {"out": tmp_path / "none", "seed": 2, "quick": True}
+    _step_growth(ctx2)
+    assert "growth" not in ctx2 and "skipped" in ctx2["notes"][0]
+
+
+def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
+    from slipnet.cli import main
+
+    bars = tmp_path / "bars.csv"
+    pd.DataFrame({"position_um": [20.0, 45.0, 70.0], "m_prime": [1.0, 0.5, 0.9],
+                  "twist_deg": [0.0, 30.0, 5.0]}).to_csv(bars, index=False)
+    out = tmp_path / "out"
+    assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(out),
+                 "--points", "300", "--samples", "5"]) == 0
+    prof = pd.read_csv(out / "growth_profile.csv")
+    assert prof["crack_length"].iloc[-1] == pytest.approx(105.0)
+    assert (out / "growth_bands.csv").exists()
+    # a record made by the model itself, then calibrated through the command line
+    path = GrowthPath.from_table(pd.read_csv(bars))
+    truth = simulate_growth(path, 200.0, n_points=1500).profile
+    a_rec = np.linspace(3.0, 100.0, 12)
+    rec = tmp_path / "record.csv"
+    pd.DataFrame({"crack_length_um": a_rec,
+                  "cycles": np.interp(a_rec, truth["crack_length"], truth["cycles"])}).to_csv(rec, index=False)
+    out2 = tmp_path / "fit"
+    assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(out2),
+                 "--record", str(rec), "--coefficient", "0.1", "--no-figures"]) == 0
+    cal = pd.read_csv(out2 / "growth_calibration.csv").set_index("parameter")
+    assert cal.loc["coefficient", "value"] == pytest.approx(0.05, rel=0.05)
+    assert not (out2 / "growth_rate.png").exists()
+    capsys.readouterr()
+    assert main(["growth", "--barriers", str(tmp_path / "missing.csv"), "--stress-amplitude", "200"]) == 2
+    assert "not found" in capsys.readouterr().err
+    assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "-5", "--out", str(out)]) == 2
+    assert ">= 0" in capsys.readouterr().err
+
+
+def test_growth_figures_mark_barriers_and_arrest():
+    import matplotlib.pyplot as plt
+
+    from slipnet.figures.growth import plot_growth_on_map, plot_growth_rate
+
+    res = simulate_growth(_path(), 120.0, friction_stress=SF, n_points=300)
+    fig = plot_growth_rate(res)
+    ax = fig.axes[0]
+    assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
+    labels = [t.get_text() for t in ax.texts]
+    assert "B1" in labels
+    assert any("arrest" in t.get_text() for t in ax.get_legend().get_texts())
+    plt.close(fig)
+    with pytest.raises(ParameterError, match="map coordinates"):
+        plot_growth_on_map(res)
