@@ -42,7 +42,7 @@ from ._compare_registration import (
     read_control_points,
     resample_to_map,
 )
-from .errors import NumericalError, ParameterError
+from .errors import InputFileError, NumericalError, ParameterError
 from .report import write_summary, write_table
 from .strainmaps import (
     StrainSeries,
@@ -55,10 +55,13 @@ from .strainmaps import (
 
 __all__ = [
     "Comparison",
+    "ForecastTables",
+    "GrowthTables",
     "StrainSeries",
     "Transform",
     "band_orientation",
     "boundary_band_statistics",
+    "compare_files",
     "compare_forecast",
     "dadn_incremental_polynomial",
     "dadn_secant",
@@ -76,6 +79,12 @@ __all__ = [
     "predicted_dips_from_growth",
     "rank_agreement",
     "read_control_points",
+    "read_csv_table",
+    "read_forecast_folder",
+    "read_forecast_tables",
+    "read_growth_folder",
+    "read_growth_record",
+    "read_measured_path",
     "read_strain",
     "resample_to_map",
     "score_band_directions",
@@ -645,6 +654,122 @@ def growth_profile_from(growth) -> pd.DataFrame | None:
     return None
 
 
+# ===================================================================================== table files
+@dataclass(frozen=True)
+class ForecastTables:
+    """Forecast outputs read back from CSV tables (same columns as a ``CrackForecast``)."""
+
+    sites: pd.DataFrame | None = None
+    path: pd.DataFrame | None = None
+    barriers: pd.DataFrame | None = None
+
+
+def read_csv_table(path: str | os.PathLike, required: tuple[str, ...], what: str) -> pd.DataFrame:
+    """Read a CSV table and check that it has the ``required`` columns (numeric where named)."""
+    path = Path(path)
+    if not path.is_file():
+        raise InputFileError("no such file", path=str(path))
+    try:
+        t = pd.read_csv(path, comment="#")
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
+        raise InputFileError(f"cannot read the {what} table: {err}", path=str(path)) from err
+    t.columns = [str(c).strip() for c in t.columns]
+    for c in required:
+        if c not in t.columns:
+            raise InputFileError(f"column {c!r} is missing; a {what} table needs {list(required)}", path=str(path),
+                                 column=c)
+        vals = pd.to_numeric(t[c], errors="coerce")
+        if vals.isna().any():
+            row = int(np.flatnonzero(vals.isna().to_numpy())[0])
+            raise InputFileError("should be a number", path=str(path), line=row + 2, column=c)
+        t[c] = vals.astype(float)
+    return t
+
+
+def read_forecast_tables(*, sites=None, path=None, barriers=None) -> ForecastTables:
+    """Read forecast tables written as CSV: sites (``x, y, score``), path (``x0, y0, x1, y1``),
+    barriers (``boundary_id, score``); any may be None."""
+    return ForecastTables(
+        read_csv_table(sites, ("x", "y"), "sites") if sites else None,
+        read_csv_table(path, ("x0", "y0", "x1", "y1"), "path") if path else None,
+        read_csv_table(barriers, ("boundary_id", "score"), "barriers") if barriers else None,
+    )
+
+
+def read_measured_path(path: str | os.PathLike) -> np.ndarray | pd.DataFrame:
+    """A measured crack path: CSV polyline (``x_um, y_um``) or segments (``x0, y0, x1, y1``), µm."""
+    t = read_csv_table(path, (), "measured path")
+    if {"x0", "y0", "x1", "y1"} <= set(t.columns):
+        return read_csv_table(path, ("x0", "y0", "x1", "y1"), "measured path")
+    return read_csv_table(path, ("x_um", "y_um"), "measured path")[["x_um", "y_um"]].to_numpy(float)
+
+
+def read_growth_record(path: str | os.PathLike) -> pd.DataFrame:
+    """A crack-growth record: CSV with ``cycles`` and ``crack_length_um``."""
+    return read_csv_table(path, ("cycles", "crack_length_um"), "growth record")
+
+
+def read_forecast_folder(folder: str | os.PathLike) -> ForecastTables:
+    """Forecast tables from a folder written by the forecast step (``forecast_sites.csv``,
+    ``forecast_path.csv``, ``forecast_barriers.csv``; missing files give None)."""
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputFileError("should be a folder of forecast tables", path=str(folder))
+    names = {k: folder / f"forecast_{k}.csv" for k in ("sites", "path", "barriers")}
+    return read_forecast_tables(**{k: p if p.exists() else None for k, p in names.items()})
+
+
+@dataclass(frozen=True)
+class GrowthTables:
+    """Predicted growth outputs read back from CSV (``growth_dips.csv``, ``growth_profile.csv``)."""
+
+    dips: pd.DataFrame | None = None
+    profile: pd.DataFrame | None = None
+
+
+def read_growth_folder(folder: str | os.PathLike) -> GrowthTables:
+    """Predicted dips and profile from a folder written by the growth step."""
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputFileError("should be a folder of growth tables", path=str(folder))
+    dips = folder / "growth_dips.csv"
+    prof = folder / "growth_profile.csv"
+    return GrowthTables(read_csv_table(dips, ("crack_length",), "growth dips") if dips.exists() else None,
+                        read_csv_table(prof, ("crack_length", "dadn"), "growth profile") if prof.exists() else None)
+
+
+def compare_files(strain_path, *, points=None, kind: str = "affine", map_path=None, threshold_deg: float = 15.0,
+                  forecast_folder=None, sites=None, path=None, barriers=None, measured_path=None, record=None,
+                  growth_folder=None, **options) -> Comparison:
+    """:func:`compare_forecast` on files: a strain file, control points, map, forecast and growth tables.
+
+    ``options`` go to :func:`compare_forecast` (tolerances, strain method, load axis...).
+    """
+    series = read_strain(strain_path)
+    transform = None
+    if points is not None:
+        src, dst = read_control_points(points)
+        transform = fit_transform(src, dst, kind)
+    gg = None
+    if map_path is not None:
+        from .grains import build_grain_graph
+        from .io import read_map
+
+        gg = build_grain_graph(read_map(map_path), threshold_deg)
+    fc = read_forecast_folder(forecast_folder) if forecast_folder is not None else ForecastTables()
+    over = read_forecast_tables(sites=sites, path=path, barriers=barriers)
+    fc = ForecastTables(over.sites if over.sites is not None else fc.sites,
+                        over.path if over.path is not None else fc.path,
+                        over.barriers if over.barriers is not None else fc.barriers)
+    has_fc = any(t is not None for t in (fc.sites, fc.path, fc.barriers))
+    growth = read_growth_folder(growth_folder) if growth_folder is not None else None
+    if growth is not None and growth.dips is None:
+        growth = GrowthTables(pd.DataFrame({"crack_length": [], "depth": []}), growth.profile)
+    return compare_forecast(series, forecast=fc if has_fc else None, grain_graph=gg, transform=transform,
+                            measured_path=read_measured_path(measured_path) if measured_path else None,
+                            growth_record=read_growth_record(record) if record else None, growth=growth, **options)
+
+
 # =================================================================================== whole comparison
 @dataclass(eq=False)
 class Comparison:
@@ -689,6 +814,7 @@ class Comparison:
     predicted_path: pd.DataFrame | None = None
     measured_path: np.ndarray | None = None
     predicted_profile: pd.DataFrame | None = None
+    map_extent: tuple[float, float, float, float] | None = None
 
     def score_table(self) -> pd.DataFrame:
         """Scores as a two-column table (``score``, ``value``)."""
@@ -767,8 +893,12 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
     grain_stats = boundary_stats = bands = None
     shear_on_map = None
     labels_s = None
+    extent = None
     if grain_graph is not None:
+        from .figures._common import map_extent
+
         omap = grain_graph.omap
+        extent = tuple(float(e) for e in map_extent(omap))
         gx, gy = omap.coordinates()
         shear_on_map = resample_to_map(shear, s, tr, gx, gy)
         labels_s = labels_on_strain_grid(grain_graph.labels, omap, s, tr)
@@ -787,7 +917,7 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
     pred_xy = np.zeros((0, 2))
     site_pairs = pd.DataFrame(columns=["pred_index", "meas_index", "distance_um"])
     pred_path = None
-    if forecast is not None:
+    if forecast is not None and getattr(forecast, "sites", None) is not None:
         pred_xy, pred_score = sites_from_forecast(forecast)
         sc, site_pairs = score_sites(pred_xy, peaks[["x_um", "y_um"]].to_numpy(), site_tol_um)
         scores.update({f"sites_{kk}": vv for kk, vv in sc.items()})
@@ -797,7 +927,10 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
             pg = per.reindex(grain_stats["grain"]).fillna(0.0).to_numpy()
             ra = rank_agreement(pg, grain_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
             scores.update({f"grains_{kk}": vv for kk, vv in ra.items()})
+    if forecast is not None:
         barriers = getattr(forecast, "barriers", None)
+        if isinstance(barriers, pd.DataFrame) and not {"boundary_id", "score"} <= set(barriers.columns):
+            barriers = None
         if boundary_stats is not None and isinstance(barriers, pd.DataFrame) and len(barriers) and len(boundary_stats):
             b = barriers.groupby("boundary_id")["score"].max()
             pb = b.reindex(boundary_stats["boundary_id"]).to_numpy(float)
@@ -807,7 +940,6 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
             pred_path = path_from_forecast(forecast)
             if measured_path is not None:
                 ps = score_path(pred_path, measured_path, path_tol_um)
-                scores.update({f"path_{kk}": vv for kk, vv in ps.items()})
                 scores.update({f"path_{kk}": vv for kk, vv in ps.items()})
     growth_rates = dips = None
     profile = growth_profile_from(growth)
@@ -838,7 +970,7 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
         mp = np.concatenate([seg[:, :2], seg[-1:, 2:]])
     return Comparison(tr if transform is not None else None, s, shear, shear_on_map, peaks, grain_stats,
                       boundary_stats, bands, site_pairs, growth_rates, dips, scores, settings, pred_xy, pred_path,
-                      mp, profile)
+                      mp, profile, extent)
 
 
 def write_comparison(comp: Comparison, folder: str | os.PathLike, *, title: str = "Forecast against measurements",

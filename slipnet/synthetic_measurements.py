@@ -22,8 +22,8 @@ from ._compare_registration import Transform
 from .errors import ParameterError
 from .strainmaps import StrainSeries
 
-__all__ = ["SyntheticMeasurement", "band_displacement", "synthetic_crack_path", "synthetic_growth_record",
-           "synthetic_strain_series"]
+__all__ = ["DemoMeasurement", "SyntheticMeasurement", "band_displacement", "demo_measurement",
+           "synthetic_crack_path", "synthetic_growth_record", "synthetic_strain_series"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -236,3 +236,106 @@ def synthetic_growth_record(profile: pd.DataFrame | None = None, *, n_readings: 
     nr = np.linspace(n[0], n[-1], int(n_readings))
     ar = np.interp(nr, n, a) + rng.normal(0.0, noise_um, nr.size)
     return pd.DataFrame({"cycles": np.rint(nr), "crack_length_um": ar}).drop_duplicates("cycles")
+
+
+@dataclass(frozen=True, eq=False)
+class DemoMeasurement:
+    """The SYNTHETIC measurements the demo scores its own forecast against."""
+
+    strain: SyntheticMeasurement
+    measured_path: np.ndarray | None
+    growth_record: pd.DataFrame
+    description: str
+
+
+def _site_angles(gg, sites: pd.DataFrame, load_axis) -> np.ndarray:
+    """Slip-trace angle (deg) of each site: its own system in its grain if known, else the grain's
+    most stressed system; NaN where neither can be found."""
+    out = np.full(len(sites), np.nan)
+    try:
+        from .slip import slip_systems, slip_trace_angles
+    except ImportError:
+        return out
+    q = np.asarray(getattr(gg, "mean_quats", np.zeros((0, 4))), float)
+    if q.size == 0:
+        return out
+    grains = (sites["grain"].to_numpy(np.int64) if "grain" in sites.columns
+              else np.array([gg.grain_at(x, y) for x, y in sites[["x", "y"]].to_numpy()], dtype=np.int64))
+    ok = (grains >= 0) & (grains < len(q))
+    if not ok.any():
+        return out
+    systems = slip_systems("bcc")
+    traces = slip_trace_angles(q[grains[ok]], systems)
+    if "system" in sites.columns:
+        sys_ = sites["system"].to_numpy(np.int64)[ok]
+        good = (sys_ >= 0) & (sys_ < traces.shape[1])
+        pick = np.where(good, sys_, 0)
+        ang = np.take_along_axis(traces, pick[:, None], axis=1)[:, 0]
+        ang = np.where(good, ang, np.nan)
+    else:
+        from .compare import _grain_traces
+
+        top = _grain_traces(gg, load_axis, 1)
+        ang = top[grains[ok], 0] if top is not None else np.full(ok.sum(), np.nan)
+    out[ok] = ang
+    return out
+
+
+def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), seed: int = 7,
+                     n_sites: int = 12) -> DemoMeasurement:
+    """SYNTHETIC measurements built from the demo's own forecast, imperfect on purpose.
+
+    Shear bands sit along the predicted slip traces at the highest-ranked predicted sites, but a
+    quarter of those sites get no band, the others are moved by about a grid step and turned by a
+    few degrees, and two bands appear where nothing was predicted. The measured crack path wanders
+    sideways around the predicted one; the growth record follows the predicted growth profile (or,
+    without one, a power-law rate with dips at the on-path barriers) with reading noise.
+    """
+    rng = np.random.default_rng(seed)
+    omap = gg.omap
+    step = float(omap.step)
+    x_min, x_max, y_min, y_max = omap.extent
+    size = min(x_max - x_min, y_max - y_min)
+    sites = getattr(forecast, "sites", None)
+    sites = sites.head(n_sites).reset_index(drop=True) if sites is not None else pd.DataFrame({"x": [], "y": []})
+    angles = _site_angles(gg, sites, load_axis) if len(sites) else np.zeros(0)
+    angles = np.where(np.isfinite(angles), angles, rng.uniform(0, 180, len(angles)))
+    keep = (np.arange(len(sites)) % 4) != 3  # every fourth predicted site stays quiet
+    score = sites["score"].to_numpy(float) if "score" in sites.columns else np.ones(len(sites))
+    score = score / max(float(np.max(score)), 1e-12) if len(score) else score
+    xs = sites["x"].to_numpy(float)[keep] + rng.normal(0, 0.7 * step, keep.sum())
+    ys = sites["y"].to_numpy(float)[keep] + rng.normal(0, 0.7 * step, keep.sum())
+    extra = 2
+    ex = rng.uniform(x_min + 0.15 * size, x_max - 0.15 * size, extra)
+    ey = rng.uniform(y_min + 0.15 * size, y_max - 0.15 * size, extra)
+    bands = pd.DataFrame({
+        "x_um": np.concatenate([xs, ex]), "y_um": np.concatenate([ys, ey]),
+        "angle_deg": np.concatenate([angles[keep] + rng.normal(0, 3.0, keep.sum()), rng.uniform(0, 180, extra)]),
+        "amplitude": np.concatenate([0.02 + 0.03 * score[keep], np.full(extra, 0.03)]),
+        "length_um": np.full(keep.sum() + extra, max(4.0 * step, 0.04 * size)),
+        "width_um": np.full(keep.sum() + extra, 1.2 * step),
+    })
+    sm = synthetic_strain_series(omap.extent, step, bands, noise_um=0.002 * step, seed=seed)
+    path = getattr(forecast, "path", None)
+    mpath = synthetic_crack_path(path, deviation_um=1.5 * step, spacing_um=step, seed=seed) \
+        if path is not None and len(path) else None
+    from .compare import growth_profile_from
+
+    prof = growth_profile_from(growth)
+    if prof is not None and "cycles" in prof.columns and np.isfinite(prof["cycles"]).sum() > 10:
+        record = synthetic_growth_record(prof, n_readings=80, noise_um=0.05 * step, seed=seed)
+    else:
+        bar = getattr(forecast, "barriers", None)
+        dips = ()
+        if isinstance(bar, pd.DataFrame) and {"distance_um", "on_path"} <= set(bar.columns):
+            d = bar.loc[bar["on_path"].astype(bool), "distance_um"].to_numpy(float)
+            dips = tuple(d[np.isfinite(d) & (d > 0)])
+        a1 = float(path["length_um"].sum()) if path is not None and "length_um" in getattr(path, "columns", ()) \
+            else 0.5 * size
+        record = synthetic_growth_record(None, n_readings=80, noise_um=0.05 * step, a0_um=1.0,
+                                         a1_um=max(a1, 10.0), dips_um=dips, dip_width_um=2.0 * step, seed=seed)
+    text = ("SYNTHETIC measurements invented from the demo's own forecast (not measured): "
+            f"{keep.sum()} of {len(sites)} top predicted sites carry a shear band, {extra} bands were added "
+            "where nothing was predicted, displacement noise and missing points were added, and the strain "
+            "images were rotated, scaled and shifted against the map; fiducial marks give the control points.")
+    return DemoMeasurement(sm, mpath, record, text)
