@@ -240,11 +240,13 @@ def crack_plane_angles(n_in, n_out, trace_angle_deg, inclination_deg: float = 0.
 
 
 def _line_angle(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    # atan2(|a × b|, |a · b|): accurate near 0° and 90° where arccos loses digits
     na = np.linalg.norm(a, axis=-1)
     nb_ = np.linalg.norm(b, axis=-1)
     ok = (na > 1e-9) & (nb_ > 1e-9)
-    c = np.abs(np.einsum("...i,...i->...", a, b)) / np.where(ok, na * nb_, 1.0)
-    return np.where(ok, np.degrees(np.arccos(np.clip(c, 0.0, 1.0))), 0.0)
+    dot = np.abs(np.einsum("...i,...i->...", a, b))
+    crs = np.linalg.norm(np.cross(a, b), axis=-1)
+    return np.where(ok, np.degrees(np.arctan2(crs, dot)), 0.0)
 
 
 def _miller_label(n: np.ndarray) -> str:
@@ -370,6 +372,16 @@ def _boundary_info(geo: _Geometry, a: int, b: int, d_in: np.ndarray):
     return bid, mis, cls, ang
 
 
+def _check_decay(value) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError) as err:
+        raise ParameterError(f"decay_length_um should be a number > 0 (inf allowed); got {value!r}") from err
+    if not v > 0:  # NaN fails too
+        raise ParameterError(f"decay_length_um should be a number > 0 (inf allowed); got {value!r}")
+    return v
+
+
 def _class_factor(cls: str, factors: dict[str, float]) -> float:
     if cls in factors:
         return float(factors[cls])
@@ -413,10 +425,20 @@ class _State:
     stop: str = ""
 
 
-def _choose_plane(cry: _Crystal, g: int, d_ref: np.ndarray) -> tuple[int, int]:
-    sc = np.where(cry.trace_ok[g], cry.plane_meff[g], -np.inf)
-    order = np.argsort(-sc, kind="stable")
-    return int(order[0]), int(order[1]) if len(order) > 1 and np.isfinite(sc[order[1]]) else -1
+def _choose_plane(cry: _Crystal, g: int) -> int:
+    return int(np.argmax(np.where(cry.trace_ok[g], cry.plane_meff[g], -np.inf)))
+
+
+def _zigzag_partner(cry: _Crystal, g: int, p: int, tol: float) -> int:
+    """Best other plane within ``tol`` (relative) of plane ``p``'s factor, trace ≥ 5° away; −1 if none."""
+    if tol <= 0:
+        return -1
+    ok = (cry.trace_ok[g] & (cry.plane_meff[g] >= (1.0 - tol) * cry.plane_meff[g, p])
+          & (np.abs(cry.trace[g] @ cry.trace[g, p]) < math.cos(math.radians(5.0))))
+    ok[p] = False
+    if not ok.any():
+        return -1
+    return int(np.argmax(np.where(ok, cry.plane_meff[g], -np.inf)))
 
 
 def _sense(t: np.ndarray, d_ref: np.ndarray) -> np.ndarray:
@@ -469,14 +491,9 @@ def _run_state(geo: _Geometry, cry: _Crystal, planes: _Planes, st: _State, opts:
         if st.stage == "II":
             legs = [(-1, _sense(opts.d_stage2, opts.d_ref), np.inf, "stage2")]
         else:
-            best, runner = _choose_plane(cry, g, opts.d_ref)
+            best = _choose_plane(cry, g)
             p = st.forced_plane if st.forced_plane >= 0 else best
-            partner = -1
-            cand = runner if p == best else best
-            if (opts.zigzag_tol > 0 and cand >= 0 and cry.trace_ok[g, cand]
-                    and cry.plane_meff[g, cand] >= (1.0 - opts.zigzag_tol) * cry.plane_meff[g, p]
-                    and abs(float(cry.trace[g, p] @ cry.trace[g, cand])) < math.cos(math.radians(5.0))):
-                partner = cand
+            partner = _zigzag_partner(cry, g, p, opts.zigzag_tol)
             if partner >= 0:
                 leg = max(opts.zigzag_fraction * geo.ecd[g], 2.0 * geo.step)
                 legs = [(p, _sense(cry.trace[g, p], opts.d_ref), leg, "zigzag"),
@@ -535,7 +552,8 @@ def _cross(geo, cry, planes, st: _State, g: int, lab: int, sys_in: int, d: np.nd
         sc = _crossing_scores(cry, planes, g, -1, lab, ang, opts)
         mp_best = float(np.max(cry.m_prime_row(g, sys_in_eff, lab)))
         best = int(np.argmax(sc["score"]))
-        row = {"twist_deg": 0.0, "tilt_deg": 0.0, "m_prime": mp_best,
+        row = {"grain_a": g, "grain_b": lab, "x": st.x, "y": st.y, "distance_um": st.s, "system_in": -1,
+               "twist_deg": 0.0, "tilt_deg": 0.0, "m_prime": mp_best,
                "schmid_in": float(cry.meff[g, sys_in_eff]), "schmid_out": float(np.max(cry.meff[lab])),
                "system_out": -1, "plane_out": "stage II", "n_close": 0}
         row.update({k: float("nan") for k in ("choice_schmid", "choice_m_prime", "choice_twist", "choice_tilt",
@@ -637,7 +655,7 @@ def rank_barriers(
     """
     w = weights or BarrierWeights()
     cf = CLASS_FACTORS if class_factors is None else class_factors
-    check_positive(decay_length_um, "decay_length_um")
+    decay_length_um = _check_decay(decay_length_um)
     cols = ["rank", "boundary_id", "grain_a", "grain_b", "score", "twist_deg", "tilt_deg", "m_prime",
             "distance_um", "on_path", "term_twist", "term_transmission", "term_class", "term_schmid_drop",
             "relevance", "weight_twist", "weight_transmission", "weight_class", "weight_schmid_drop",
@@ -972,7 +990,7 @@ def forecast_crack(
     for wobj in (pw, bw):
         if any(getattr(wobj, f.name) < 0 for f in fields(wobj)):
             raise ParameterError(f"score weights should be >= 0; got {wobj}")
-    decay = horizon if decay_length_um is None else check_positive(decay_length_um, "decay_length_um")
+    decay = horizon if decay_length_um is None else _check_decay(decay_length_um)
     sigma_um = 2.0 * geo.step if field_sigma_um is None else check_positive(field_sigma_um, "field_sigma_um")
     opts = _make_opts(horizon, d, load, stage2_after_um=stage2_after_um, stage2_min_schmid=stage2_min_schmid,
                       zigzag_tol=zigzag_tol, zigzag_step_fraction=zigzag_step_fraction, branch_tol=branch_tol,

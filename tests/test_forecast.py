@@ -1,0 +1,439 @@
+"""Tests of the crack forecast: path, crossing angles, barrier ranking, sites, Monte Carlo, outputs."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from slipnet import _forecast_kernels as K
+from slipnet.cautions import CAUTION
+from slipnet.errors import ParameterError
+from slipnet.forecast import (
+    CLASS_FACTORS,
+    BarrierWeights,
+    MonteCarloNoise,
+    PathWeights,
+    crack_plane_angles,
+    forecast_crack,
+    rank_barriers,
+    write_forecast,
+)
+from slipnet.grains import build_grain_graph
+from slipnet.maps import OrientationMap, apply_frame_rotation
+from slipnet.orientation import quat_from_axis_angle, quat_rotate, random_quats
+from slipnet.slip import effective_schmid, schmid_factors, slip_systems
+from slipnet.transmission import m_prime
+
+# The hand-built bicrystal: left grain at the identity orientation, right grain rotated 180°
+# about the load axis l = (n + d)/|n + d| with n = (011)/√2, d = [11-1]/√3. The system (011)[11-1]
+# then has the largest possible Schmid factor, 0.5, in both grains (l bisects n and d), and in the
+# right grain its plane normal is d in the sample frame: R_l(180°) n = 2(l·n)l − n = d.
+N_HAND = np.array([0.0, 1.0, 1.0]) / math.sqrt(2.0)
+D_HAND = np.array([1.0, 1.0, -1.0]) / math.sqrt(3.0)
+L_HAND = (N_HAND + D_HAND) / np.linalg.norm(N_HAND + D_HAND)
+SCHMID_ONLY = PathWeights(schmid=1.0, m_prime=0.0, twist=0.0, tilt=0.0)
+
+
+def _omap(q: np.ndarray, grid: str = "square", indexed=None) -> OrientationMap:
+    ny, nx_ = q.shape[:2]
+    ind = np.ones((ny, nx_), bool) if indexed is None else indexed
+    q = q.copy()
+    q[~ind] = np.nan
+    return OrientationMap(quats=q, phase=np.where(ind, 0, -1), quality=np.ones((ny, nx_)), indexed=ind,
+                          step=1.0, grid=grid)
+
+
+def _bicrystal(grid: str = "square", shape=(40, 80)) -> OrientationMap:
+    q = np.zeros((*shape, 4))
+    q[..., 0] = 1.0
+    q[:, shape[1] // 2:] = quat_from_axis_angle(L_HAND, 180.0)
+    return _omap(q, grid)
+
+
+@dataclass
+class _StandIn:
+    """Minimal grain graph over a given label image (for cases a reconstruction would merge)."""
+
+    omap: OrientationMap
+    labels: np.ndarray
+    mean_quats: np.ndarray
+    graph: nx.Graph
+
+
+def _stand_in(omap, labels, quats, boundary_class, mis_deg, trace_deg) -> _StandIn:
+    g = nx.Graph()
+    g.add_nodes_from(range(len(quats)))
+    a = np.r_[labels[:, :-1].ravel(), labels[:-1, :].ravel()]
+    b = np.r_[labels[:, 1:].ravel(), labels[1:, :].ravel()]
+    pairs = {(min(u, v), max(u, v)) for u, v in zip(a, b, strict=True) if u != v and u >= 0 and v >= 0}
+    for k, (u, v) in enumerate(sorted(pairs)):
+        g.add_edge(int(u), int(v), boundary_id=k, misorientation_deg=mis_deg, boundary_class=boundary_class,
+                   trace_angle_deg=trace_deg)
+    return _StandIn(omap, labels, np.asarray(quats, float), g)
+
+
+@pytest.fixture(scope="module")
+def bicrystal_gg():
+    return build_grain_graph(_bicrystal())
+
+
+@pytest.fixture(scope="module")
+def poly_gg():
+    """A small random polycrystal from our synthetic generator."""
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((120, 120), 1.0, grain_size_um=25.0, unindexed_fraction=0.0, noise_deg=0.0,
+                         gradient_deg=0.0, seed=3)
+    return build_grain_graph(spec.omap)
+
+
+# ------------------------------------------------------------------------- crossing geometry
+def test_crack_plane_angles_hand_cases():
+    # Zhai, Wilkinson & Martin (2000), Acta Mater. 48:4917: twist = angle between the traces of the
+    # two crack planes on the boundary plane, tilt = angle between their traces on the surface.
+    # Boundary along y (trace 90°), vertical: n_gb = z × b = (-1, 0, 0).
+    # n_in = (011)/√2: surface trace n×z ∝ (1,0,0); trace on the boundary n×n_gb ∝ (0,-1,1).
+    # n_out = (111)/√3: surface trace ∝ (1,-1,0) → tilt 45°; boundary trace ∝ (0,-1,1) → twist 0.
+    tw, ti = crack_plane_angles([0, 1, 1], [1, 1, 1], 90.0)
+    assert float(tw) == pytest.approx(0.0, abs=1e-9)
+    assert float(ti) == pytest.approx(45.0)
+    # n_out = (010): surface trace ∝ (1,0,0) → tilt 0; boundary trace ∝ (0,0,1) → twist 45°.
+    tw, ti = crack_plane_angles([0, 1, 1], [0, 1, 0], 90.0)
+    assert float(tw) == pytest.approx(45.0)
+    assert float(ti) == pytest.approx(0.0, abs=1e-9)
+    # inclined boundary: 45° about its trace (y): n_gb = cos45 (-1,0,0) + sin45 (0,0,1) = (-1,0,1)/√2.
+    # n_in = (100): n×n_gb ∝ (0,-1,0); n_out = (001): n×n_gb ∝ (0,-1,0) → twist 0 (both contain y).
+    tw, _ = crack_plane_angles([1, 0, 0], [0, 0, 1], 90.0, inclination_deg=45.0)
+    assert float(tw) == pytest.approx(0.0, abs=1e-9)
+    # vertical boundary, n_in = (010): n×n_gb = (0,0,1); n_out = (001): n×n_gb = (0,-1,0) → twist 90°
+    tw, _ = crack_plane_angles([0, 1, 0], [0, 0, 1], 90.0)
+    assert float(tw) == pytest.approx(90.0)
+    # a crack plane parallel to the boundary plane has no trace on it: twist reported 0 (documented)
+    tw, _ = crack_plane_angles([1, 0, 0], [0, 0, 1], 90.0)
+    assert float(tw) == 0.0
+
+
+# ------------------------------------------------------------------------- the path
+def test_bicrystal_path_follows_hand_computed_traces(bicrystal_gg):
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0,
+                        path_weights=SCHMID_ONLY)
+    p = fc.path
+    assert list(p["grain"]) == [0, 1]
+    # left grain (identity): trace of (011) is n × z ∝ (1, 0, 0): straight along +x at y = 20
+    assert p["direction_deg"].iloc[0] == pytest.approx(0.0, abs=1e-9)
+    assert p["y1"].iloc[0] == pytest.approx(20.0)
+    assert p["plane"].iloc[0] == "(0 1 1)"
+    # the boundary lies between columns 39 and 40 (x = 39.5 µm)
+    assert p["x1"].iloc[0] == pytest.approx(39.5, abs=0.05)
+    # right grain: plane normal d = [11-1]/√3 in the sample frame, trace d × z ∝ (1, -1, 0): -45°
+    assert p["direction_deg"].iloc[1] == pytest.approx(-45.0, abs=1e-6)
+    assert p["plane"].iloc[1] == "(0 1 1)"  # the same crystal plane
+    assert p["schmid"].to_numpy() == pytest.approx([0.5, 0.5])
+    assert fc.stop_reason == "map_edge"
+    # twist/tilt at the boundary by hand (Zhai et al. 2000 definitions), n_gb = (-1, 0, 0):
+    # l_in = n × n_gb ∝ (0,-1,1), l_out = d × n_gb ∝ (0,1,1): perpendicular → twist 90°;
+    # t_in ∝ (1,0,0), t_out ∝ (1,-1,0) → tilt 45°
+    c = fc.crossings.iloc[0]
+    assert c["twist_deg"] == pytest.approx(90.0)
+    assert c["tilt_deg"] == pytest.approx(45.0)
+    # m′ = (n·d)(d·n) = 0 for this pair (Luster & Morris 1995)
+    assert c["m_prime"] == pytest.approx(0.0, abs=1e-12)
+    assert fc.length_um == pytest.approx(p["length_um"].sum())
+    assert p["s_start_um"].iloc[1] == pytest.approx(p["length_um"].iloc[0])
+
+
+def test_hex_grid_bicrystal_gives_the_same_traces():
+    gg = build_grain_graph(_bicrystal("hex", (46, 80)))
+    fc = forecast_crack(gg, (5.0, 20.0 * math.sqrt(3) / 2 * 1.0), (1.0, 0.0), L_HAND, 60.0, zigzag_tol=0.0,
+                        path_weights=SCHMID_ONLY)
+    assert fc.path["direction_deg"].iloc[0] == pytest.approx(0.0, abs=1e-9)
+    assert fc.path["direction_deg"].iloc[1] == pytest.approx(-45.0, abs=1e-6)
+    assert fc.crossings["twist_deg"].iloc[0] == pytest.approx(90.0, abs=0.5)  # fitted hex trace ≈ 90°
+
+
+def test_crossing_values_match_slip_and_transmission_modules(poly_gg):
+    systems = slip_systems("bcc")
+    fc = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 150.0)
+    assert len(fc.crossings) >= 2
+    q = poly_gg.mean_quats
+    eff = effective_schmid(schmid_factors(q, (0.0, 1.0, 0.0), systems), systems)
+    for r in fc.path.itertuples():
+        assert r.schmid == pytest.approx(eff[r.grain, r.system])
+    for r in fc.crossings[fc.crossings["branch"] == 0].itertuples():
+        # |m′| from slipnet.transmission (Luster & Morris 1995) for the same system pair
+        mp = m_prime(q[r.grain_a], q[r.grain_b], systems)
+        assert r.m_prime == pytest.approx(mp[r.system_in, r.system_out], abs=1e-9)
+        edge = poly_gg.graph.edges[r.grain_a, r.grain_b]
+        assert r.boundary_id == edge["boundary_id"]
+    # the first segment takes the plane of the highest effective factor in the tip grain
+    g0 = fc.path["grain"].iloc[0]
+    assert fc.path["schmid"].iloc[0] == pytest.approx(eff[g0].max())
+
+
+def test_zigzag_alternates_between_tied_planes():
+    # identity orientation, load along y, {110}<111> only: (011) (trace along x) and (110)
+    # (trace along 45°/135°) tie at m = 1/√6 (common practice: the Schmid factor of the cube
+    # orientation under <010> loading)
+    q = np.zeros((60, 200, 4))
+    q[..., 0] = 1.0
+    om = _omap(q)
+    gg = _stand_in(om, np.zeros((60, 200), np.int64), q[:1, 0], "high_angle", 0.0, 90.0)
+    sysm = slip_systems("bcc", ["{110}<111>"])
+    fc = forecast_crack(gg, (5.0, 30.0), (1.0, 0.0), (0.0, 1.0, 0.0), 60.0, systems=sysm, zigzag_tol=0.01,
+                        zigzag_step_fraction=0.05)
+    legs = fc.path[fc.path["leg"] == "zigzag"]
+    assert len(legs) >= 3
+    dirs = legs["direction_deg"].to_numpy()
+    assert np.all(dirs[:-1] != dirs[1:])  # alternating traces
+    assert np.all(np.abs(dirs) < 90.0)  # always forward
+    assert fc.path["schmid"].to_numpy() == pytest.approx(1.0 / math.sqrt(6.0))
+
+
+def test_stage_two_runs_normal_to_the_in_plane_load(bicrystal_gg):
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.2), (0.0, 1.0, 0.0), 50.0, stage2_after_um=0.0)
+    assert set(fc.path["stage"]) == {"II"}
+    assert fc.path["direction_deg"].to_numpy() == pytest.approx(0.0, abs=1e-9)
+    assert fc.path["system"].eq(-1).all()
+
+
+def test_polyline_tip_and_direction(bicrystal_gg):
+    crack = np.array([[0.0, 22.0], [3.0, 21.0], [5.0, 20.0]])
+    fc = forecast_crack(bicrystal_gg, crack, None, L_HAND, 30.0)
+    assert fc.settings["tip_um"] == [5.0, 20.0]
+    d = np.array([2.0, -1.0]) / math.sqrt(5.0)
+    assert fc.settings["direction"] == pytest.approx(d.tolist())
+    assert fc.settings["initial_crack_um"] == pytest.approx(math.hypot(3, 1) + math.hypot(2, 1))
+
+
+# ------------------------------------------------------------------------- barriers
+def test_identical_orientations_are_no_barrier():
+    q = np.zeros((30, 60, 4))
+    q[..., 0] = 1.0
+    q[...] = quat_from_axis_angle([1.0, 2.0, 3.0], 25.0)
+    labels = np.zeros((30, 60), np.int64)
+    labels[:, 30:] = 1
+    quats = np.repeat(q[:1, 0], 2, axis=0)
+    gg = _stand_in(_omap(q), labels, quats, "subgrain", 0.0, 90.0)
+    fc = forecast_crack(gg, (3.0, 15.0), (1.0, 0.0), (0.0, 1.0, 0.0), 200.0, zigzag_tol=0.0,
+                        decay_length_um=np.inf)
+    b = fc.barriers.iloc[0]
+    assert b["twist_deg"] == pytest.approx(0.0, abs=1e-9)
+    assert b["m_prime"] == pytest.approx(1.0)
+    assert b["term_schmid_drop"] == pytest.approx(0.0)
+    # only the class term of a sub-grain boundary remains
+    w = BarrierWeights()
+    expect = w.boundary_class * CLASS_FACTORS["subgrain"] / (w.twist + w.transmission + w.boundary_class
+                                                            + w.schmid_drop)
+    assert b["score"] == pytest.approx(expect)
+    # the straight trace carries on through the boundary unchanged
+    assert fc.path["direction_deg"].nunique() == 1
+
+
+def test_ninety_degree_twist_ranks_highest_in_a_constructed_set():
+    import pandas as pd
+
+    rows = [{"boundary_id": k, "grain_a": k, "grain_b": k + 1, "twist_deg": tw, "tilt_deg": 10.0, "m_prime": 0.5,
+             "schmid_in": 0.45, "schmid_out": 0.45, "boundary_class": "high_angle", "distance_um": 10.0,
+             "misorientation_deg": 40.0, "x": 0.0, "y": 0.0, "branch": 0}
+            for k, tw in enumerate([0.0, 90.0, 30.0, 60.0, 15.0])]
+    ranked = rank_barriers(pd.DataFrame(rows))
+    assert list(ranked["twist_deg"]) == [90.0, 60.0, 30.0, 15.0, 0.0]
+    assert list(ranked["rank"]) == [1, 2, 3, 4, 5]
+    assert ranked["weight_twist"].eq(1.0).all() and ranked["term_twist"].iloc[0] == pytest.approx(1.0)
+    # every term is in [0, 1] and the score is the documented weighted mean × relevance
+    t = ranked.iloc[0]
+    wm = (t.term_twist + t.term_transmission + 0.5 * t.term_class + 0.5 * t.term_schmid_drop) / 3.0
+    assert t.score == pytest.approx(wm * t.relevance)
+
+
+def test_end_to_end_high_twist_boundary_outranks_a_low_twist_one(bicrystal_gg):
+    # the same left grain against a right grain that is a small rotation of it (low twist)
+    q = np.zeros((40, 80, 4))
+    q[..., 0] = 1.0
+    q[:, 40:] = quat_from_axis_angle([0.0, 0.0, 1.0], 20.0)
+    low = build_grain_graph(_omap(q))
+    kw = dict(zigzag_tol=0.0, decay_length_um=np.inf, max_branches=0)
+    hi_fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, **kw)
+    lo_fc = forecast_crack(low, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, **kw)
+    assert hi_fc.barriers["twist_deg"].iloc[0] > lo_fc.barriers["twist_deg"].iloc[0]
+    assert hi_fc.barriers["score"].iloc[0] > lo_fc.barriers["score"].iloc[0]
+
+
+def test_distance_decay_of_relevance(poly_gg):
+    fc = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 150.0, decay_length_um=40.0)
+    b = fc.barriers
+    assert b["relevance"].to_numpy() == pytest.approx(np.exp(-b["distance_um"].to_numpy() / 40.0))
+    assert b["score"].is_monotonic_decreasing
+
+
+# ------------------------------------------------------------------------- sites and field
+def test_site_score_is_shear_times_band_times_untransmitted(bicrystal_gg):
+    systems = slip_systems("bcc")
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 100.0, stress_amplitude=150.0,
+                        zigzag_tol=0.0)
+    s = fc.sites[fc.sites["grain"] == 0].iloc[0]
+    assert s["blocking_grain"] == 1
+    # the band of the left grain (trace along x through the centroid) ends on the boundary at x 39.5
+    assert s["x"] == pytest.approx(39.5, abs=0.05)
+    assert s["band_length_um"] == pytest.approx(40.0, abs=0.1)
+    assert s["resolved_shear_mpa"] == pytest.approx(0.5 * 150.0)
+    q = bicrystal_gg.mean_quats
+    eff_b = effective_schmid(schmid_factors(q[1], L_HAND, systems), systems)
+    trans = np.max(m_prime(q[0], q[1], systems)[s["system"]] * eff_b / eff_b.max())
+    assert s["transmission"] == pytest.approx(trans)
+    assert s["score"] == pytest.approx(75.0 * s["band_length_um"] * (1.0 - trans))
+    # the field is normalised and peaks on the band of the left grain
+    f = fc.field
+    assert f.shape == bicrystal_gg.labels.shape and f.max() == pytest.approx(1.0) and f.min() >= 0.0
+    i, j = np.unravel_index(np.argmax(f), f.shape)
+    assert abs(i - 19.5) <= 1.5 and j < 40
+
+
+# ------------------------------------------------------------------------- invariance
+def test_rotating_specimen_and_load_together_leaves_forecast_unchanged():
+    rng = np.random.default_rng(5)
+    ny, nx_ = 50, 70
+    labels = np.zeros((ny, nx_), np.int64)
+    labels[:, 25:] = 1
+    labels[25:, 25:] = 2
+    labels[:, 50:] = 3
+    gq = random_quats(4, seed=11)
+    q = gq[labels]
+    om = _omap(q)
+    gg = build_grain_graph(om)
+    load = rng.normal(size=3)
+    tip, d = np.array([4.0, 30.0]), np.array([1.0, 0.3])
+    kw = dict(zigzag_tol=0.0, max_branches=2)
+    fc = forecast_crack(gg, tip, d, load, 120.0, **kw)
+    # rotate by +90° about z: (x, y) → (−y, x), shifted so the map starts at 0: new[i', j'] = old[ny-1-j', i']
+    r = quat_from_axis_angle([0, 0, 1], 90.0)
+    om_r = apply_frame_rotation(_omap(np.flipud(q).transpose(1, 0, 2).copy()), r)
+    gg_r = build_grain_graph(om_r)
+    tip_r = np.array([(ny - 1) - tip[1], tip[0]])
+    d_r = np.array([-d[1], d[0]])
+    load_r = quat_rotate(r, load)  # v_map' = R v_map (q v q* is the active rotation)
+    fc_r = forecast_crack(gg_r, tip_r, d_r, load_r, 120.0, **kw)
+    # grain ids are renumbered by the reconstruction: map them through the rotated label image
+    old_rot = np.flipud(gg.labels).T
+    ids = {int(a): int(b) for a, b in zip(old_rot.ravel(), gg_r.labels.ravel(), strict=True)}
+    assert [ids[g] for g in fc.path["grain"]] == list(fc_r.path["grain"])
+    assert fc_r.length_um == pytest.approx(fc.length_um, abs=1.0)
+    assert fc_r.path["length_um"].to_numpy() == pytest.approx(fc.path["length_um"].to_numpy(), abs=1.0)
+    pairs = [tuple(sorted((ids[a], ids[b]))) for a, b in zip(fc.barriers["grain_a"], fc.barriers["grain_b"],
+                                                                strict=True)]
+    pairs_r = [tuple(sorted((a, b))) for a, b in zip(fc_r.barriers["grain_a"], fc_r.barriers["grain_b"],
+                                                     strict=True)]
+    assert pairs == pairs_r
+    assert fc_r.barriers["twist_deg"].to_numpy() == pytest.approx(fc.barriers["twist_deg"].to_numpy(), abs=1e-6)
+
+
+# ------------------------------------------------------------------------- edge cases
+def test_tip_outside_the_map_is_refused(bicrystal_gg):
+    with pytest.raises(ParameterError, match="outside the map"):
+        forecast_crack(bicrystal_gg, (-10.0, 20.0), (1.0, 0.0), L_HAND, 50.0)
+
+
+def test_tip_on_an_unindexed_point_is_refused_and_unindexed_runs_stop_or_cross():
+    q = np.zeros((30, 80, 4))
+    q[..., 0] = 1.0
+    q[:, 40:] = quat_from_axis_angle(L_HAND, 180.0)
+    ind = np.ones((30, 80), bool)
+    ind[:, 20:24] = False
+    gg = build_grain_graph(_omap(q, indexed=ind))
+    with pytest.raises(ParameterError, match="unindexed"):
+        forecast_crack(gg, (21.0, 15.0), (0.0, 1.0), L_HAND, 50.0)
+    stop = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0)
+    assert stop.stop_reason == "unindexed"
+    assert stop.path["x1"].iloc[-1] == pytest.approx(19.5, abs=0.05)
+    cross = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0, unindexed="cross")
+    assert cross.length_um > 30.0 and cross.path["x1"].max() > 40.0
+
+
+def test_tip_on_a_boundary_starts_in_the_grain_it_faces(bicrystal_gg):
+    fwd = forecast_crack(bicrystal_gg, (39.5, 20.0), (1.0, 0.0), L_HAND, 20.0, zigzag_tol=0.0)
+    back = forecast_crack(bicrystal_gg, (39.5, 20.0), (-1.0, 0.0), L_HAND, 20.0, zigzag_tol=0.0)
+    assert fwd.path["grain"].iloc[0] == 1 and fwd.settings["start_grain"] == 1
+    assert back.path["grain"].iloc[0] == 0
+
+
+def test_zero_or_negative_horizon_is_refused(bicrystal_gg):
+    for h in (0.0, -5.0):
+        with pytest.raises(ParameterError, match="horizon"):
+            forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, h)
+
+
+def test_bad_vectors_and_options_are_refused(bicrystal_gg):
+    with pytest.raises(ParameterError, match="direction"):
+        forecast_crack(bicrystal_gg, (5.0, 20.0), (0.0, 0.0), L_HAND, 10.0)
+    with pytest.raises(ParameterError, match="load_axis"):
+        forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), (0.0, 0.0, 0.0), 10.0)
+    with pytest.raises(ParameterError, match="stress_ratio"):
+        forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 10.0, stress_ratio=1.0)
+    with pytest.raises(ParameterError, match="unindexed"):
+        forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 10.0, unindexed="jump")
+
+
+def test_load_along_the_surface_normal(bicrystal_gg):
+    # stage I is defined (Schmid factors exist) …
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), (0.0, 0.0, 1.0), 30.0)
+    assert fc.length_um == pytest.approx(30.0) and set(fc.path["stage"]) == {"I"}
+    # … but stage II has no direction: every in-plane direction is normal to the load
+    with pytest.raises(ParameterError, match="surface normal"):
+        forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), (0.0, 0.0, 1.0), 30.0, stage2_after_um=10.0)
+
+
+def test_horizon_stops_the_path(bicrystal_gg):
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 12.0)
+    assert fc.stop_reason == "horizon"
+    assert fc.length_um == pytest.approx(12.0)
+    assert len(fc.barriers) == 0
+
+
+# ------------------------------------------------------------------------- Monte Carlo
+def test_monte_carlo_is_seeded_and_bounded(poly_gg):
+    kw = dict(samples=6, noise=MonteCarloNoise(orientation_deg=3.0, load_deg=3.0, tip_um=1.0, weights=0.3))
+    a = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 80.0, seed=4, **kw)
+    b = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 80.0, seed=4, **kw)
+    c = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 80.0, seed=5, **kw)
+    assert a.samples.equals(b.samples)
+    assert not a.samples[["tip_x", "load_x"]].equals(c.samples[["tip_x", "load_x"]])
+    for col in ("p_on_path", "p_top_k"):
+        assert a.barriers[col].between(0, 1).all()
+    assert a.sites["p_present"].between(0, 1).all()
+    assert len(a.samples) == 6
+
+
+def test_monte_carlo_without_noise_reproduces_the_nominal_forecast(poly_gg):
+    zero = MonteCarloNoise(orientation_deg=0.0, load_deg=0.0, tip_um=0.0, weights=0.0)
+    fc = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 80.0, samples=3, noise=zero, top_k=2)
+    on = fc.barriers[fc.barriers["on_path"]]
+    assert on["p_on_path"].eq(1.0).all()
+    assert fc.barriers["p_top_k"].to_numpy() == pytest.approx((fc.barriers["rank"] <= 2).astype(float).to_numpy())
+    assert fc.sites["p_present"].eq(1.0).all()
+    assert fc.samples["path_length_um"].to_numpy() == pytest.approx(fc.length_um)
+
+
+# ------------------------------------------------------------------------- kernels and outputs
+def test_march_kernel_matches_its_python_version():
+    rng = np.random.default_rng(0)
+    labels = rng.integers(-1, 3, size=(20, 30)).astype(np.int64)
+    labels[5:15, 5:25] = 1
+    for hexgrid in (False, True):
+        args = (labels, hexgrid, 0.0, 0.0, 1.0, 0.866 if hexgrid else 1.0, 10.0, 8.0, 0.6, 0.8, 1, 0.25, 50.0, False)
+        assert K.march_ray(*args) == pytest.approx(K.march_ray.py_func(*args))
+
+
+def test_write_forecast_outputs_and_caution(tmp_path, bicrystal_gg):
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, samples=2)
+    out = write_forecast(fc, tmp_path, bicrystal_gg)
+    for key in ("path_csv", "barriers_json", "sites_csv", "samples_csv", "map_png", "terms_png", "summary"):
+        assert out[key].exists()
+    assert CAUTION in (tmp_path / "summary.md").read_text(encoding="utf-8")
+    import pandas as pd
+
+    back = pd.read_csv(out["barriers_csv"])
+    assert list(back["rank"]) == list(fc.barriers["rank"])
