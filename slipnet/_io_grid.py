@@ -53,20 +53,28 @@ def detect_grid(x: np.ndarray, y: np.ndarray, *, step: float | None = None) -> t
     first = np.abs(y - y_min) <= 1e-6 * span + 1e-9
     xs = np.unique(x[first])
     ys = np.unique(y[~first])
+    dy = float(ys.min() - y_min) if ys.size else math.nan
+    if ys.size:
+        second = np.abs(y - ys.min()) <= 1e-6 * span + 1e-9
+        shift = float(x[second].min() - xs.min())
     if step is None:
         dx = np.diff(xs)
         if dx.size:
+            # the mean spacing over the whole first row is far less sensitive to rounded (e.g. float32)
+            # coordinates than one difference; keep the smallest difference if the row has gaps
             step = float(dx.min())
+            mean = float(xs[-1] - xs[0]) / dx.size
+            if abs(mean - step) <= 1e-3 * step:
+                step = mean
+            step = float(f"{step:.10g}")
         elif ys.size:
-            step = float(ys.min() - y_min)
+            # a single column: a hex grid betrays itself by the half-step shift of the second row
+            step = 2.0 * shift if shift > 1e-6 * span else dy
         else:
             raise InputFileError("the map holds a single point; give step= to place it")
     tol = _tolerance(step)
     if ys.size == 0:
         return "square", float(step)
-    dy = float(ys.min() - y_min)
-    second = np.abs(y - ys.min()) <= tol
-    shift = float(x[second].min() - xs.min())
     if abs(dy - step) <= tol and abs(shift) <= tol:
         return "square", float(step)
     if abs(dy - step * math.sqrt(3.0) / 2.0) <= tol and abs(shift - 0.5 * step) <= tol:

@@ -26,7 +26,6 @@ from __future__ import annotations
 import json
 import math
 import os
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -35,6 +34,7 @@ import pandas as pd
 from ._io_grid import place_points
 from .errors import InputFileError
 from .maps import GRIDS, STRUCTURES, OrientationMap, Phase
+from .orientation import quat_from_euler
 
 FORMAT_NAME = "slipnet-points"
 FORMAT_VERSION = 1
@@ -351,21 +351,27 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
         cols["x_um"], cols["y_um"], settings["step"], settings["grid"], shape=(ny, nx), where=where, path=path
     )
     n = ny * nx
-    euler = np.full((n, 3), np.nan)
-    euler[place.flat] = np.column_stack([cols["phi1_deg"], cols["Phi_deg"], cols["phi2_deg"]])
-    euler[place.flat[~indexed]] = np.nan
+    # build quaternions here and the map once (constructing it twice would double the checks)
+    quats = np.full((n, 4), np.nan)
+    rows = place.flat[indexed]
+    quats[rows] = quat_from_euler(
+        np.column_stack([cols["phi1_deg"][indexed], cols["Phi_deg"][indexed], cols["phi2_deg"][indexed]])
+    )
     phase = np.full(n, -1, np.int32)
     phase[place.flat] = ph.astype(np.int32)
     quality = np.zeros(n)
     quality[place.flat] = cols["quality"]
-    omap = OrientationMap.from_euler(
-        euler.reshape(ny, nx, 3),
-        settings["step"],
-        grid=settings["grid"],
+    ind = np.zeros(n, bool)
+    ind[rows] = True
+    return OrientationMap(
+        quats=quats.reshape(ny, nx, 4),
         phase=phase.reshape(ny, nx),
         quality=quality.reshape(ny, nx),
+        indexed=ind.reshape(ny, nx),
+        step=settings["step"],
+        grid=settings["grid"],
         phases=phases,
         origin=place.origin,
         name=settings.get("name", Path(path).stem),
+        meta=dict(settings.get("meta", {})),
     )
-    return replace(omap, meta=dict(settings.get("meta", {})))

@@ -481,3 +481,18 @@ def test_format_document_example_reads(tmp_path):
     assert omap.name == "coupon 4, notch root"
     assert not omap.indexed[0, 2] and omap.phase[1, 0] == 1
     np.testing.assert_allclose(omap.euler()[0, 1], [12.7, 45.1, 79.8], atol=1e-9)
+
+
+@pytest.mark.parametrize(("grid", "shape"), [("square", (3, 300)), ("hex", (4, 300)), ("hex", (5, 1))])
+def test_from_orix_recovers_step_from_rounded_coordinates(grid, shape):
+    from orix.crystal_map import CrystalMap
+
+    omap = OrientationMap.from_euler(np.zeros((*shape, 3)), 0.1, grid=grid)
+    xmap = to_orix(omap)
+    # float32 coordinates, as some files store them: 0.1 µm is not representable
+    x32 = xmap.x.astype(np.float32) if xmap.x is not None else np.zeros(xmap.size, np.float32)
+    y32 = xmap.y.astype(np.float32)
+    xm = CrystalMap(xmap.rotations, phase_id=xmap.phase_id, x=x32, y=y32, phase_list=xmap.phases, scan_unit="um")
+    back = from_orix(xm)
+    assert back.grid == grid and back.shape == shape
+    assert back.step == pytest.approx(0.1, rel=1e-6)
