@@ -368,3 +368,13 @@ def test_large_map_runs_and_keeps_the_grain_size():
     spec = make_specimen((1000, 1000), 1.0, grain_size_um=20.0, seed=3)
     assert _grain_ecd(spec).mean() == pytest.approx(20.0, rel=0.05)
     assert (~spec.omap.indexed).mean() == pytest.approx(0.02, rel=0.05)
+
+
+def test_specimen_example_runs(tmp_path, capsys):
+    import runpy
+    from pathlib import Path
+
+    script = Path(__file__).resolve().parents[1] / "examples" / "specimens" / "make_specimen.py"
+    written = runpy.run_path(str(script))["main"](tmp_path)
+    assert all(p.stat().st_size > 0 for p in written)
+    assert "requested spread 12°" in capsys.readouterr().out
