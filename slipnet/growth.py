@@ -582,7 +582,16 @@ def _grid(path: GrowthPath, a0: float, a1: float, n_points: int, x: np.ndarray) 
     d = path.barrier_positions_um
     xf = x[np.isfinite(x)]
     # the crossing is a jump in zone size: put a point on each side so the jump is sharp
-    extra = np.concatenate([xf, xf * (1 - 1e-9), d * (1 - 1e-6), d * (1 + 1e-6)])
+    extra = [xf, xf * (1 - 1e-9), d * (1 - 1e-6), d * (1 + 1e-6)]
+    # a blocked tip close to its barrier slows as √(1 − a/c): 1/(da/dN) peaks sharply just before the
+    # crossing (or the arrest barrier), so cluster points geometrically towards those ends
+    ends = np.concatenate([xf, d[~np.isfinite(x)][:1]])
+    if ends.size:
+        prev = np.concatenate([[a0], d])[np.searchsorted(d, ends, side="left")]
+        span = np.maximum(ends - prev, 0.0)
+        frac = np.geomspace(1e-7, 1.0, max(40, n_points // 20))
+        extra.append((ends[:, None] - span[:, None] * frac[None, :]).ravel())
+    extra = np.concatenate(extra)
     extra = extra[(extra > a0) & (extra < a1)]
     return np.unique(np.concatenate([base, extra]))
 
