@@ -286,12 +286,100 @@ def _run_compare(args) -> int:
     return 0
 
 
+def _add_notch(sub) -> None:
+    p = sub.add_parser("notch", help="rank candidate notch positions along a specimen edge")
+    p.add_argument("map", nargs="?", help="orientation map file (not needed with --study)")
+    p.add_argument("--study", help="TOML study file recording the whole plan (see slipnet.notch_sweep)")
+    p.add_argument("--batch", metavar="FOLDER", help="run --study over every map in FOLDER")
+    p.add_argument("--side", choices=["left", "right", "top", "bottom"], help="map side to notch")
+    p.add_argument("--edge", type=float, nargs="+", metavar="X Y",
+                   help="edge polyline as x1 y1 x2 y2 ... in µm (instead of --side)")
+    p.add_argument("--spacing", type=float, default=20.0, help="candidate spacing along the edge, µm (20)")
+    p.add_argument("--depth", type=float, default=50.0, help="notch depth, µm (50)")
+    p.add_argument("--radius", type=float, default=10.0, help="notch root radius, µm (10)")
+    p.add_argument("--opening", type=float, default=0.0, help="V-notch opening angle, degrees (0: U notch)")
+    p.add_argument("--load-axis", type=float, nargs=3, default=(1.0, 0.0, 0.0), metavar=("LX", "LY", "LZ"),
+                   help="load axis in the map frame (default 1 0 0)")
+    p.add_argument("--stress", type=float, default=200.0, help="nominal stress amplitude, MPa (200)")
+    p.add_argument("--ratio", type=float, default=-1.0, help="stress ratio R (-1)")
+    p.add_argument("--window", type=float, default=200.0, help="observation window along the path, µm (200)")
+    p.add_argument("--crack-sizes", type=float, nargs="+", default=(5.0, 20.0), help="initial crack sizes, µm")
+    p.add_argument("--objective", action="append", metavar="NAME=WEIGHT",
+                   help="objective and weight (repeat); default initiation_drive=1 barrier_strength_in_window=1")
+    p.add_argument("--pareto", action="store_true", help="rank by Pareto fronts instead of the weighted score")
+    p.add_argument("--samples", type=int, default=0, help="Monte Carlo samples per candidate (0)")
+    p.add_argument("--seed", type=int, default=0, help="seed of every random draw (0)")
+    p.add_argument("--threshold", type=float, default=15.0, help="grain boundary threshold, degrees (15)")
+    p.add_argument("--scheduler", default=None,
+                   help="synchronous | threads | processes | tcp://host:port of a dask.distributed scheduler")
+    p.add_argument("--workers", type=int, default=None, help="local workers (default: all cores)")
+    p.add_argument("--out", default="notch-plan", help="output folder (default notch-plan)")
+    p.set_defaults(func=_run_notch)
+
+
+def _parse_objectives(items) -> dict | None:
+    from .errors import ParameterError
+
+    if not items:
+        return None
+    out = {}
+    for it in items:
+        name, sep, val = it.partition("=")
+        try:
+            out[name.strip()] = float(val) if sep else 1.0
+        except ValueError as err:
+            raise ParameterError(f"--objective should be NAME=WEIGHT with a numeric weight; got {it!r}") from err
+    return out
+
+
+def _run_notch(args) -> int:
+    from .errors import ParameterError
+    from .notch_sweep import run_batch, run_study
+
+    if args.batch:
+        if not args.study:
+            raise ParameterError("--batch needs --study FILE")
+        table = run_batch(args.batch, args.study, args.out, scheduler=args.scheduler, progress=True)
+        print(f"{len(table)} best candidates of the batch written to {args.out}")
+        return 0
+    if args.study:
+        plan = run_study(args.study, args.out, scheduler=args.scheduler, progress=True)
+    else:
+        from .grains import build_grain_graph
+        from .io import read_map
+        from .notch import plan_notch
+        from .notch_sweep import write_plan
+
+        if not args.map:
+            raise ParameterError("give a map file, or --study FILE")
+        if (args.side is None) == (args.edge is None):
+            raise ParameterError("give exactly one of --side or --edge")
+        edge = args.side
+        if args.edge is not None:
+            if len(args.edge) < 4 or len(args.edge) % 2:
+                raise ParameterError(f"--edge should be an even count (>= 4) of numbers x1 y1 x2 y2; got {args.edge}")
+            edge = [args.edge[i:i + 2] for i in range(0, len(args.edge), 2)]
+        gg = build_grain_graph(read_map(args.map), threshold_deg=args.threshold)
+        plan = plan_notch(gg, edge, args.load_axis, spacing_um=args.spacing, stress_amplitude=args.stress,
+                          stress_ratio=args.ratio, depth_um=args.depth, root_radius_um=args.radius,
+                          opening_deg=args.opening, window_um=args.window, crack_sizes_um=args.crack_sizes,
+                          objectives=_parse_objectives(args.objective),
+                          method="pareto" if args.pareto else "weighted", samples=args.samples, seed=args.seed,
+                          scheduler=args.scheduler or "synchronous", workers=args.workers, progress=True)
+        write_plan(plan, gg, args.out)
+    best = plan.iloc[0]
+    print(f"best notch root at x = {best['x']:.1f} µm, y = {best['y']:.1f} µm (score {best['score']:.3f}); "
+          f"plan written to {args.out}")
+    return 0
+
+
 # (name, register function); each register function sets ``func`` on its parser.
 _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("demo", _add_demo),
     ("map", _add_map),
     ("slip", _add_slip),
     ("growth", _add_growth),
+    ("notch", _add_notch),
     ("compare", _add_compare),
 ]
 

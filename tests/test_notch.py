@@ -1,0 +1,247 @@
+"""Notch placement planner: candidates, stress concentration, ranking, schedulers, study files, errors."""
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from slipnet.errors import InputFileError, ParameterError
+from slipnet.grains import build_grain_graph
+from slipnet.maps import OrientationMap
+from slipnet.notch import (
+    NotchShape,
+    candidate_positions,
+    notch_stress_factor,
+    pareto_ranks,
+    peterson_kt,
+    plan_notch,
+    rank_candidates,
+)
+from slipnet.notch_sweep import read_study, run_study
+from slipnet.orientation import quat_from_axis_angle, quat_from_matrix, quat_multiply
+from slipnet.slip import effective_schmid, schmid_factors, slip_systems
+
+
+def _orientation_with_x_along(l_crystal, spin_deg=0.0):
+    """Orientation g with g · x_sample = l_crystal, spun about the load axis by ``spin_deg``."""
+    l_c = np.asarray(l_crystal, float)
+    l_c /= np.linalg.norm(l_c)
+    m = np.cross(l_c, [0.3, 0.5, 0.8])
+    m /= np.linalg.norm(m)
+    g = np.stack([l_c, m, np.cross(l_c, m)], axis=1)  # columns: images of x, y, z
+    q = quat_from_matrix(g)
+    # spinning the crystal about the load axis (sample x) keeps every Schmid factor
+    return quat_multiply(q, quat_from_axis_angle([1, 0, 0], spin_deg))
+
+
+def _band_specimen():
+    """Three horizontal bands, 40 µm high, 200 µm long; the middle one has a 0.5 Schmid factor."""
+    ny, nx, step = 60, 100, 2.0
+    n = np.array([1, 1, 0]) / math.sqrt(2)
+    d = np.array([1, -1, 1]) / math.sqrt(3)
+    q_best = _orientation_with_x_along(n + d)  # load at 45° to both n and d: m = 0.5
+    q_low_a = _orientation_with_x_along([1, 1, 1], 0.0)
+    q_low_b = _orientation_with_x_along([1, 1, 1], 35.0)
+    q = np.empty((ny, nx, 4))
+    q[:20], q[20:40], q[40:] = q_low_a, q_best, q_low_b
+    omap = OrientationMap(q, np.zeros((ny, nx), int), np.ones((ny, nx)), np.ones((ny, nx), bool), step)
+    return omap, (q_low_a, q_best, q_low_b)
+
+
+@pytest.fixture(scope="module")
+def bands():
+    omap, qs = _band_specimen()
+    return build_grain_graph(omap), qs
+
+
+def test_band_orientations_have_the_intended_schmid_factors(bands):
+    _gg, (qa, qb, qc) = bands
+    ss = slip_systems("bcc")
+    m = effective_schmid(schmid_factors(np.stack([qa, qb, qc]), (1, 0, 0), ss), ss).max(axis=1)
+    # Load at 45° to a slip plane normal and its slip direction gives the largest possible 0.5
+    # (Schmid & Boas 1935); along <111>, {112}<111> reaches 0.314 (common practice).
+    assert m[1] == pytest.approx(0.5, abs=1e-9)
+    assert m[0] == pytest.approx(m[2]) and m[0] < 0.35
+
+
+def test_position_facing_the_favourable_grain_ranks_first(bands):
+    gg, _ = bands
+    plan = plan_notch(gg, "left", (1, 0, 0), spacing_um=10.0, depth_um=10.0, root_radius_um=4.0,
+                      window_um=80.0, crack_sizes_um=(5.0,), objectives={"initiation_drive": 1.0})
+    best = plan.iloc[0]
+    assert best["rank"] == 1 and best["valid"]
+    assert 40.0 <= best["y"] <= 78.0  # the root sits in the middle band
+    assert best["root_schmid"] == pytest.approx(0.5, abs=1e-6)
+    # no boundary ahead along the band: no strong barrier in the window (a weak first barrier)
+    assert math.isinf(best["first_barrier_um"])
+    assert list(plan.columns[:4]) == ["x", "y", "rank", "score"]
+    assert plan["rank"].is_monotonic_increasing
+
+
+def test_peterson_kt_against_chart_values_and_inglis():
+    # Peterson's semi-infinite-plate fit for a U notch, K_t = 0.855 + 2.21 sqrt(t/r), 1 <= t/r <= 361
+    # (Pilkey & Pilkey 2008, Peterson's Stress Concentration Factors, 3rd ed., chart 2.2; from memory).
+    assert peterson_kt(4.0, 1.0) == pytest.approx(0.855 + 2.21 * 2.0)
+    assert peterson_kt(1.0, 1.0) == pytest.approx(3.065)
+    # Independent check: for deep notches the fit approaches the Inglis (1913, Trans. Inst. Naval
+    # Archit. 55:219) elliptical-hole value 1 + 2 sqrt(t/r) times the free-edge factor 1.12
+    # (Tada, Paris & Irwin 2000, The Stress Analysis of Cracks Handbook): within 5 %.
+    for ratio in (9.0, 25.0, 100.0, 361.0):
+        assert peterson_kt(ratio, 1.0) == pytest.approx(1.12 * (1 + 2 * math.sqrt(ratio)), rel=0.05)
+    # V notches up to 90° behave as U notches; a 180° "notch" is a flat edge (K_t = 1).
+    assert peterson_kt(4.0, 1.0, 60.0) == pytest.approx(peterson_kt(4.0, 1.0))
+    assert peterson_kt(4.0, 1.0, 180.0) == pytest.approx(1.0)
+    assert 1.0 < peterson_kt(4.0, 1.0, 135.0) < peterson_kt(4.0, 1.0)
+
+
+def test_notch_stress_factor_blends_short_and_long_crack_limits():
+    # Dowling (1979): the smaller of K_t and the long-crack equivalent sqrt((t + a)/a).
+    kt, t = 3.0, 50.0
+    assert notch_stress_factor(kt, t, 1.0) == pytest.approx(3.0)
+    assert notch_stress_factor(kt, t, 500.0) == pytest.approx(math.sqrt(550 / 500))
+    a = np.linspace(0.5, 1000, 200)
+    assert np.all(np.diff(notch_stress_factor(kt, t, a)) <= 1e-12)
+
+
+def test_pareto_ranks_small_case():
+    # Hand-made: (3,3) dominates everything; (1,2) and (2,1) are mutually non-dominated.
+    v = np.array([[3, 3], [1, 2], [2, 1], [0, 0], [1, 1]], float)
+    np.testing.assert_array_equal(pareto_ranks(v, [True, True]), [1, 2, 2, 4, 3])
+    # Minimising the second objective instead changes the fronts.
+    np.testing.assert_array_equal(pareto_ranks(v, [True, False])[[0, 2]], [1, 1])
+
+
+def test_rank_candidates_weighted_and_signs():
+    t = pd.DataFrame({"valid": [True] * 3, "initiation_drive": [1.0, 2.0, 3.0], "first_barrier_um": [10.0, 5.0, np.inf]})
+    r = rank_candidates(t, {"initiation_drive": 1.0})
+    assert list(r["initiation_drive"]) == [3.0, 2.0, 1.0]
+    # A negative weight prefers small values; inf ("no barrier reached") is the worst.
+    r = rank_candidates(t, {"first_barrier_um": -1.0})
+    assert list(r["first_barrier_um"])[:2] == [5.0, 10.0]
+    p = rank_candidates(t, {"initiation_drive": 1.0, "first_barrier_um": -1.0}, method="pareto")
+    assert set(p.loc[p["rank"] == 1, "initiation_drive"]) == {2.0, 3.0}
+
+
+def test_candidates_along_a_polyline_point_inwards(bands):
+    gg, _ = bands
+    cands = candidate_positions(gg, [[0, 0], [0, 118]], 20.0, NotchShape(10.0, 4.0))
+    assert len(cands) == 6
+    assert all(c.normal_x == pytest.approx(1.0) for c in cands)
+    assert all(c.root_x == pytest.approx(10.0) for c in cands)
+    top = candidate_positions(gg, "top", 50.0, NotchShape(10.0, 4.0))
+    assert all(c.normal_y == pytest.approx(1.0) for c in top)
+
+
+def test_same_seed_same_table_on_every_local_scheduler(bands):
+    gg, _ = bands
+    kw = dict(spacing_um=30.0, depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,),
+              samples=2, seed=5)
+    a = plan_notch(gg, "left", (1, 0, 0), scheduler="synchronous", **kw)
+    b = plan_notch(gg, "left", (1, 0, 0), scheduler="threads", workers=2, **kw)
+    pd.testing.assert_frame_equal(a, b)
+    assert "initiation_drive_p05" in a and "p_top_k" in a
+    c = plan_notch(gg, "left", (1, 0, 0), scheduler="synchronous", **{**kw, "seed": 6})
+    assert not np.allclose(a["initiation_drive_p50"], c["initiation_drive_p50"])
+
+
+@pytest.mark.slow
+def test_same_seed_same_table_on_a_local_distributed_cluster(bands):
+    from distributed import LocalCluster
+
+    gg, _ = bands
+    kw = dict(spacing_um=30.0, depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,),
+              samples=2, seed=3)
+    a = plan_notch(gg, "left", (1, 0, 0), scheduler="threads", workers=2, **kw)
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+        b = plan_notch(gg, "left", (1, 0, 0), scheduler=cluster.scheduler_address, **kw)
+    pd.testing.assert_frame_equal(a, b)
+
+
+def test_bad_inputs_give_clear_errors(bands):
+    gg, _ = bands
+    kw = dict(depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,))
+    with pytest.raises(ParameterError, match="outside the map"):
+        plan_notch(gg, [[-500, 0], [-500, 100]], (1, 0, 0), **kw)
+    with pytest.raises(ParameterError, match="spacing_um"):
+        plan_notch(gg, "left", (1, 0, 0), spacing_um=0.0, **kw)
+    with pytest.raises(ParameterError, match="deeper than the map"):
+        plan_notch(gg, "top", (1, 0, 0), **{**kw, "depth_um": 500.0})
+    with pytest.raises(ParameterError, match="unknown objective"):
+        plan_notch(gg, "left", (1, 0, 0), objectives={"fastest": 1.0}, **kw)
+    with pytest.raises(ParameterError, match="could not reach the dask scheduler"):
+        plan_notch(gg, "left", (1, 0, 0), scheduler="tcp://127.0.0.1:9", **kw)
+    with pytest.raises(ParameterError, match="scheduler should be"):
+        plan_notch(gg, "left", (1, 0, 0), scheduler="cloud", **kw)
+    with pytest.raises(ParameterError, match="target"):
+        plan_notch(gg, "left", (1, 0, 0), objectives={"target_offset_um": -1.0}, **kw)
+
+
+STUDY = """
+[specimen]
+map = "bands.npz"
+
+[loading]
+axis = [1, 0, 0]
+stress_amplitude_mpa = 180
+
+[notch]
+depth_um = 10
+root_radius_um = 4
+
+[candidates]
+edge = "left"
+spacing_um = 30
+window_um = 60
+crack_sizes_um = [5]
+
+[objectives]
+weights = { initiation_drive = 1.0, barriers_in_window = -0.5 }
+
+[uncertainty]
+seed = 2
+"""
+
+
+def test_study_file_runs_and_writes_outputs(tmp_path):
+    from slipnet.io import write_map
+
+    omap, _ = _band_specimen()
+    write_map(omap, tmp_path / "bands.npz")
+    study = tmp_path / "study.toml"
+    study.write_text(STUDY)
+    plan = run_study(study, tmp_path / "out")
+    assert 40.0 <= plan.iloc[0]["y"] <= 78.0
+    for name in ("notch_plan.csv", "notch_plan.json", "settings.json", "notch_plan_map.png", "summary.md"):
+        assert (tmp_path / "out" / name).is_file()
+    assert "support, never replace" in (tmp_path / "out" / "summary.md").read_text()
+    again = pd.read_csv(tmp_path / "out" / "notch_plan.csv")
+    np.testing.assert_allclose(again["score"], plan["score"])
+
+
+def test_bad_study_files(tmp_path):
+    study = tmp_path / "s.toml"
+    study.write_text("[loading]\nspeed = 3\n")
+    with pytest.raises(InputFileError, match="unknown key"):
+        read_study(study)
+    study.write_text("[specimen]\nmap = 'missing.npz'\n")
+    with pytest.raises(InputFileError, match="does not exist"):
+        read_study(study)
+    study.write_text("not = [valid")
+    with pytest.raises(InputFileError, match="TOML"):
+        read_study(study)
+
+
+def test_cli_refuses_bad_input_and_writes_nothing(tmp_path, capsys):
+    from slipnet.cli import main
+    from slipnet.io import write_map
+
+    omap, _ = _band_specimen()
+    write_map(omap, tmp_path / "bands.npz")
+    out = tmp_path / "plan"
+    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "left", "--spacing", "-1", "--out", str(out)])
+    assert code == 2 and "spacing_um" in capsys.readouterr().err
+    assert not out.exists()
+    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "left", "--spacing", "30", "--depth", "10",
+                 "--radius", "4", "--window", "60", "--crack-sizes", "5", "--out", str(out)])
+    assert code == 0 and (out / "notch_plan.csv").is_file()
