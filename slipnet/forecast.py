@@ -40,7 +40,6 @@ import pandas as pd
 from . import _forecast_kernels as _k
 from ._checks import check_choice, check_positive, check_range, check_vector
 from .errors import ParameterError
-from .orientation import matrix_from_quat
 
 __all__ = [
     "CLASS_FACTORS",
@@ -233,10 +232,17 @@ def crack_plane_angles(n_in, n_out, trace_angle_deg, inclination_deg: float = 0.
     th = math.radians(float(trace_angle_deg))
     psi = math.radians(float(inclination_deg))
     b = np.array([math.cos(th), math.sin(th), 0.0])
-    n_gb = math.cos(psi) * np.cross(_Z, b) + math.sin(psi) * _Z
-    return _line_angle(np.cross(n_in, n_gb), np.cross(n_out, n_gb)), _line_angle(
-        np.cross(n_in, _Z), np.cross(n_out, _Z)
+    n_gb = math.cos(psi) * np.array([-b[1], b[0], 0.0]) + math.sin(psi) * _Z  # cos ψ (z × b) + sin ψ z
+    return _line_angle(_cross3(n_in, n_gb), _cross3(n_out, n_gb)), _line_angle(
+        _cross3(n_in, _Z), _cross3(n_out, _Z)
     )
+
+
+def _cross3(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    # np.cross re-arranges axes on every call; written out it is several times cheaper here
+    a, b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(b, dtype=float))
+    return np.stack([a[..., 1] * b[..., 2] - a[..., 2] * b[..., 1], a[..., 2] * b[..., 0] - a[..., 0] * b[..., 2],
+                     a[..., 0] * b[..., 1] - a[..., 1] * b[..., 0]], axis=-1)
 
 
 def _line_angle(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -245,7 +251,7 @@ def _line_angle(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     nb_ = np.linalg.norm(b, axis=-1)
     ok = (na > 1e-9) & (nb_ > 1e-9)
     dot = np.abs(np.einsum("...i,...i->...", a, b))
-    crs = np.linalg.norm(np.cross(a, b), axis=-1)
+    crs = np.linalg.norm(_cross3(a, b), axis=-1)
     return np.where(ok, np.degrees(np.arctan2(crs, dot)), 0.0)
 
 
@@ -322,6 +328,7 @@ class _Planes:
         self.n_planes = len(uniq)
         self.normals = np.array([canon[np.flatnonzero(self.plane_of == p)[0]] for p in range(self.n_planes)])
         self.labels = [_miller_label(n) for n in self.normals]
+        self.members = [np.flatnonzero(self.plane_of == p) for p in range(self.n_planes)]
         self.crss = np.asarray(systems.crss, dtype=float)
         # {112} slip is sense-dependent (twinning / anti-twinning); other families are symmetric
         self.crss_rev = np.asarray(getattr(systems, "crss_reverse", systems.crss), dtype=float)
@@ -329,11 +336,21 @@ class _Planes:
         self.sys_dirs = np.asarray(systems.directions, dtype=float)
 
 
+def _matrices(q: np.ndarray) -> np.ndarray:
+    """Rotation matrices g (v_c = g v_s) of unit quaternions, (n, 3, 3): plain numpy, cheap for grains."""
+    w, x, y, z = (np.asarray(q, dtype=float)[:, k] for k in range(4))
+    return np.stack([
+        np.stack([1 - 2 * (y * y + z * z), 2 * (x * y - w * z), 2 * (x * z + w * y)], axis=-1),
+        np.stack([2 * (x * y + w * z), 1 - 2 * (x * x + z * z), 2 * (y * z - w * x)], axis=-1),
+        np.stack([2 * (x * z - w * y), 2 * (y * z + w * x), 1 - 2 * (x * x + y * y)], axis=-1),
+    ], axis=1)
+
+
 class _Crystal:
     """Everything orientation-dependent: sample-frame normals, Schmid factors, plane traces."""
 
     def __init__(self, quats: np.ndarray, load: np.ndarray, planes: _Planes, schmid=None) -> None:
-        g = matrix_from_quat(quats)  # (n, 3, 3); v_s = gᵀ v_c
+        g = _matrices(quats)  # (n, 3, 3); v_s = gᵀ v_c
         self.n_s = np.einsum("gji,sj->gsi", g, planes.sys_normals)
         self.d_s = np.einsum("gji,sj->gsi", g, planes.sys_dirs)
         if schmid is None:
@@ -342,9 +359,9 @@ class _Crystal:
         self.meff = np.abs(self.schmid) / np.where(self.schmid >= 0, planes.crss, planes.crss_rev)
         ng = quats.shape[0]
         # best system on each plane, per grain
-        masked = np.where(planes.plane_of[None, None, :] == np.arange(planes.n_planes)[None, :, None],
-                          self.meff[:, None, :], -1.0)  # (n, P, S)
-        self.plane_sys = np.argmax(masked, axis=2)  # (n, P)
+        self.plane_sys = np.zeros((ng, planes.n_planes), np.int64)
+        for p, idx in enumerate(planes.members):  # a few dozen planes: vectorised over grains
+            self.plane_sys[:, p] = idx[np.argmax(self.meff[:, idx], axis=1)]
         self.plane_meff = np.take_along_axis(self.meff, self.plane_sys, axis=1)
         self.plane_n = np.einsum("gji,pj->gpi", g, planes.normals)
         t = np.stack([self.plane_n[..., 1], -self.plane_n[..., 0]], axis=-1)  # n × z, in-plane part
@@ -663,36 +680,37 @@ def rank_barriers(
     if crossings is None or len(crossings) == 0:
         return pd.DataFrame({c: pd.Series(dtype=object if c in ("boundary_class", "branches") else float)
                              for c in cols})
-    cr = crossings.copy()
-    if "branch" not in cr:
-        cr["branch"] = 0
-    cr["_key"] = np.where(cr["boundary_id"] >= 0, cr["boundary_id"],
-                          -(1 + np.minimum(cr["grain_a"], cr["grain_b"]) * 1_000_003 + np.maximum(cr["grain_a"],
-                                                                                              cr["grain_b"])))
-    branches = cr.groupby("_key")["branch"].apply(lambda b: ";".join(str(v) for v in sorted(set(b))))
-    on_path = cr.groupby("_key")["branch"].apply(lambda b: bool((b == 0).any()))
-    cr = cr.sort_values(["_key", "branch", "distance_um"], kind="stable").drop_duplicates("_key")
+    n = len(crossings)
+    col = {c: crossings[c].to_numpy() for c in crossings.columns}
+    branch = col.get("branch", np.zeros(n, int))
+    ga, gb = col["grain_a"].astype(int), col["grain_b"].astype(int)
+    keys = [(min(a, b), max(a, b)) for a, b in zip(ga, gb, strict=True)]
+    # one row per boundary: its main-path crossing if any, else the first alternative crossing
+    first: dict = {}
+    seen: dict = {}
+    for i in np.lexsort((col["distance_um"], branch)):
+        k = keys[i]
+        seen.setdefault(k, set()).add(int(branch[i]))
+        first.setdefault(k, i)
+    idx = np.array(list(first.values()), dtype=int)
+    mis = col.get("misorientation_deg", np.full(n, np.nan))
     out = pd.DataFrame({
-        "boundary_id": cr["boundary_id"].astype(int).to_numpy(),
-        "grain_a": cr["grain_a"].astype(int).to_numpy(),
-        "grain_b": cr["grain_b"].astype(int).to_numpy(),
-        "twist_deg": cr["twist_deg"].to_numpy(float),
-        "tilt_deg": cr["tilt_deg"].to_numpy(float),
-        "m_prime": cr["m_prime"].to_numpy(float),
-        "distance_um": cr["distance_um"].to_numpy(float),
-        "on_path": on_path.loc[cr["_key"]].to_numpy(bool),
-        "boundary_class": cr["boundary_class"].astype(str).to_numpy(),
-        "misorientation_deg": cr.get("misorientation_deg", pd.Series(np.nan, index=cr.index)).to_numpy(float),
-        "schmid_in": cr["schmid_in"].to_numpy(float),
-        "schmid_out": cr["schmid_out"].to_numpy(float),
-        "x": cr["x"].to_numpy(float),
-        "y": cr["y"].to_numpy(float),
-        "branches": branches.loc[cr["_key"]].to_numpy(str),
+        "boundary_id": col["boundary_id"][idx].astype(int),
+        "grain_a": ga[idx], "grain_b": gb[idx],
+        "twist_deg": col["twist_deg"][idx].astype(float), "tilt_deg": col["tilt_deg"][idx].astype(float),
+        "m_prime": col["m_prime"][idx].astype(float), "distance_um": col["distance_um"][idx].astype(float),
+        "on_path": [0 in seen[keys[i]] for i in idx],
+        "boundary_class": col["boundary_class"][idx].astype(str),
+        "misorientation_deg": mis[idx].astype(float),
+        "schmid_in": col["schmid_in"][idx].astype(float), "schmid_out": col["schmid_out"][idx].astype(float),
+        "x": col["x"][idx].astype(float), "y": col["y"][idx].astype(float),
+        "branches": [";".join(str(b) for b in sorted(seen[keys[i]])) for i in idx],
     })
-    out["term_twist"] = np.clip(out["twist_deg"] / 90.0, 0.0, 1.0)
-    out["term_transmission"] = np.clip(1.0 - out["m_prime"], 0.0, 1.0)
+    out["term_twist"] = np.clip(out["twist_deg"].to_numpy() / 90.0, 0.0, 1.0)
+    out["term_transmission"] = np.clip(1.0 - out["m_prime"].to_numpy(), 0.0, 1.0)
     out["term_class"] = [_class_factor(c, cf) for c in out["boundary_class"]]
-    out["term_schmid_drop"] = np.clip((out["schmid_in"] - out["schmid_out"]) / _MAX_SCHMID, 0.0, 1.0)
+    out["term_schmid_drop"] = np.clip((out["schmid_in"].to_numpy() - out["schmid_out"].to_numpy()) / _MAX_SCHMID,
+                                      0.0, 1.0)
     out["relevance"] = np.exp(-out["distance_um"] / decay_length_um)
     out["weight_twist"] = w.twist
     out["weight_transmission"] = w.transmission

@@ -18,9 +18,17 @@ from dataclasses import fields, replace
 import numpy as np
 import pandas as pd
 
-from .orientation import quat_from_axis_angle, quat_multiply
+from .orientation import quat_from_axis_angle
 
 __all__ = ["monte_carlo", "perturb_quats"]
+
+
+def _qmul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Hamilton product of (n, 4) rows in plain numpy (cheaper than a threaded kernel for grains)."""
+    aw, ax, ay, az = a.T
+    bw, bx, by, bz = b.T
+    return np.stack([aw * bw - ax * bx - ay * by - az * bz, aw * bx + ax * bw + ay * bz - az * by,
+                     aw * by - ax * bz + ay * bw + az * bx, aw * bz + ax * by - ay * bx + az * bw], axis=-1)
 
 
 def perturb_quats(quats: np.ndarray, sigma_deg: float, rng: np.random.Generator) -> np.ndarray:
@@ -44,7 +52,7 @@ def perturb_quats(quats: np.ndarray, sigma_deg: float, rng: np.random.Generator)
     if sigma_deg <= 0 or n == 0:
         return quats.copy()
     dq = quat_from_axis_angle(axes, angles)
-    q = quat_multiply(dq, quats)
+    q = _qmul(dq, quats)
     return np.where(q[:, :1] < 0, -q, q)
 
 

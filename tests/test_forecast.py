@@ -437,3 +437,13 @@ def test_write_forecast_outputs_and_caution(tmp_path, bicrystal_gg):
 
     back = pd.read_csv(out["barriers_csv"])
     assert list(back["rank"]) == list(fc.barriers["rank"])
+
+
+def test_private_numpy_rotations_match_the_orientation_module():
+    from slipnet.forecast import _matrices
+    from slipnet.forecast_mc import _qmul
+    from slipnet.orientation import matrix_from_quat, quat_multiply
+
+    a, b = random_quats(20, seed=1), random_quats(20, seed=2)
+    assert _matrices(a) == pytest.approx(matrix_from_quat(a), abs=1e-12)
+    assert _qmul(a, b) == pytest.approx(quat_multiply(a, b), abs=1e-12)
