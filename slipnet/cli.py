@@ -373,11 +373,97 @@ def _run_notch(args) -> int:
     return 0
 
 
+def _add_forecast(sub) -> None:
+    p = sub.add_parser(
+        "forecast",
+        help="short-crack path ahead of a tip, ranked arrest barriers and strain-localisation sites",
+        description="Rebuild grains from IN (an orientation map) or load a saved grain graph (--graph), then "
+        "forecast the stage-I crack path from the tip, rank the boundaries it meets and the sites where "
+        "slip bands pile up; write tables (CSV + JSON), pictures and a summary into --out.",
+    )
+    p.add_argument("input", metavar="IN", nargs="?", help="orientation map file (omit when --graph is given)")
+    p.add_argument("--graph", metavar="FILE", help="grain graph saved earlier with --save-graph (trusted files only)")
+    p.add_argument("--save-graph", metavar="FILE", help="also save the rebuilt grain graph here for later runs")
+    p.add_argument("--out", default="slipnet-forecast", help="output folder (default: slipnet-forecast)")
+    p.add_argument("--tip", nargs=2, type=float, metavar=("X", "Y"), help="crack tip in µm")
+    p.add_argument("--crack", metavar="CSV", help="crack polyline: CSV with columns x_um, y_um (tip = last point)")
+    p.add_argument("--direction", nargs=2, type=float, metavar=("DX", "DY"),
+                   help="growth direction in the map frame (default: last crack segment)")
+    p.add_argument("--load-axis", nargs=3, type=float, default=(0.0, 1.0, 0.0), metavar=("X", "Y", "Z"),
+                   help="uniaxial load axis in the map frame (default 0 1 0)")
+    p.add_argument("--stress", type=float, default=200.0, help="stress amplitude, MPa (default 200)")
+    p.add_argument("--ratio", type=float, default=-1.0, help="stress ratio R = min/max (default -1)")
+    p.add_argument("--horizon", type=float, default=200.0, help="path length to forecast, µm (default 200)")
+    p.add_argument("--samples", type=int, default=0, help="Monte Carlo samples (default 0: none)")
+    p.add_argument("--seed", type=int, default=0, help="Monte Carlo seed (default 0)")
+    p.add_argument("--top-k", type=int, default=3, help="k of the top-k probabilities (default 3)")
+    p.add_argument("--threshold", type=float, default=15.0, help="grain boundary threshold, degrees (default 15)")
+    p.add_argument("--stage2-after", type=float, help="switch to stage II past this path length, µm")
+    p.add_argument("--zigzag-tol", type=float, default=0.05, help="relative Schmid tolerance for zig-zag (0.05)")
+    p.add_argument("--max-branches", type=int, default=4, help="alternative paths to follow (default 4)")
+    p.add_argument("--inclination", type=float, default=0.0,
+                   help="boundary-plane inclination from the vertical about its trace, degrees (default 0)")
+    p.add_argument("--frame-rotation", metavar="ROT", help="as for 'slipnet map'")
+    p.set_defaults(func=_run_forecast)
+
+
+def _run_forecast(args) -> int:
+    import pickle
+
+    from .errors import InputFileError, ParameterError
+    from .forecast import forecast_crack, write_forecast
+
+    if args.graph:
+        try:
+            with open(args.graph, "rb") as fh:
+                gg = pickle.load(fh)
+        except (OSError, pickle.UnpicklingError, EOFError) as err:
+            raise InputFileError(f"cannot read a saved grain graph: {err}", path=args.graph) from err
+        if not hasattr(gg, "labels") or not hasattr(gg, "mean_quats"):
+            raise InputFileError("the file does not hold a slipnet grain graph", path=args.graph)
+    elif args.input:
+        from .grains import build_grain_graph
+        from .io import read_map
+
+        gg = build_grain_graph(read_map(args.input, frame_rotation=args.frame_rotation),
+                               threshold_deg=args.threshold)
+    else:
+        raise ParameterError("forecast: give a map file IN or --graph FILE")
+    if args.save_graph:
+        from ._files import atomic_path
+
+        with atomic_path(args.save_graph) as tmp, open(tmp, "wb") as fh:
+            pickle.dump(gg, fh)
+    if args.crack:
+        import pandas as pd
+
+        try:
+            cr = pd.read_csv(args.crack)
+            tip = cr[["x_um", "y_um"]].to_numpy(float)
+        except (OSError, KeyError, ValueError) as err:
+            raise InputFileError(f"crack polyline should be a CSV with columns x_um, y_um: {err}",
+                                 path=args.crack) from err
+    elif args.tip:
+        tip = args.tip
+    else:
+        raise ParameterError("forecast: give the crack tip (--tip X Y) or a crack polyline (--crack CSV)")
+    fc = forecast_crack(gg, tip, args.direction, args.load_axis, args.horizon, stress_amplitude=args.stress,
+                        stress_ratio=args.ratio, samples=args.samples, seed=args.seed, top_k=args.top_k,
+                        stage2_after_um=args.stage2_after, zigzag_tol=args.zigzag_tol,
+                        max_branches=args.max_branches, inclination_deg=args.inclination)
+    write_forecast(fc, args.out, gg)
+    print(f"forecast: path {fc.length_um:.1f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} "
+          f"grains (stopped: {fc.stop_reason}), {len(fc.barriers)} barriers, {len(fc.sites)} sites; "
+          f"outputs written to {args.out}")
+    return 0
+
+
 # (name, register function); each register function sets ``func`` on its parser.
 _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("demo", _add_demo),
     ("map", _add_map),
     ("slip", _add_slip),
+    ("forecast", _add_forecast),
     ("growth", _add_growth),
     ("notch", _add_notch),
     ("compare", _add_compare),
