@@ -45,6 +45,30 @@ def _step_files(ctx: dict) -> None:
     ctx.setdefault("notes", []).append("Map files: " + ", ".join(p.name for p in files) + ".")
 
 
+def _step_forecast(ctx: dict) -> None:
+    """Forecast the crack path from the demo notch root: barriers, sites, a modest Monte Carlo."""
+    from .forecast import forecast_crack, write_forecast
+
+    gg = ctx.get("grain_graph")
+    spec = ctx.get("specimen")
+    if gg is None or spec is None or getattr(spec, "notch_root", None) is None:
+        ctx.setdefault("notes", []).append("Forecast: skipped (needs the grains step and a notch).")
+        return
+    load = spec.load_axis if getattr(spec, "load_axis", None) is not None else (0.0, 1.0, 0.0)
+    horizon = 0.6 * (gg.omap.extent[1] - gg.omap.extent[0])
+    fc = forecast_crack(gg, spec.notch_root, spec.notch_direction, load, horizon, stress_amplitude=200.0,
+                        stress_ratio=-1.0, systems=ctx.get("systems"), stress_field=ctx.get("stress_field"),
+                        samples=8 if ctx["quick"] else 40, seed=ctx["seed"])
+    write_forecast(fc, Path(ctx["out"]) / "forecast", gg, title="Demo crack forecast from the notch root")
+    ctx["forecast"] = fc
+    top = fc.barriers.iloc[0] if len(fc.barriers) else None
+    ctx.setdefault("notes", []).append(
+        f"Forecast: path {fc.length_um:.0f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} grains "
+        f"(stopped: {fc.stop_reason}); {len(fc.barriers)} barriers"
+        + (f", strongest boundary {int(top['boundary_id'])} at {top['distance_um']:.0f} µm" if top is not None else "")
+        + f"; {len(fc.sites)} localisation sites (forecast/).")
+
+
 def _step_growth(ctx: dict) -> None:
     from .growth import simulate_growth, write_growth
 
@@ -101,6 +125,7 @@ def _step_compare(ctx: dict) -> None:
 STEPS: list[tuple[str, Callable[[dict], None]]] = [
     ("specimen", _step_specimen),
     ("files", _step_files),
+    ("forecast", _step_forecast),
     ("growth", _step_growth),
     ("compare", _step_compare),
 ]
