@@ -589,7 +589,7 @@ def _grid(path: GrowthPath, a0: float, a1: float, n_points: int, x: np.ndarray) 
     if ends.size:
         prev = np.concatenate([[a0], d])[np.searchsorted(d, ends, side="left")]
         span = np.maximum(ends - prev, 0.0)
-        frac = np.geomspace(1e-7, 1.0, max(40, n_points // 20))
+        frac = np.geomspace(1e-7, 1.0, 48)
         extra.append((ends[:, None] - span[:, None] * frac[None, :]).ravel())
     extra = np.concatenate(extra)
     extra = extra[(extra > a0) & (extra < a1)]
@@ -789,28 +789,30 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
     r = prof["dadn"].to_numpy(float)
     b = prof["barrier"].to_numpy(np.int64)
     state = prof["zone_state"].to_numpy()
+    pos = np.arange(a.size)
+    blk = pd.DataFrame({"barrier": b, "dadn": r, "pos": pos})[(b >= 0) & (state == BLOCKED)]
     rows = []
-    for k in np.unique(b[b >= 0]):  # per barrier: a few dozen at most
-        sel = np.flatnonzero((b == k) & (state == BLOCKED))
-        arrest = bool(np.any((b == k) & (state == ARRESTED)))
-        if sel.size == 0:
-            continue
+    if len(blk):
+        grp = blk.groupby("barrier", sort=True)
         # the CTSD of a blocked zone is unimodal in n = a/c: past its peak the rate falls until slip
         # crosses, so the dip minimum is the lowest rate after the peak (the last blocked point)
-        i_peak = sel[np.argmax(r[sel])]
-        tail = sel[sel >= i_peak]
-        i_min = tail[np.argmin(r[tail])]
-        last = sel[-1]
-        if arrest:
-            after, cross, depth = 0.0, math.inf, 0.0
-        elif last + 1 >= a.size:
-            continue  # the profile ends while still blocked: no crossing seen, no dip to report
-        else:
-            after = r[last + 1]
-            cross = a[last + 1]
-            depth = r[i_min] / after if after > 0 else math.nan
-        rows.append({"barrier": int(k), "crack_length": a[i_min], "dadn_min": r[i_min], "dadn_peak": r[i_peak],
-                     "dadn_after": after, "depth": depth, "crossing_length_um": cross, "arrest": arrest})
+        peak_pos = blk.loc[grp["dadn"].idxmax(), ["barrier", "pos"]].set_index("barrier")["pos"]
+        tail = blk[blk["pos"].to_numpy() >= peak_pos.reindex(blk["barrier"]).to_numpy()]
+        min_pos = tail.loc[tail.groupby("barrier")["dadn"].idxmin(), ["barrier", "pos"]].set_index("barrier")["pos"]
+        last_pos = grp["pos"].max()
+        arrested_k = set(np.unique(b[(b >= 0) & (state == ARRESTED)]).tolist())
+        for k in last_pos.index:  # per barrier: O(1) work each
+            last, i_min, i_peak = int(last_pos[k]), int(min_pos[k]), int(peak_pos[k])
+            arrest = int(k) in arrested_k
+            if arrest:
+                after, cross, depth = 0.0, math.inf, 0.0
+            elif last + 1 >= a.size:
+                continue  # the profile ends while still blocked: no crossing seen, no dip to report
+            else:
+                after, cross = r[last + 1], a[last + 1]
+                depth = r[i_min] / after if after > 0 else math.nan
+            rows.append({"barrier": int(k), "crack_length": a[i_min], "dadn_min": r[i_min], "dadn_peak": r[i_peak],
+                         "dadn_after": after, "depth": depth, "crossing_length_um": cross, "arrest": arrest})
     cols = ["barrier", "crack_length", "dadn_min", "dadn_peak", "dadn_after", "depth", "crossing_length_um", "arrest"]
     return pd.DataFrame(rows, columns=cols)
 

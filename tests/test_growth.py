@@ -504,3 +504,37 @@ def test_growth_figures_mark_barriers_and_arrest():
     plt.close(fig)
     with pytest.raises(ParameterError, match="map coordinates"):
         plot_growth_on_map(res)
+
+
+def test_example_script_runs(capsys):
+    import runpy
+    from pathlib import Path
+
+    script = Path(__file__).resolve().parents[1] / "examples" / "growth" / "growth_profile.py"
+    runpy.run_path(str(script), run_name="__main__")
+    out = capsys.readouterr().out
+    assert "arrests at 18 µm" in out and "fitted constants" in out
+
+
+def test_growth_along_a_real_forecast_on_a_three_grain_map():
+    from slipnet.forecast import forecast_crack
+    from slipnet.grains import build_grain_graph
+    from slipnet.growth import path_from_forecast
+    from slipnet.maps import OrientationMap
+
+    eul = np.zeros((24, 72, 3))
+    eul[:, 24:48] = [45.0, 30.0, 10.0]
+    eul[:, 48:] = [10.0, 50.0, 70.0]
+    gg = build_grain_graph(OrientationMap.from_euler(eul, 1.0))
+    fc = forecast_crack(gg, (1.0, 12.0), (1.0, 0.0), (1.0, 0.0, 0.0), horizon=65.0)
+    path = path_from_forecast(fc)
+    main = fc.crossings[fc.crossings["branch"] == 0] if "branch" in fc.crossings.columns else fc.crossings
+    assert path.n_barriers == len(main.drop_duplicates(["grain_a", "grain_b"]))
+    assert path.n_barriers >= 1
+    assert path.length_um == pytest.approx(fc.path["length_um"].sum())
+    # barrier positions are where the path's grain changes; |m′| taken from the forecast's crossing
+    first = main.iloc[0]
+    assert path.barrier_positions_um[0] == pytest.approx(first["distance_um"], abs=1e-6)
+    assert path.m_prime[0] == pytest.approx(first["m_prime"])
+    res = simulate_growth(fc, 200.0, n_points=300)
+    assert set(res.profile["grain"]) <= set(fc.path["grain"])
