@@ -16,79 +16,101 @@ import numpy as np
 from ._orientation_kernels import quat_rotate_single, quat_to_matrix_single
 
 
+@nb.njit(cache=True, inline="always")
+def _load_in_crystal(q, load):
+    # l_c = q l q* written out with scalars (no per-row allocation inside the parallel loop)
+    w, x, y, z = q[0], q[1], q[2], q[3]
+    tx = 2.0 * (y * load[2] - z * load[1])
+    ty = 2.0 * (z * load[0] - x * load[2])
+    tz = 2.0 * (x * load[1] - y * load[0])
+    return (load[0] + w * tx + (y * tz - z * ty),
+            load[1] + w * ty + (z * tx - x * tz),
+            load[2] + w * tz + (x * ty - y * tx))
+
+
 @nb.njit(cache=True, parallel=True)
-def schmid_rows(q, load, normals, directions, out):
+def schmid_rows(q, load, normals_t, directions_t, out):
     """Signed Schmid factors ``(n·l_c)(d·l_c)`` per row; ``out`` (n, n_sys), float32 or float64.
 
-    ``l_c = g · l`` is formed once per row, then each system costs two 3-dot products and a product.
+    ``normals_t`` and ``directions_t`` are (3, n_sys) (components first) so the loop over systems
+    reads contiguous memory and vectorises. ``l_c = g · l`` is formed once per row.
     """
-    ns = normals.shape[0]
+    ns = normals_t.shape[1]
+    n0, n1, n2 = normals_t[0], normals_t[1], normals_t[2]
+    d0, d1, d2 = directions_t[0], directions_t[1], directions_t[2]
     for i in nb.prange(q.shape[0]):
         if q[i, 0] != q[i, 0]:
             for s in range(ns):
                 out[i, s] = np.nan
             continue
-        lc = np.empty(3)
-        quat_rotate_single(q[i], load, lc)
+        l0, l1, l2 = _load_in_crystal(q[i], load)
+        row = out[i]
         for s in range(ns):
-            a = normals[s, 0] * lc[0] + normals[s, 1] * lc[1] + normals[s, 2] * lc[2]
-            b = directions[s, 0] * lc[0] + directions[s, 1] * lc[1] + directions[s, 2] * lc[2]
-            out[i, s] = a * b
+            row[s] = (n0[s] * l0 + n1[s] * l1 + n2[s] * l2) * (d0[s] * l0 + d1[s] * l1 + d2[s] * l2)
+
+
+BLOCK = 1024
 
 
 @nb.njit(cache=True, parallel=True)
-def schmid_summary_rows(q, load, normals, directions, crss_pos, crss_neg,
+def schmid_summary_rows(q, load, normals_t, directions_t, inv_crss_pos, inv_crss_neg,
                         m_max, s_max, m_second, s_second, eff_max, s_eff, sign_max):
     """Per row: largest |m| and its system, runner-up |m| and system, largest |m|/crss and system.
 
     Nothing of size (n, n_sys) is stored, so any number of rows runs in memory O(n).
-    ``sign_max`` holds the sign (+1/−1) of the signed factor of the largest system.
+    ``sign_max`` holds the sign (+1/−1) of the signed factor of the largest system; ``inv_crss_*``
+    are 1/crss for positive and negative τ. Rows run in blocks so each thread allocates its
+    scratch row once per block: the factors of a row are formed in a vectorisable loop, then reduced.
     """
-    ns = normals.shape[0]
-    for i in nb.prange(q.shape[0]):
-        if q[i, 0] != q[i, 0]:
-            m_max[i] = np.nan
-            m_second[i] = np.nan
-            eff_max[i] = np.nan
-            s_max[i] = -1
-            s_second[i] = -1
-            s_eff[i] = -1
-            sign_max[i] = 0
-            continue
-        lc = np.empty(3)
-        quat_rotate_single(q[i], load, lc)
-        b1 = -1.0
-        b2 = -1.0
-        i1 = -1
-        i2 = -1
-        be = -1.0
-        ie = -1
-        sg = 0
-        for s in range(ns):
-            a = normals[s, 0] * lc[0] + normals[s, 1] * lc[1] + normals[s, 2] * lc[2]
-            b = directions[s, 0] * lc[0] + directions[s, 1] * lc[1] + directions[s, 2] * lc[2]
-            m = a * b
-            am = abs(m)
-            if am > b1:
-                b2 = b1
-                i2 = i1
-                b1 = am
-                i1 = s
-                sg = 1 if m >= 0.0 else -1
-            elif am > b2:
-                b2 = am
-                i2 = s
-            e = am / (crss_pos[s] if m >= 0.0 else crss_neg[s])
-            if e > be:
-                be = e
-                ie = s
-        m_max[i] = b1
-        s_max[i] = i1
-        m_second[i] = b2
-        s_second[i] = i2
-        eff_max[i] = be
-        s_eff[i] = ie
-        sign_max[i] = sg
+    ns = normals_t.shape[1]
+    n = q.shape[0]
+    n0, n1, n2 = normals_t[0], normals_t[1], normals_t[2]
+    d0, d1, d2 = directions_t[0], directions_t[1], directions_t[2]
+    nblk = (n + BLOCK - 1) // BLOCK
+    for blk in nb.prange(nblk):
+        buf = np.empty(ns)
+        eff = np.empty(ns)
+        for i in range(blk * BLOCK, min(n, (blk + 1) * BLOCK)):
+            if q[i, 0] != q[i, 0]:
+                m_max[i] = np.nan
+                m_second[i] = np.nan
+                eff_max[i] = np.nan
+                s_max[i] = -1
+                s_second[i] = -1
+                s_eff[i] = -1
+                sign_max[i] = 0
+                continue
+            l0, l1, l2 = _load_in_crystal(q[i], load)
+            for s in range(ns):
+                m = (n0[s] * l0 + n1[s] * l1 + n2[s] * l2) * (d0[s] * l0 + d1[s] * l1 + d2[s] * l2)
+                buf[s] = m
+                eff[s] = abs(m) * (inv_crss_pos[s] if m >= 0.0 else inv_crss_neg[s])
+            b1 = -1.0
+            i1 = -1
+            be = -1.0
+            ie = -1
+            for s in range(ns):
+                am = abs(buf[s])
+                if am > b1:
+                    b1 = am
+                    i1 = s
+                if eff[s] > be:
+                    be = eff[s]
+                    ie = s
+            b2 = -1.0
+            i2 = -1
+            for s in range(ns):
+                am = abs(buf[s])
+                if s != i1 and am > b2:
+                    b2 = am
+                    i2 = s
+            m_max[i] = b1
+            s_max[i] = i1
+            m_second[i] = b2
+            s_second[i] = i2
+            eff_max[i] = be
+            s_eff[i] = ie
+            sign_max[i] = 1 if buf[i1] >= 0.0 else -1
 
 
 @nb.njit(cache=True, parallel=True)
@@ -216,89 +238,93 @@ def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sy
     npl = planes.shape[0]
     nd = dirs.shape[0]
     ns = sys_plane.shape[0]
-    for k in nb.prange(nb_):
-        a = grain_a[k]
-        b = grain_b[k]
-        if quats[a, 0] != quats[a, 0] or quats[b, 0] != quats[b, 0]:
-            for c in range(2):
-                mp_in[k, c] = np.nan
-                score[k, c] = np.nan
-                resid[k, c] = np.nan
-                shen[k, c] = np.nan
-                out_sys[k, c] = -1
-                score_sys[k, c] = -1
-            mp_max[k] = np.nan
-            continue
+    blk_size = 64
+    nblk = (nb_ + blk_size - 1) // blk_size
+    for blk in nb.prange(nblk):
+        # scratch arrays once per block of boundaries, not once per boundary
         ga = np.empty((3, 3))
         gb = np.empty((3, 3))
-        quat_to_matrix_single(quats[a], ga)
-        quat_to_matrix_single(quats[b], gb)
-        r = np.zeros((3, 3))
-        for i in range(3):
-            for j in range(3):
-                r[i, j] = ga[i, 0] * gb[j, 0] + ga[i, 1] * gb[j, 1] + ga[i, 2] * gb[j, 2]
-        # plane and direction dot products, crystal A frame: P[pa, pb] = p_pa · R p_pb
+        r = np.empty((3, 3))
         pdot = np.empty((npl, npl))
-        w = np.empty(3)
-        for j in range(npl):
-            for i in range(3):
-                w[i] = r[i, 0] * planes[j, 0] + r[i, 1] * planes[j, 1] + r[i, 2] * planes[j, 2]
-            for i in range(npl):
-                pdot[i, j] = planes[i, 0] * w[0] + planes[i, 1] * w[1] + planes[i, 2] * w[2]
         ddot = np.empty((nd, nd))
-        for j in range(nd):
-            for i in range(3):
-                w[i] = r[i, 0] * dirs[j, 0] + r[i, 1] * dirs[j, 1] + r[i, 2] * dirs[j, 2]
-            for i in range(nd):
-                ddot[i, j] = dirs[i, 0] * w[0] + dirs[i, 1] * w[1] + dirs[i, 2] * w[2]
-        best = 0.0
-        for i in range(ns):
-            pi = sys_plane[i]
-            di = sys_dir[i]
-            for j in range(ns):
-                v = abs(pdot[pi, sys_plane[j]] * ddot[di, sys_dir[j]])
-                if v > best:
-                    best = v
-        mp_max[k] = best
-        gbn = gb_normal[k]
+        w = np.empty(3)
         na = np.empty(3)
         nbv = np.empty(3)
         la = np.empty(3)
         lb = np.empty(3)
-        for c in range(2):
-            # c = 0: A -> B (incoming system in A, outgoing in B); c = 1: B -> A.
-            src = a if c == 0 else b
-            dst = b if c == 0 else a
-            i = in_sys[src]
-            bm = -1.0
-            bj = -1
-            bs = -1.0
-            bsj = -1
-            for j in range(ns):
-                if c == 0:
-                    v = abs(pdot[sys_plane[i], sys_plane[j]] * ddot[sys_dir[i], sys_dir[j]])
-                else:
-                    v = abs(pdot[sys_plane[j], sys_plane[i]] * ddot[sys_dir[j], sys_dir[i]])
-                if v > bm:
-                    bm = v
-                    bj = j
-                sv = v * eff[dst, j] * eff_scale
-                if sv > bs:
-                    bs = sv
-                    bsj = j
-            mp_in[k, c] = bm
-            out_sys[k, c] = bj
-            score[k, c] = bs
-            score_sys[k, c] = bsj
-            dd = ddot[sys_dir[i], sys_dir[bj]] if c == 0 else ddot[sys_dir[bj], sys_dir[i]]
-            # |b_in − b_out| with the sign of b_out that minimises it: |b|·sqrt(2 − 2|d_in·d_out|)
-            x = 2.0 - 2.0 * abs(dd)
-            resid[k, c] = burgers[k] * math.sqrt(x if x > 0.0 else 0.0)
-            # Shen et al. (1986): lines of the slip planes in the boundary plane (sample frame)
-            gs = ga if c == 0 else gb
-            gd = gb if c == 0 else ga
-            _rot_t(gs, normals[i], na)
-            _rot_t(gd, normals[bj], nbv)
-            _line_in_boundary(na, gbn, la)
-            _line_in_boundary(nbv, gbn, lb)
-            shen[k, c] = abs(la[0] * lb[0] + la[1] * lb[1] + la[2] * lb[2]) * abs(dd)
+        for k in range(blk * blk_size, min(nb_, (blk + 1) * blk_size)):
+            a = grain_a[k]
+            b = grain_b[k]
+            if quats[a, 0] != quats[a, 0] or quats[b, 0] != quats[b, 0]:
+                for c in range(2):
+                    mp_in[k, c] = np.nan
+                    score[k, c] = np.nan
+                    resid[k, c] = np.nan
+                    shen[k, c] = np.nan
+                    out_sys[k, c] = -1
+                    score_sys[k, c] = -1
+                mp_max[k] = np.nan
+                continue
+            quat_to_matrix_single(quats[a], ga)
+            quat_to_matrix_single(quats[b], gb)
+            for i in range(3):
+                for j in range(3):
+                    r[i, j] = ga[i, 0] * gb[j, 0] + ga[i, 1] * gb[j, 1] + ga[i, 2] * gb[j, 2]
+            # plane and direction dot products, crystal A frame: P[pa, pb] = p_pa · R p_pb
+            for j in range(npl):
+                for i in range(3):
+                    w[i] = r[i, 0] * planes[j, 0] + r[i, 1] * planes[j, 1] + r[i, 2] * planes[j, 2]
+                for i in range(npl):
+                    pdot[i, j] = planes[i, 0] * w[0] + planes[i, 1] * w[1] + planes[i, 2] * w[2]
+            for j in range(nd):
+                for i in range(3):
+                    w[i] = r[i, 0] * dirs[j, 0] + r[i, 1] * dirs[j, 1] + r[i, 2] * dirs[j, 2]
+                for i in range(nd):
+                    ddot[i, j] = dirs[i, 0] * w[0] + dirs[i, 1] * w[1] + dirs[i, 2] * w[2]
+            best = 0.0
+            for i in range(ns):
+                pi = sys_plane[i]
+                di = sys_dir[i]
+                for j in range(ns):
+                    v = abs(pdot[pi, sys_plane[j]] * ddot[di, sys_dir[j]])
+                    if v > best:
+                        best = v
+            mp_max[k] = best
+            gbn = gb_normal[k]
+            for c in range(2):
+                # c = 0: A -> B (incoming system in A, outgoing in B); c = 1: B -> A.
+                src = a if c == 0 else b
+                dst = b if c == 0 else a
+                i = in_sys[src]
+                bm = -1.0
+                bj = -1
+                bs = -1.0
+                bsj = -1
+                for j in range(ns):
+                    if c == 0:
+                        v = abs(pdot[sys_plane[i], sys_plane[j]] * ddot[sys_dir[i], sys_dir[j]])
+                    else:
+                        v = abs(pdot[sys_plane[j], sys_plane[i]] * ddot[sys_dir[j], sys_dir[i]])
+                    if v > bm:
+                        bm = v
+                        bj = j
+                    sv = v * eff[dst, j] * eff_scale
+                    if sv > bs:
+                        bs = sv
+                        bsj = j
+                mp_in[k, c] = bm
+                out_sys[k, c] = bj
+                score[k, c] = bs
+                score_sys[k, c] = bsj
+                dd = ddot[sys_dir[i], sys_dir[bj]] if c == 0 else ddot[sys_dir[bj], sys_dir[i]]
+                # |b_in − b_out| with the sign of b_out that minimises it: |b|·sqrt(2 − 2|d_in·d_out|)
+                x = 2.0 - 2.0 * abs(dd)
+                resid[k, c] = burgers[k] * math.sqrt(x if x > 0.0 else 0.0)
+                # Shen et al. (1986): lines of the slip planes in the boundary plane (sample frame)
+                gs = ga if c == 0 else gb
+                gd = gb if c == 0 else ga
+                _rot_t(gs, normals[i], na)
+                _rot_t(gd, normals[bj], nbv)
+                _line_in_boundary(na, gbn, la)
+                _line_in_boundary(nbv, gbn, lb)
+                shen[k, c] = abs(la[0] * lb[0] + la[1] * lb[1] + la[2] * lb[2]) * abs(dd)

@@ -288,6 +288,11 @@ def _chunks(n: int, chunk: int):
         yield slice(s, min(n, s + chunk))
 
 
+def _components_first(systems: SlipSystems) -> tuple[np.ndarray, np.ndarray]:
+    """(3, n_sys) copies of the normals and directions: contiguous along systems for the kernels."""
+    return np.ascontiguousarray(systems.normals.T), np.ascontiguousarray(systems.directions.T)
+
+
 def _contig(q: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(q, dtype=np.float64)
 
@@ -334,8 +339,9 @@ def schmid_factors(quats, load_axis, systems: SlipSystems, *, dtype=np.float64, 
     elif out.shape != (q.shape[0], ns) or out.dtype != dtype or not out.flags.c_contiguous:
         raise ParameterError(f"out should be a C-contiguous {dtype} array of shape {(q.shape[0], ns)}; got "
                              f"{out.dtype} {out.shape}")
+    nt, dt = _components_first(systems)
     for sl in _chunks(q.shape[0], int(chunk_size)):
-        _k.schmid_rows(_contig(q[sl]), load, systems.normals, systems.directions, out[sl])
+        _k.schmid_rows(_contig(q[sl]), load, nt, dt, out[sl])
     return out.reshape(*lead, ns)
 
 
@@ -368,9 +374,10 @@ def schmid_summary(quats, load_axis, systems: SlipSystems, *, chunk_size: int = 
         "system_second": np.empty(n, np.int64), "effective_max": np.empty(n),
         "system_effective": np.empty(n, np.int64), "sense_max": np.empty(n, np.int8),
     }
+    nt, dt = _components_first(systems)
     for sl in _chunks(n, int(chunk_size)):
         _k.schmid_summary_rows(
-            _contig(q[sl]), load, systems.normals, systems.directions, systems.crss, systems.crss_reverse,
+            _contig(q[sl]), load, nt, dt, 1.0 / systems.crss, 1.0 / systems.crss_reverse,
             res["schmid_max"][sl], res["system_max"][sl], res["schmid_second"][sl], res["system_second"][sl],
             res["effective_max"][sl], res["system_effective"][sl], res["sense_max"][sl],
         )

@@ -227,13 +227,18 @@ def test_schmid_kernel_py_func_matches_compiled():
     load = np.array([0.0, 0.6, 0.8])
     a = np.empty((20, len(s)))
     b = np.empty((20, len(s)))
-    K.schmid_rows(q, load, s.normals, s.directions, a)
-    K.schmid_rows.py_func(q, load, s.normals, s.directions, b)
+    nt, dt = np.ascontiguousarray(s.normals.T), np.ascontiguousarray(s.directions.T)
+    K.schmid_rows(q, load, nt, dt, a)
+    K.schmid_rows.py_func(q, load, nt, dt, b)
+    from slipnet.orientation import quat_rotate
+
+    lc = quat_rotate(q, load)
+    np.testing.assert_allclose(a, (lc @ s.normals.T) * (lc @ s.directions.T), equal_nan=True, atol=1e-12)
     np.testing.assert_allclose(a, b, equal_nan=True)
     outs = [[np.empty(20), np.empty(20, np.int64), np.empty(20), np.empty(20, np.int64), np.empty(20),
              np.empty(20, np.int64), np.empty(20, np.int8)] for _ in range(2)]
-    K.schmid_summary_rows(q, load, s.normals, s.directions, s.crss, s.crss_reverse, *outs[0])
-    K.schmid_summary_rows.py_func(q, load, s.normals, s.directions, s.crss, s.crss_reverse, *outs[1])
+    K.schmid_summary_rows(q, load, nt, dt, 1 / s.crss, 1 / s.crss_reverse, *outs[0])
+    K.schmid_summary_rows.py_func(q, load, nt, dt, 1 / s.crss, 1 / s.crss_reverse, *outs[1])
     for x, y in zip(*outs, strict=True):
         np.testing.assert_array_equal(x, y)
 
