@@ -45,6 +45,24 @@ def _step_files(ctx: dict) -> None:
     ctx.setdefault("notes", []).append("Map files: " + ", ".join(p.name for p in files) + ".")
 
 
+def _step_slip(ctx: dict) -> None:
+    """Schmid factors, slip traces, Taylor factors and slip transmission for the demo grains."""
+    from .slip import write_slip_outputs
+
+    gg = ctx.get("grain_graph")
+    if gg is None:
+        ctx.setdefault("notes", []).append("Slip: skipped (needs the grains step).")
+        return
+    res = write_slip_outputs(gg, ctx["specimen"].load_axis, Path(ctx["out"]) / "slip", title="Slip activity (demo)")
+    ctx["systems"] = res["systems"]
+    ctx["slip"] = res
+    gt, tt = res["grain_table"], res["transmission_table"]
+    ctx.setdefault("notes", []).append(
+        f"Slip: {int(gt['schmid_max'].notna().sum())} grains, mean largest Schmid factor "
+        f"{gt['schmid_max'].mean():.3f}, mean Taylor factor {gt['taylor_factor'].mean():.2f}; "
+        f"{len(tt) // 2} boundaries, median transmission score {tt['transmission_score'].median():.2f} (slip/).")
+
+
 def _step_forecast(ctx: dict) -> None:
     """Forecast the crack path from the demo notch root: barriers, sites, a modest Monte Carlo."""
     from .forecast import forecast_crack, write_forecast
@@ -125,6 +143,7 @@ def _step_compare(ctx: dict) -> None:
 STEPS: list[tuple[str, Callable[[dict], None]]] = [
     ("specimen", _step_specimen),
     ("files", _step_files),
+    ("slip", _step_slip),
     ("forecast", _step_forecast),
     ("growth", _step_growth),
     ("compare", _step_compare),
