@@ -800,5 +800,12 @@ def finish_plan(rows: list[dict], s: PlanSettings, *, method: str = "weighted", 
     ratio = s.notch.depth_um / s.notch.root_radius_um
     if not 1.0 <= ratio <= 361.0:
         notes.append(f"depth/root radius = {ratio:g} lies outside the 1–361 range of the K_t chart fit")
+    load = np.asarray(s.load_axis)
+    inplane = math.hypot(load[0], load[1])
+    if len(table) and inplane > 1e-9:
+        cos = np.abs(table["normal_x"] * load[0] + table["normal_y"] * load[1]) / inplane
+        if np.any(cos > math.cos(math.radians(45.0))):
+            notes.append("some notches run within 45° of the in-plane load axis: they would not open in mode I; "
+                         "notch an edge across the load")
     ranked.attrs["settings"] = {**s.as_dict(), "method": method, "top_k": int(top_k), "notes": notes}
     return ranked

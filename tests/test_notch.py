@@ -36,15 +36,18 @@ def _orientation_with_x_along(l_crystal, spin_deg=0.0):
 
 
 def _band_specimen():
-    """Three horizontal bands, 40 µm high, 200 µm long; the middle one has a 0.5 Schmid factor."""
-    ny, nx, step = 60, 100, 2.0
+    """Three vertical bands, 66 µm wide, 120 µm high; the middle one has a 0.5 Schmid factor.
+
+    The load runs along x, so a notch cut from the top edge (along +y) opens in mode I.
+    """
+    ny, nx, step = 60, 99, 2.0
     n = np.array([1, 1, 0]) / math.sqrt(2)
     d = np.array([1, -1, 1]) / math.sqrt(3)
     q_best = _orientation_with_x_along(n + d)  # load at 45° to both n and d: m = 0.5
     q_low_a = _orientation_with_x_along([1, 1, 1], 0.0)
     q_low_b = _orientation_with_x_along([1, 1, 1], 35.0)
     q = np.empty((ny, nx, 4))
-    q[:20], q[20:40], q[40:] = q_low_a, q_best, q_low_b
+    q[:, :33], q[:, 33:66], q[:, 66:] = q_low_a, q_best, q_low_b
     omap = OrientationMap(q, np.zeros((ny, nx), int), np.ones((ny, nx)), np.ones((ny, nx), bool), step)
     return omap, (q_low_a, q_best, q_low_b)
 
@@ -67,11 +70,12 @@ def test_band_orientations_have_the_intended_schmid_factors(bands):
 
 def test_position_facing_the_favourable_grain_ranks_first(bands):
     gg, _ = bands
-    plan = plan_notch(gg, "left", (1, 0, 0), spacing_um=10.0, depth_um=10.0, root_radius_um=4.0,
+    plan = plan_notch(gg, "top", (1, 0, 0), spacing_um=10.0, depth_um=10.0, root_radius_um=4.0,
                       window_um=80.0, crack_sizes_um=(5.0,), objectives={"initiation_drive": 1.0})
     best = plan.iloc[0]
     assert best["rank"] == 1 and best["valid"]
-    assert 40.0 <= best["y"] <= 78.0  # the root sits in the middle band
+    # the root sits in the middle band (x 66–130 µm) or within one root radius of it
+    assert 66.0 - 4.0 <= best["x"] <= 130.0 + 4.0
     assert best["root_schmid"] == pytest.approx(0.5, abs=1e-6)
     # no boundary ahead along the band: no strong barrier in the window (a weak first barrier)
     assert math.isinf(best["first_barrier_um"])
@@ -129,19 +133,20 @@ def test_candidates_along_a_polyline_point_inwards(bands):
     assert len(cands) == 6
     assert all(c.normal_x == pytest.approx(1.0) for c in cands)
     assert all(c.root_x == pytest.approx(10.0) for c in cands)
-    top = candidate_positions(gg, "top", 50.0, NotchShape(10.0, 4.0))
-    assert all(c.normal_y == pytest.approx(1.0) for c in top)
+    bottom = candidate_positions(gg, "bottom", 50.0, NotchShape(10.0, 4.0))
+    assert all(c.normal_y == pytest.approx(-1.0) for c in bottom)
+    assert all(c.root_y == pytest.approx(108.0) for c in bottom)
 
 
 def test_same_seed_same_table_on_every_local_scheduler(bands):
     gg, _ = bands
     kw = dict(spacing_um=30.0, depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,),
               samples=2, seed=5)
-    a = plan_notch(gg, "left", (1, 0, 0), scheduler="synchronous", **kw)
-    b = plan_notch(gg, "left", (1, 0, 0), scheduler="threads", workers=2, **kw)
+    a = plan_notch(gg, "top", (1, 0, 0), scheduler="synchronous", **kw)
+    b = plan_notch(gg, "top", (1, 0, 0), scheduler="threads", workers=2, **kw)
     pd.testing.assert_frame_equal(a, b)
     assert "initiation_drive_p05" in a and "p_top_k" in a
-    c = plan_notch(gg, "left", (1, 0, 0), scheduler="synchronous", **{**kw, "seed": 6})
+    c = plan_notch(gg, "top", (1, 0, 0), scheduler="synchronous", **{**kw, "seed": 6})
     assert not np.allclose(a["initiation_drive_p50"], c["initiation_drive_p50"])
 
 
@@ -152,9 +157,9 @@ def test_same_seed_same_table_on_a_local_distributed_cluster(bands):
     gg, _ = bands
     kw = dict(spacing_um=30.0, depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,),
               samples=2, seed=3)
-    a = plan_notch(gg, "left", (1, 0, 0), scheduler="threads", workers=2, **kw)
+    a = plan_notch(gg, "top", (1, 0, 0), scheduler="threads", workers=2, **kw)
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
-        b = plan_notch(gg, "left", (1, 0, 0), scheduler=cluster.scheduler_address, **kw)
+        b = plan_notch(gg, "top", (1, 0, 0), scheduler=cluster.scheduler_address, **kw)
     pd.testing.assert_frame_equal(a, b)
 
 
@@ -164,17 +169,17 @@ def test_bad_inputs_give_clear_errors(bands):
     with pytest.raises(ParameterError, match="outside the map"):
         plan_notch(gg, [[-500, 0], [-500, 100]], (1, 0, 0), **kw)
     with pytest.raises(ParameterError, match="spacing_um"):
-        plan_notch(gg, "left", (1, 0, 0), spacing_um=0.0, **kw)
+        plan_notch(gg, "top", (1, 0, 0), spacing_um=0.0, **kw)
     with pytest.raises(ParameterError, match="deeper than the map"):
         plan_notch(gg, "top", (1, 0, 0), **{**kw, "depth_um": 500.0})
     with pytest.raises(ParameterError, match="unknown objective"):
-        plan_notch(gg, "left", (1, 0, 0), objectives={"fastest": 1.0}, **kw)
+        plan_notch(gg, "top", (1, 0, 0), objectives={"fastest": 1.0}, **kw)
     with pytest.raises(ParameterError, match="could not reach the dask scheduler"):
-        plan_notch(gg, "left", (1, 0, 0), scheduler="tcp://127.0.0.1:9", **kw)
+        plan_notch(gg, "top", (1, 0, 0), scheduler="tcp://127.0.0.1:9", **kw)
     with pytest.raises(ParameterError, match="scheduler should be"):
-        plan_notch(gg, "left", (1, 0, 0), scheduler="cloud", **kw)
+        plan_notch(gg, "top", (1, 0, 0), scheduler="cloud", **kw)
     with pytest.raises(ParameterError, match="target"):
-        plan_notch(gg, "left", (1, 0, 0), objectives={"target_offset_um": -1.0}, **kw)
+        plan_notch(gg, "top", (1, 0, 0), objectives={"target_offset_um": -1.0}, **kw)
 
 
 STUDY = """
@@ -190,7 +195,7 @@ depth_um = 10
 root_radius_um = 4
 
 [candidates]
-edge = "left"
+edge = "top"
 spacing_um = 30
 window_um = 60
 crack_sizes_um = [5]
@@ -211,7 +216,7 @@ def test_study_file_runs_and_writes_outputs(tmp_path):
     study = tmp_path / "study.toml"
     study.write_text(STUDY)
     plan = run_study(study, tmp_path / "out")
-    assert 40.0 <= plan.iloc[0]["y"] <= 78.0
+    assert 66.0 - 4.0 <= plan.iloc[0]["x"] <= 130.0 + 4.0
     for name in ("notch_plan.csv", "notch_plan.json", "settings.json", "notch_plan_map.png", "summary.md"):
         assert (tmp_path / "out" / name).is_file()
     assert "support, never replace" in (tmp_path / "out" / "summary.md").read_text()
@@ -239,9 +244,9 @@ def test_cli_refuses_bad_input_and_writes_nothing(tmp_path, capsys):
     omap, _ = _band_specimen()
     write_map(omap, tmp_path / "bands.npz")
     out = tmp_path / "plan"
-    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "left", "--spacing", "-1", "--out", str(out)])
+    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "top", "--spacing", "-1", "--out", str(out)])
     assert code == 2 and "spacing_um" in capsys.readouterr().err
     assert not out.exists()
-    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "left", "--spacing", "30", "--depth", "10",
+    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "top", "--spacing", "30", "--depth", "10",
                  "--radius", "4", "--window", "60", "--crack-sizes", "5", "--out", str(out)])
     assert code == 0 and (out / "notch_plan.csv").is_file()
