@@ -96,7 +96,7 @@ def dadn_incremental_polynomial(a, n, points: int = 7) -> tuple[np.ndarray, np.n
     return a_fit, rate
 
 
-def find_rate_dips(a_mid, dadn, *, prominence: float = 0.15) -> pd.DataFrame:
+def find_rate_dips(a_mid, dadn, *, prominence: float = 0.1) -> pd.DataFrame:
     """Local minima of a growth-rate record (dips), found as peaks of −log10(da/dN).
 
     Parameters

@@ -840,7 +840,7 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
                      peak_threshold: float | None = None, peak_distance_um: float = 5.0, site_tol_um: float = 5.0,
                      band_um: float = 2.0, hot_quantile: float = 0.75, measured_path=None, path_tol_um: float = 5.0,
                      band_sigma_um: float = 2.0, band_tol_deg: float = 10.0, load_axis=None, n_traces: int = 2,
-                     growth_record=None, growth=None, dip_prominence: float = 0.15, dip_tol_um: float = 5.0,
+                     growth_record=None, growth=None, dip_prominence: float = 0.1, dip_tol_um: float = 5.0,
                      ) -> Comparison:
     """Measure localisation in a strain series and score a forecast against it (whole job).
 
@@ -906,7 +906,9 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
         pts, ids = densify_polylines(grain_graph.boundary_polylines, min(omap.step, s.step) / 2.0)
         boundary_stats = boundary_band_statistics(shear.ravel(), mxy[:, 0], mxy[:, 1], pts, ids, band_um)
         ang, coh = band_orientation(shear, s.step, sigma_um=band_sigma_um)
-        bands = grain_band_directions(shear, labels_s, tr.apply_directions(ang), coh, threshold=thr * 0.5)
+        # bands only where the strain localised: above the peak threshold, coherent, not a few stray points
+        bands = grain_band_directions(shear, labels_s, tr.apply_directions(ang), coh, threshold=thr,
+                                      min_coherence=0.5, min_points=10)
         if load_axis is not None and len(bands):
             traces = _grain_traces(grain_graph, load_axis, n_traces)
             if traces is not None:
@@ -922,20 +924,32 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
         sc, site_pairs = score_sites(pred_xy, peaks[["x_um", "y_um"]].to_numpy(), site_tol_um)
         scores.update({f"sites_{kk}": vv for kk, vv in sc.items()})
         if grain_stats is not None and len(pred_xy):
-            gid = np.array([grain_graph.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
+            fs = getattr(forecast, "sites", None)
+            if isinstance(fs, pd.DataFrame) and "grain" in fs.columns:
+                gid = fs["grain"].to_numpy(np.int64)
+            else:  # a handful of sites: one lookup each
+                gid = np.array([grain_graph.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
             per = pd.DataFrame({"grain": gid, "score": pred_score}).query("grain >= 0").groupby("grain")["score"].max()
             pg = per.reindex(grain_stats["grain"]).fillna(0.0).to_numpy()
             ra = rank_agreement(pg, grain_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
             scores.update({f"grains_{kk}": vv for kk, vv in ra.items()})
-    if forecast is not None:
-        barriers = getattr(forecast, "barriers", None)
-        if isinstance(barriers, pd.DataFrame) and not {"boundary_id", "score"} <= set(barriers.columns):
-            barriers = None
-        if boundary_stats is not None and isinstance(barriers, pd.DataFrame) and len(barriers) and len(boundary_stats):
-            b = barriers.groupby("boundary_id")["score"].max()
-            pb = b.reindex(boundary_stats["boundary_id"]).to_numpy(float)
-            ra = rank_agreement(pb, boundary_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
+    if forecast is not None and boundary_stats is not None and len(boundary_stats):
+        measured_b = boundary_stats.set_index("boundary_id")["p90"]
+        sites = getattr(forecast, "sites", None)
+        if isinstance(sites, pd.DataFrame) and {"boundary_id", "score"} <= set(sites.columns):
+            # localisation predicted at a boundary: the best site blocked there; boundaries without a site: 0
+            per_b = sites.query("boundary_id >= 0").groupby("boundary_id")["score"].max()
+            pb = per_b.reindex(measured_b.index).fillna(0.0).to_numpy(float)
+            ra = rank_agreement(pb, measured_b.to_numpy(), hot_quantile=hot_quantile)
             scores.update({f"boundaries_{kk}": vv for kk, vv in ra.items()})
+        barriers = getattr(forecast, "barriers", None)
+        if isinstance(barriers, pd.DataFrame) and {"boundary_id", "score"} <= set(barriers.columns) and len(barriers):
+            # ranked barriers only (unranked boundaries have no barrier score)
+            b = barriers.groupby("boundary_id")["score"].max()
+            ra = rank_agreement(b.reindex(measured_b.index).to_numpy(float), measured_b.to_numpy(),
+                                hot_quantile=hot_quantile)
+            scores.update({f"barriers_{kk}": vv for kk, vv in ra.items()})
+    if forecast is not None:
         if getattr(forecast, "path", None) is not None and len(forecast.path):
             pred_path = path_from_forecast(forecast)
             if measured_path is not None:

@@ -199,7 +199,8 @@ def synthetic_crack_path(path, *, deviation_um: float = 1.0, spacing_um: float =
     tang /= np.maximum(np.linalg.norm(tang, axis=1, keepdims=True), 1e-12)
     normal = np.stack([-tang[:, 1], tang[:, 0]], axis=1)
     walk = np.cumsum(rng.normal(0.0, 1.0, len(pts)))
-    kernel = np.exp(-0.5 * (np.arange(-10, 11) / 4.0) ** 2)
+    half = max(min(10, (len(pts) - 1) // 2), 1)  # "same" convolution keeps len(pts) only if the kernel is shorter
+    kernel = np.exp(-0.5 * (np.arange(-half, half + 1) / (0.4 * half)) ** 2)
     walk = np.convolve(walk - walk.mean(), kernel / kernel.sum(), mode="same")
     walk = walk - walk[0]  # starts at the tip
     scale = deviation_um / max(float(np.std(walk)), 1e-12)
@@ -214,7 +215,7 @@ def synthetic_growth_record(profile: pd.DataFrame | None = None, *, n_readings: 
 
     From a predicted growth profile (``crack_length`` µm and ``cycles``) when given, else from a
     rate C·a^(m/2) (µm/cycle, a in µm) lowered by Gaussian dips at ``dips_um``; read at
-    ``n_readings`` evenly spaced cycle counts with crack-length noise ``noise_um``.
+    ``n_readings`` evenly spaced crack lengths with crack-length noise ``noise_um``.
     """
     rng = np.random.default_rng(seed)
     if profile is not None and {"crack_length", "cycles"} <= set(profile.columns):
@@ -233,8 +234,12 @@ def synthetic_growth_record(profile: pd.DataFrame | None = None, *, n_readings: 
         n = np.concatenate([[0.0], np.cumsum(0.5 * (inv[1:] + inv[:-1]) * np.diff(a))])
     if a.size < 2:
         raise ParameterError("the growth profile should hold at least two finite points")
-    nr = np.linspace(n[0], n[-1], int(n_readings))
-    ar = np.interp(nr, n, a) + rng.normal(0.0, noise_um, nr.size)
+    # readings at even crack-length intervals (the practice of ASTM E647 §9.5), then reading noise
+    order = np.argsort(a, kind="stable")
+    a_s, n_s = np.maximum.accumulate(a[order]), n[order]
+    ar_true = np.linspace(a_s[0], a_s[-1], int(n_readings))
+    nr = np.interp(ar_true, a_s, n_s)
+    ar = ar_true + rng.normal(0.0, noise_um, nr.size)
     return pd.DataFrame({"cycles": np.rint(nr), "crack_length_um": ar}).drop_duplicates("cycles")
 
 
@@ -315,7 +320,8 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
         "length_um": np.full(keep.sum() + extra, max(4.0 * step, 0.04 * size)),
         "width_um": np.full(keep.sum() + extra, 1.2 * step),
     })
-    sm = synthetic_strain_series(omap.extent, step, bands, noise_um=0.002 * step, seed=seed)
+    # image correlation usually resolves finer than the orientation map: half its step
+    sm = synthetic_strain_series(omap.extent, 0.5 * step, bands, noise_um=0.001 * step, seed=seed)
     path = getattr(forecast, "path", None)
     mpath = synthetic_crack_path(path, deviation_um=1.5 * step, spacing_um=step, seed=seed) \
         if path is not None and len(path) else None
@@ -323,7 +329,7 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
 
     prof = growth_profile_from(growth)
     if prof is not None and "cycles" in prof.columns and np.isfinite(prof["cycles"]).sum() > 10:
-        record = synthetic_growth_record(prof, n_readings=80, noise_um=0.05 * step, seed=seed)
+        record = synthetic_growth_record(prof, n_readings=120, noise_um=0.01 * step, seed=seed)
     else:
         bar = getattr(forecast, "barriers", None)
         dips = ()
@@ -332,7 +338,7 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
             dips = tuple(d[np.isfinite(d) & (d > 0)])
         a1 = float(path["length_um"].sum()) if path is not None and "length_um" in getattr(path, "columns", ()) \
             else 0.5 * size
-        record = synthetic_growth_record(None, n_readings=80, noise_um=0.05 * step, a0_um=1.0,
+        record = synthetic_growth_record(None, n_readings=120, noise_um=0.01 * step, a0_um=1.0,
                                          a1_um=max(a1, 10.0), dips_um=dips, dip_width_um=2.0 * step, seed=seed)
     text = ("SYNTHETIC measurements invented from the demo's own forecast (not measured): "
             f"{keep.sum()} of {len(sites)} top predicted sites carry a shear band, {extra} bands were added "

@@ -520,3 +520,36 @@ def test_demo_step_on_hand_built_context(tmp_path):
     assert "SYNTHETIC" in text and CAUTION in text
     assert (folder / "measured_strain_synthetic.npz").exists()
     assert "sites_f1" in ctx["comparison"].scores
+
+
+def test_demo_step_skips_without_forecast(tmp_path):
+    from slipnet.demo import _step_compare
+
+    ctx = {"out": tmp_path, "seed": 1, "quick": True, "log": []}
+    _step_compare(ctx)
+    assert "skipped" in ctx["notes"][0] and not (tmp_path / "compare").exists()
+
+
+def test_documented_text_example_parses(tmp_path):
+    from pathlib import Path
+
+    from slipnet.strainmaps import read_strain
+
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "strain-format.md").read_text(encoding="utf-8")
+    block = doc.split("```\n# slipnet-strain/1")[1].split("```")[0]
+    p = tmp_path / "example.txt"
+    p.write_text("# slipnet-strain/1" + block, encoding="utf-8")
+    s = read_strain(p)
+    assert s.shape == (2, 3) and s.steps.tolist() == [20000.0] and s.meta == {"camera": "left"}
+    assert np.isnan(s.components["v"][0, 0, 1]) and s.components["u"][0, 1, 2] == pytest.approx(0.0022)
+
+
+@pytest.mark.slow
+def test_example_script_runs(capsys):
+    import runpy
+    from pathlib import Path
+
+    script = Path(__file__).resolve().parents[1] / "examples" / "compare" / "score_forecast.py"
+    runpy.run_path(str(script), run_name="__main__")
+    out = capsys.readouterr().out
+    assert "SYNTHETIC" in out and "registration: RMS" in out and "sites_f1" in out

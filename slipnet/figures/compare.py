@@ -66,6 +66,7 @@ _SCORE_LABELS = [
     ("sites_precision", "sites: precision"), ("sites_recall", "sites: recall"), ("sites_f1", "sites: F1"),
     ("grains_roc_auc", "grains: ROC AUC"), ("grains_spearman_rho", "grains: Spearman ρ"),
     ("boundaries_roc_auc", "boundaries: ROC AUC"), ("boundaries_spearman_rho", "boundaries: Spearman ρ"),
+    ("barriers_spearman_rho", "barriers: Spearman ρ"),
     ("path_share_within_tol", "path: share within tol."), ("bands_fraction_matched", "bands: matched"),
     ("dips_recall", "dips: recall"), ("dips_precision", "dips: precision"),
 ]
