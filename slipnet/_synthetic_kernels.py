@@ -88,3 +88,74 @@ def compose_point_orientations(
         out[p, 1] = rx / norm
         out[p, 2] = ry / norm
         out[p, 3] = rz / norm
+
+
+@njit(cache=True, parallel=True)
+def power_cell_labels(
+    r0: int,
+    r1: int,
+    nx: int,
+    step: float,
+    row_spacing: float,
+    hex_grid: bool,
+    seed_x: np.ndarray,
+    seed_y: np.ndarray,
+    seed_w: np.ndarray,
+    w_max: float,
+    lo_x: float,
+    lo_y: float,
+    bucket: float,
+    nbx: int,
+    nby: int,
+    bucket_start: np.ndarray,
+    bucket_seeds: np.ndarray,
+    out: np.ndarray,
+) -> None:
+    """Power-diagram cell of every grid point of rows ``r0..r1−1``: argmin over seeds of |p − s|² − w.
+
+    Seeds are binned in square buckets of side ``bucket`` (µm) starting at ``(lo_x, lo_y)``;
+    bucket ``(bx, by)`` holds ``bucket_seeds[bucket_start[k]:bucket_start[k + 1]]`` with
+    ``k = by·nbx + bx``. Buckets are searched in growing square rings around the point's bucket;
+    a seed in ring ``r + 1`` or beyond lies at least ``r·bucket`` away, so its power distance is at
+    least ``(r·bucket)² − w_max`` and the search stops once that exceeds the best found: exact.
+    ``out`` has shape ``(r1 − r0, nx)``.
+    """
+    for i in prange(r0, r1):
+        y = i * row_spacing
+        shift = 0.5 * step if (hex_grid and (i % 2) == 1) else 0.0
+        by0 = min(max(int((y - lo_y) / bucket), 0), nby - 1)
+        for j in range(nx):
+            x = j * step + shift
+            bx0 = min(max(int((x - lo_x) / bucket), 0), nbx - 1)
+            best = np.inf
+            arg = -1
+            r = 0
+            while True:
+                for by in range(by0 - r, by0 + r + 1):
+                    if by < 0 or by >= nby:
+                        continue
+                    edge_row = by == by0 - r or by == by0 + r
+                    bx = bx0 - r
+                    while bx <= bx0 + r:
+                        if 0 <= bx < nbx:
+                            k = by * nbx + bx
+                            for m in range(bucket_start[k], bucket_start[k + 1]):
+                                s = bucket_seeds[m]
+                                dx = x - seed_x[s]
+                                dy = y - seed_y[s]
+                                p = dx * dx + dy * dy - seed_w[s]
+                                if p < best:
+                                    best = p
+                                    arg = s
+                        # inner rows of the ring: only its two end buckets are new
+                        if edge_row or r == 0:
+                            bx += 1
+                        else:
+                            bx += 2 * r
+                reach = r * bucket
+                if arg >= 0 and reach * reach - w_max >= best:
+                    break
+                if r > nbx + nby:
+                    break
+                r += 1
+            out[i - r0, j] = arg

@@ -378,3 +378,36 @@ def test_specimen_example_runs(tmp_path, capsys):
     written = runpy.run_path(str(script))["main"](tmp_path)
     assert all(p.stat().st_size > 0 for p in written)
     assert "requested spread 12°" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("grid", ["square", "hex"])
+def test_power_cell_kernel_matches_a_lifted_nearest_neighbour_query(grid):
+    from scipy.spatial import cKDTree
+
+    from slipnet import _synthetic_kernels
+    from slipnet.synthetic import _grid_xy, _power_cells
+
+    rng = np.random.default_rng(0)
+    lo, hi = np.array([-30.0, -30.0]), np.array([160.0, 130.0])
+    centres = rng.uniform(lo, hi, (150, 2))
+    w = rng.uniform(0.0, 400.0, 150)
+    lab = _power_cells((100, 120), 1.0, grid, centres, w, lo, hi, 12.0)
+    # reference: with a third coordinate √(w_max − w) the power distance |p − s|² − w becomes a
+    # plain squared distance (plus a constant), so scipy's cKDTree finds the same cell
+    x, y = _grid_xy(np.arange(100), 120, 1.0, grid)
+    tree = cKDTree(np.column_stack([centres, np.sqrt(w.max() - w)]))
+    ref = tree.query(np.column_stack([x.ravel(), y.ravel(), np.zeros(x.size)]))[1].reshape(100, 120)
+    assert np.array_equal(lab, ref)
+    # the pure-Python body of the kernel gives the same rows
+    nbx, nby = 16, 14
+    bx = np.clip(((centres[:, 0] - lo[0]) / 12.0).astype(np.int64), 0, nbx - 1)
+    by = np.clip(((centres[:, 1] - lo[1]) / 12.0).astype(np.int64), 0, nby - 1)
+    key = by * nbx + bx
+    order = np.argsort(key, kind="stable")
+    start = np.searchsorted(key[order], np.arange(nbx * nby + 1))
+    out = np.empty((3, 120), dtype=np.int64)
+    rs = math.sqrt(3) / 2 if grid == "hex" else 1.0
+    _synthetic_kernels.power_cell_labels.py_func(
+        5, 8, 120, 1.0, rs, grid == "hex", centres[:, 0].copy(), centres[:, 1].copy(), w, w.max(), lo[0], lo[1],
+        12.0, nbx, nby, start, order, out)
+    assert np.array_equal(out, ref[5:8])
