@@ -179,7 +179,7 @@ def _float_array(value, name: str, size: int | None, default: float | None = Non
     return arr
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class GrowthPath:
     """A crack path reduced to what the growth model needs.
 
@@ -535,7 +535,7 @@ def zone_state(
 # --------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class GrowthResult:
     """Everything :func:`simulate_growth` computed.
 
@@ -1015,7 +1015,7 @@ def path_from_forecast(forecast, *, offset_um: float | None = None) -> GrowthPat
 # --------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class CalibrationResult:
     """Fitted constants with confidence intervals.
 

@@ -162,10 +162,19 @@ def plot_growth_on_map(result, gg=None, ax: Axes | None = None) -> Figure:
     if np.isfinite(result.arrest_length_um):
         ax_, ay_ = path.locate(result.arrest_length_um)
         ax.plot([ax_], [ay_], marker="X", ms=11, color=_ARREST_COLOUR, ls="none", label="arrest")
-    if gg is None:
-        pad = 0.1 * max(np.ptp(path.polyline[:, 1]), np.ptp(path.polyline[:, 2]), 1.0)
-        ax.set_xlim(path.polyline[:, 1].min() - pad, path.polyline[:, 1].max() + pad)
-        ax.set_ylim(path.polyline[:, 2].max() + pad, path.polyline[:, 2].min() - pad)
+    # frame the path with some of its neighbourhood: a short path on a large map would be a dot
+    span = max(np.ptp(path.polyline[:, 1]), np.ptp(path.polyline[:, 2]), 1.0)
+    pad = 0.5 * span
+    if gg is not None:
+        x0m, x1m, y1m, y0m = map_extent(gg.omap)
+        pad = max(pad, 0.08 * (x1m - x0m))
+    xl = (path.polyline[:, 1].min() - pad, path.polyline[:, 1].max() + pad)
+    yl = (path.polyline[:, 2].max() + pad, path.polyline[:, 2].min() - pad)
+    if gg is not None:
+        xl = (max(xl[0], x0m), min(xl[1], x1m))
+        yl = (min(yl[0], y1m), max(yl[1], y0m))
+    ax.set_xlim(*xl)
+    ax.set_ylim(*yl)
     label_map_axes(ax)
     add_scale_bar(ax)
     cb = fig.colorbar(lc, ax=ax, shrink=0.8)
