@@ -56,8 +56,9 @@ def band_displacement(x, y, bands: pd.DataFrame) -> tuple[np.ndarray, np.ndarray
 
     Each band (centre ``x_um, y_um``, direction ``angle_deg``, engineering shear ``amplitude`` at
     its centre line, Gaussian ``width_um`` across and ``length_um`` along) displaces material along
-    its direction t by A·w·√(π/2)·erf(q/(w√2))·exp(−½(s/L)²), with s, q the coordinates along and
-    across the band, so the shear ∂u_t/∂q = A·exp(−q²/2w²)·exp(−½(s/L)²).
+    its direction t by A·w·√(π/2)·erf(q/(w√2))·exp(−½(s/L)² − ½(q/L)²), with s, q the coordinates
+    along and across the band, so near the band the shear is ∂u_t/∂q ≈ A·exp(−q²/2w²)·exp(−½(s/L)²);
+    the envelopes add strains of order A·w/L around it.
     """
     x = np.asarray(x, float)
     y = np.asarray(y, float)
@@ -70,7 +71,8 @@ def band_displacement(x, y, bands: pd.DataFrame) -> tuple[np.ndarray, np.ndarray
         q = -(x - row.x_um) * t[1] + (y - row.y_um) * t[0]
         w = row.width_um
         amp = row.amplitude * w * math.sqrt(math.pi / 2.0) * special.erf(q / (w * math.sqrt(2.0)))
-        amp = amp * np.exp(-0.5 * (s / row.length_um) ** 2)
+        # the offset dies away over the band length in both directions, so the band is a local feature
+        amp = amp * np.exp(-0.5 * (s / row.length_um) ** 2 - 0.5 * (q / row.length_um) ** 2)
         u += amp * t[0]
         v += amp * t[1]
     return u, v
@@ -321,7 +323,8 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
         "width_um": np.full(keep.sum() + extra, 1.2 * step),
     })
     # image correlation usually resolves finer than the orientation map: half its step
-    sm = synthetic_strain_series(omap.extent, 0.5 * step, bands, noise_um=0.001 * step, seed=seed)
+    sm = synthetic_strain_series(omap.extent, 0.5 * step, bands, noise_um=0.001 * step, missing_fraction=0.003,
+                                 fiducial_radius_um=1.5 * step, seed=seed)
     path = getattr(forecast, "path", None)
     mpath = synthetic_crack_path(path, deviation_um=1.5 * step, spacing_um=step, seed=seed) \
         if path is not None and len(path) else None
