@@ -58,7 +58,21 @@ def label_at(labels, hexgrid, ox, oy, step, rs, x, y):
 
 
 @nb.njit(cache=True)
-def march_ray(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, ds, max_len, skip_unindexed):
+def _bisect(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, lo, hi, max_len):
+    """Exit distance between ``lo`` (inside ``grain``) and ``hi`` (outside) to (hi − lo)/64."""
+    ny, nx = labels.shape
+    for _ in range(6):
+        mid = 0.5 * (lo + hi)
+        ii, jj = nearest_point(hexgrid, ox, oy, step, rs, ny, nx, px + mid * dx, py + mid * dy)
+        if ii >= 0 and labels[ii, jj] == grain:
+            lo = mid
+        else:
+            hi = mid
+    return min(0.5 * (lo + hi), max_len)
+
+
+@nb.njit(cache=True)
+def march_ray(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, ds, max_len, max_gap):
     """Walk from (px, py) along the unit vector (dx, dy) in steps ``ds`` while inside ``grain``.
 
     Returns
@@ -69,36 +83,34 @@ def march_ray(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, ds, max_
     next_label : int
         Label met at the exit (−1 unindexed, −2 outside the map, ``grain`` if still inside).
     status : int
-        One of the ``STATUS_*`` codes. With ``skip_unindexed`` a run of unindexed points is
-        walked through and the status reports what lies beyond it; ``t_end`` is then where the
-        next grain (or the map edge) begins.
+        One of the ``STATUS_*`` codes. A run of unindexed points no longer than ``max_gap`` (µm;
+        0 stops at the first, ``inf`` crosses any) is walked through and the status reports what
+        lies beyond it; ``t_end`` is then where the next grain (or the map edge) begins.
     """
     ny, nx = labels.shape
     n = math.ceil(max_len / ds)
     t_in = 0.0
+    t_gap = -1.0  # where the current unindexed run began (−1: not in a run)
     for k in range(1, n + 1):
         t = min(k * ds, max_len)
         i, j = nearest_point(hexgrid, ox, oy, step, rs, ny, nx, px + t * dx, py + t * dy)
         lab = labels[i, j] if i >= 0 else -2
         if lab == grain:
             t_in = t
+            t_gap = -1.0
             continue
-        if lab == -1 and skip_unindexed:
-            continue
+        if lab == -1:
+            if t_gap < 0.0:
+                t_gap = t
+            if t - t_gap + ds <= max_gap:
+                continue
+            # the run is too long: stop where it began
+            return _bisect(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, t_in, t_gap, max_len), -1, \
+                STATUS_UNINDEXED
         if t_in < t - 1.5 * ds:
             # came through an unindexed gap: the crossing is where the new grain begins
             return t - 0.5 * ds, lab, STATUS_GRAIN if lab >= 0 else STATUS_EDGE
-        # bisect between the last sample inside and the first outside: the exit to ~ds/64
-        lo = t_in
-        hi = t
-        for _ in range(6):
-            mid = 0.5 * (lo + hi)
-            ii, jj = nearest_point(hexgrid, ox, oy, step, rs, ny, nx, px + mid * dx, py + mid * dy)
-            if ii >= 0 and labels[ii, jj] == grain:
-                lo = mid
-            else:
-                hi = mid
-        t_end = min(0.5 * (lo + hi), max_len)
+        t_end = _bisect(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, t_in, t, max_len)
         if lab == -2:
             return t_end, -2, STATUS_EDGE
         if lab == -1:
@@ -108,17 +120,17 @@ def march_ray(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, ds, max_
 
 
 @nb.njit(cache=True)
-def chord_ends(labels, hexgrid, ox, oy, step, rs, px, py, dxs, dys, grains, ds, max_len, t_out, lab_out):
+def chord_ends(labels, hexgrid, ox, oy, step, rs, px, py, dxs, dys, grains, ds, max_len, max_gap, t_out, lab_out):
     """Both exits of a line through each grain: ``t_out[k, 0/1]`` along ±(dx, dy), ``lab_out`` beyond.
 
     Used for slip bands: the band of grain ``grains[k]`` passes through ``(px[k], py[k])`` along
-    its trace ``(dxs[k], dys[k])``; unindexed points stop the band.
+    its trace ``(dxs[k], dys[k])``; unindexed runs longer than ``max_gap`` stop the band.
     """
     for k in range(px.shape[0]):
         for s in range(2):
             sg = 1.0 if s == 0 else -1.0
             t, lab, _st = march_ray(labels, hexgrid, ox, oy, step, rs, px[k], py[k], sg * dxs[k], sg * dys[k],
-                                    grains[k], ds, max_len, False)
+                                    grains[k], ds, max_len, max_gap)
             t_out[k, s] = t
             lab_out[k, s] = lab
 

@@ -306,10 +306,10 @@ class _Geometry:
     def label_at(self, x: float, y: float) -> int:
         return int(_k.label_at(self.labels, self.hexgrid, self.ox, self.oy, self.step, self.rs, x, y))
 
-    def march(self, x, y, d, grain, max_len, skip) -> tuple[float, int, int]:
+    def march(self, x, y, d, grain, max_len, max_gap) -> tuple[float, int, int]:
         t, lab, st = _k.march_ray(self.labels, self.hexgrid, self.ox, self.oy, self.step, self.rs,
                                   float(x), float(y), float(d[0]), float(d[1]), int(grain), self.ds,
-                                  float(max_len), bool(skip))
+                                  float(max_len), float(max_gap))
         return float(t), int(lab), int(st)
 
 
@@ -423,7 +423,7 @@ class _Opts:
     branch_tol: float
     max_branches: int
     inclination: float
-    skip_unindexed: bool
+    max_gap: float
     pw: PathWeights
 
 
@@ -524,7 +524,7 @@ def _run_state(geo: _Geometry, cry: _Crystal, planes: _Planes, st: _State, opts:
             p, d, leg_len, kind = legs[k % len(legs)]
             k += 1
             max_len = min(leg_len, opts.horizon - st.s)
-            t, lab, status = geo.march(st.x, st.y, d, g, max_len, opts.skip_unindexed)
+            t, lab, status = geo.march(st.x, st.y, d, g, max_len, opts.max_gap)
             sys_ = int(cry.plane_sys[g, p]) if p >= 0 else -1
             x1, y1 = st.x + t * d[0], st.y + t * d[1]
             end = {0: "horizon" if st.s + t >= opts.horizon - 1e-9 else "leg", 1: "boundary",
@@ -746,7 +746,7 @@ def _anchor_points(geo: _Geometry, grains: np.ndarray) -> tuple[np.ndarray, np.n
 
 
 def _sites(geo: _Geometry, cry: _Crystal, planes: _Planes, grains: np.ndarray, amplitude: float,
-           want_bands: bool = False):
+           want_bands: bool = False, max_gap: float = 0.0):
     """Slip bands of ``grains`` and the sites where they end on poorly transmitting boundaries."""
     cols = ["rank", "x", "y", "score", "grain", "blocking_grain", "boundary_id", "system", "plane",
             "resolved_shear_mpa", "band_length_um", "transmission"]
@@ -764,7 +764,7 @@ def _sites(geo: _Geometry, cry: _Crystal, planes: _Planes, grains: np.ndarray, a
     max_len = float(np.hypot(geo.nx * geo.step, geo.ny * geo.rs))
     _k.chord_ends(geo.labels, geo.hexgrid, geo.ox, geo.oy, geo.step, geo.rs, ax, ay,
                   np.ascontiguousarray(tr[:, 0]), np.ascontiguousarray(tr[:, 1]), grains, geo.ds, max_len,
-                  t_out, lab_out)
+                  max_gap, t_out, lab_out)
     band = t_out.sum(axis=1)
     tau = cry.meff[grains, sys_] * amplitude
     rows = []
@@ -852,7 +852,7 @@ def _start_grain(geo: _Geometry, tip: np.ndarray, d: np.ndarray) -> int:
 
 
 def _make_opts(horizon, d, load, *, stage2_after_um, stage2_min_schmid, zigzag_tol, zigzag_step_fraction,
-               branch_tol, max_branches, inclination_deg, unindexed, path_weights) -> _Opts:
+               branch_tol, max_branches, inclination_deg, unindexed, unindexed_gap_um, path_weights) -> _Opts:
     lxy = np.asarray(load[:2], dtype=float)
     n = float(np.linalg.norm(lxy))
     # the crack plane in stage II is normal to the load; its surface trace is ⟂ the in-plane load
@@ -868,7 +868,7 @@ def _make_opts(horizon, d, load, *, stage2_after_um, stage2_min_schmid, zigzag_t
         branch_tol=check_range(branch_tol, "branch_tol", 0.0, 1.0),
         max_branches=int(check_range(max_branches, "max_branches", 0, 100)),
         inclination=check_range(inclination_deg, "inclination_deg", -89.0, 89.0),
-        skip_unindexed=check_choice(unindexed, "unindexed", ("stop", "cross")) == "cross",
+        max_gap=np.inf if check_choice(unindexed, "unindexed", ("stop", "cross")) == "cross" else unindexed_gap_um,
         pw=path_weights,
     )
 
@@ -892,7 +892,8 @@ def _core(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts, *, amplitu
     if cand.size:
         dist = np.hypot(geo.cx[cand] - tip[0], geo.cy[cand] - tip[1])
         cand = cand[(dist <= opts.horizon + 0.5 * geo.ecd[cand]) | np.isin(cand, list(on))]
-    sites, bands = _sites(geo, cry, planes, cand, amplitude, want_bands=want_field)
+    sites, bands = _sites(geo, cry, planes, cand, amplitude, want_bands=want_field,
+                          max_gap=min(opts.max_gap, 3.0 * geo.step))
     sites["on_path_grain"] = sites["grain"].isin(path["grain"]) if len(sites) else pd.Series(dtype=bool)
     fld = _field(geo, bands, sigma_um) if want_field else None
     return {"path": path, "alternatives": alts, "crossings": crossings, "barriers": barriers, "sites": sites,
@@ -926,6 +927,7 @@ def forecast_crack(
     stage2_min_schmid: float | None = None,
     inclination_deg: float = 0.0,
     unindexed: str = "stop",
+    unindexed_gap_um: float | None = None,
     field_sigma_um: float | None = None,
 ) -> CrackForecast:
     """Forecast the short-crack path ahead of a tip, rank barriers and localisation sites.
@@ -971,9 +973,11 @@ def forecast_crack(
         factor is below this threshold (None: never).
     inclination_deg
         Boundary-plane inclination about its trace (0: perpendicular to the surface, assumed).
-    unindexed
-        ``"stop"`` (the path ends at an unindexed point) or ``"cross"`` (walk through unindexed
-        runs to the next grain).
+    unindexed, unindexed_gap_um
+        ``"stop"``: the path ends where it meets a run of unindexed points longer than
+        ``unindexed_gap_um`` (default 5 steps: isolated bad points and small clusters are walked
+        through, a notch or a large unindexed region stops it); ``"cross"``: walk through any unindexed run to the
+        next grain (the crossing is recorded where that grain begins).
     field_sigma_um
         Gaussian width of the localisation field, µm (default 2 steps).
 
@@ -1010,10 +1014,13 @@ def forecast_crack(
             raise ParameterError(f"score weights should be >= 0; got {wobj}")
     decay = horizon if decay_length_um is None else _check_decay(decay_length_um)
     sigma_um = 2.0 * geo.step if field_sigma_um is None else check_positive(field_sigma_um, "field_sigma_um")
+    gap = 5.0 * geo.step if unindexed_gap_um is None else check_positive(
+        unindexed_gap_um, "unindexed_gap_um",
+                                                                           allow_zero=True)
     opts = _make_opts(horizon, d, load, stage2_after_um=stage2_after_um, stage2_min_schmid=stage2_min_schmid,
                       zigzag_tol=zigzag_tol, zigzag_step_fraction=zigzag_step_fraction, branch_tol=branch_tol,
                       max_branches=max_branches, inclination_deg=inclination_deg, unindexed=unindexed,
-                      path_weights=pw)
+                      unindexed_gap_um=gap, path_weights=pw)
     if opts.d_stage2 is None and (stage2_after_um is not None or stage2_min_schmid is not None):
         raise ParameterError(
             f"load_axis {tuple(np.round(load, 3))} is (nearly) along the surface normal, so stage II "
@@ -1051,7 +1058,8 @@ def forecast_crack(
         "stage2_after_um": stage2_after_um, "stage2_min_schmid": stage2_min_schmid,
         "inclination_deg": opts.inclination, "boundary_plane": "perpendicular to the surface through the "
         "fitted boundary trace" if opts.inclination == 0 else f"inclined {opts.inclination:g}° about the trace",
-        "unindexed": unindexed, "field_sigma_um": sigma_um, "stress_field": stress_field is not None,
+        "unindexed": unindexed, "unindexed_gap_um": gap, "field_sigma_um": sigma_um,
+        "stress_field": stress_field is not None,
         "systems": sorted(set(map(str, getattr(systems, "families", [])))),
     }
     fc = CrackForecast(path=res["path"], crossings=res["crossings"], barriers=res["barriers"], sites=res["sites"],

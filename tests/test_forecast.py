@@ -342,13 +342,18 @@ def test_tip_on_an_unindexed_point_is_refused_and_unindexed_runs_stop_or_cross()
     q[..., 0] = 1.0
     q[:, 40:] = quat_from_axis_angle(L_HAND, 180.0)
     ind = np.ones((30, 80), bool)
-    ind[:, 20:24] = False
+    ind[:, 20:28] = False
     gg = build_grain_graph(_omap(q, indexed=ind))
     with pytest.raises(ParameterError, match="unindexed"):
         forecast_crack(gg, (21.0, 15.0), (0.0, 1.0), L_HAND, 50.0)
     stop = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0)
-    assert stop.stop_reason == "unindexed"
+    assert stop.stop_reason == "unindexed"  # an 8-point run is longer than the default 5-step gap
     assert stop.path["x1"].iloc[-1] == pytest.approx(19.5, abs=0.05)
+    walk = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0, unindexed_gap_um=9.0)
+    # the unindexed column splits the left crystal in two grains that the graph does not join: the
+    # crossing is recorded where the next grain begins, without a boundary id
+    assert walk.path["x1"].iloc[0] == pytest.approx(27.5, abs=0.3)
+    assert walk.crossings["boundary_id"].iloc[0] == -1 and walk.length_um > 30.0
     cross = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0, unindexed="cross")
     assert cross.length_um > 30.0 and cross.path["x1"].max() > 40.0
 
@@ -423,7 +428,7 @@ def test_march_kernel_matches_its_python_version():
     labels = rng.integers(-1, 3, size=(20, 30)).astype(np.int64)
     labels[5:15, 5:25] = 1
     for hexgrid in (False, True):
-        args = (labels, hexgrid, 0.0, 0.0, 1.0, 0.866 if hexgrid else 1.0, 10.0, 8.0, 0.6, 0.8, 1, 0.25, 50.0, False)
+        args = (labels, hexgrid, 0.0, 0.0, 1.0, 0.866 if hexgrid else 1.0, 10.0, 8.0, 0.6, 0.8, 1, 0.25, 50.0, 1.0)
         assert K.march_ray(*args) == pytest.approx(K.march_ray.py_func(*args))
 
 
