@@ -189,3 +189,32 @@ def test_bad_quaternion_inputs():
         m_prime([1, 0, 0, 0], [2, 0, 0, 0], SYS)
     with pytest.raises(ParameterError, match="SlipSystems"):
         m_prime([1, 0, 0, 0], [1, 0, 0, 0], "bcc")
+
+
+def test_slip_cli_writes_outputs(tmp_path, capsys):
+    from slipnet.cli import main
+    from slipnet.io import write_map
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((40, 50), step=2.0, grain_size_um=20.0, seed=2)
+    path = write_map(spec.omap, tmp_path / "map.npz")
+    out = tmp_path / "slip"
+    rc = main(["slip", str(path), "--out", str(out), "--load-axis", "0", "1", "0", "--families", "all",
+               "--crss", "{112}<111>=1.1", "--inclination", "80", "--no-taylor"])
+    assert rc == 0
+    assert "outputs written" in capsys.readouterr().out
+    t = pd.read_csv(out / "transmission.csv")
+    assert (t["boundary_inclination_deg"] == 80).all()
+    s = pd.read_csv(out / "systems.csv")
+    assert len(s) == 48 and (s.loc[s["family"] == "{112}<111>", "crss_relative"] == 1.1).all()
+    assert main(["slip", str(path), "--out", str(out), "--crss", "oops"]) == 2
+    assert "FAMILY=VALUE" in capsys.readouterr().err
+
+
+def test_example_runs(capsys):
+    import runpy
+    from pathlib import Path
+
+    script = Path(__file__).resolve().parents[1] / "examples" / "slip" / "schmid_and_transmission.py"
+    runpy.run_path(str(script), run_name="__main__")
+    assert "twinning sense" in capsys.readouterr().out

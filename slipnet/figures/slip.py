@@ -75,7 +75,7 @@ def _boundary_segments(gg, boundary_ids):
 
 
 def plot_transmission(gg, table: pd.DataFrame, path: str | os.PathLike | None = None, *,
-                      title: str = "Slip transmission score at boundaries (larger of A→B, B→A)"):
+                      title: str = "Slip transmission score (larger of the two directions)"):
     """Boundaries coloured by their transmission score (cividis) over a grey grain map.
 
     Parameters
@@ -85,18 +85,18 @@ def plot_transmission(gg, table: pd.DataFrame, path: str | os.PathLike | None = 
         larger of the two directional scores is drawn.
     """
     fig, ax = _new_axes(gg)
-    grey = np.where(np.asarray(gg.labels) >= 0, 0.85, 1.0)
+    # mid grey under the lines: both ends of cividis (dark blue, yellow) stand out against it
+    grey = np.where(np.asarray(gg.labels) >= 0, 0.6, 1.0)
     ax.imshow(grey, extent=map_extent(gg.omap), origin="upper", cmap="gray", vmin=0, vmax=1,
               interpolation="nearest")
     score = table.groupby("boundary_id")["transmission_score"].max()
     segs, owner = _boundary_segments(gg, score.index.to_numpy())
     if segs:
-        lc = LineCollection(segs, cmap="cividis", linewidths=2.0)
+        lc = LineCollection(segs, cmap="cividis", linewidths=2.5)
         lc.set_array(score.reindex(owner).to_numpy())
         lc.set_clim(0.0, 1.0)
         ax.add_collection(lc)
-        fig.colorbar(lc, ax=ax, label="transmission score (–): |m′| × effective Schmid factor out / max",
-                     shrink=0.85)
+        fig.colorbar(lc, ax=ax, label="transmission score (–)", shrink=0.85)
     ax.set_title(title)
     return _finish(fig, ax, gg, path)
 
