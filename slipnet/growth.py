@@ -578,7 +578,8 @@ class GrowthResult:
 
 
 def _grid(path: GrowthPath, a0: float, a1: float, n_points: int, x: np.ndarray) -> np.ndarray:
-    base = np.linspace(a0, a1, n_points)
+    # even spacing, plus geometric spacing for short cracks, where 1/(da/dN) ∝ a^(-m) is steep
+    base = np.concatenate([np.linspace(a0, a1, n_points), np.geomspace(a0, a1, max(n_points // 4, 10))])
     d = path.barrier_positions_um
     xf = x[np.isfinite(x)]
     # the crossing is a jump in zone size: put a point on each side so the jump is sharp
