@@ -36,8 +36,10 @@ isotropic (Hill) stiffness of the main phase.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -193,8 +195,9 @@ def rotate_stiffness(constants: CubicConstants, quats) -> np.ndarray:
     if not np.all(np.isfinite(rows)):
         raise ParameterError("quats should be finite (unindexed points carry no stiffness)")
     out = np.empty((rows.shape[0], 6, 6))
-    _k.stiffness_field(rows, np.zeros(rows.shape[0], np.int64), constants.mandel()[None], np.zeros((6, 6)),
-                       _k.MANDEL_PAIRS, out)
+    with _numba_threads(_workers(None, rows.shape[0])):
+            _k.stiffness_field(rows, np.zeros(rows.shape[0], np.int64), constants.mandel()[None], np.zeros((6, 6)),
+                           _k.MANDEL_PAIRS, out)
     return out.reshape(*lead, 6, 6)
 
 
@@ -331,10 +334,28 @@ class StressField:
 
 
 # ---------------------------------------------------------------------------- the solver
-def _workers(workers: int | None) -> int:
+#: Below this many points the kernels run on one thread: waking threads costs more than it saves
+#: (and on a loaded machine a parallel launch can take milliseconds).
+PARALLEL_MIN_POINTS = 32768
+
+
+def _workers(workers: int | None, n_points: int) -> int:
     if workers is None:
-        return max(1, min(os.cpu_count() or 1, 2))
+        return 1 if n_points < PARALLEL_MIN_POINTS else max(1, min(os.cpu_count() or 1, 2))
     return int(check_positive(workers, "workers"))
+
+
+@contextlib.contextmanager
+def _numba_threads(n: int) -> Iterator[None]:
+    """Run the numba kernels inside the block on ``n`` threads (restored afterwards)."""
+    import numba
+
+    old = numba.get_num_threads()
+    numba.set_num_threads(max(1, min(int(n), numba.config.NUMBA_NUM_THREADS)))
+    try:
+        yield
+    finally:
+        numba.set_num_threads(old)
 
 
 def _frequencies(ny: int, nx: int, hy: float, hx: float, scheme: str) -> tuple[np.ndarray, np.ndarray]:
@@ -574,15 +595,17 @@ def solve_elastic(
     """
     axis, sig, tol, max_iter, ratio, scheme, unindexed = _check_common(
         load_axis, stress, tol, max_iter, compliant_ratio, scheme, unindexed)
-    c, _q, _ph, soft, _consts = _prepare(omap, constants, ratio, unindexed)
     ny, nx = omap.shape
-    op = _Spectral(c, (ny, nx), (omap.row_spacing, omap.step), scheme, _workers(workers))
-    sig_macro = to_mandel(sig * np.outer(axis, axis))
-    b = np.repeat(sig_macro[:, None], op.n, axis=1)
-    # start from the uniform strain of the Voigt-average medium: compatible, and close
-    x = np.repeat(np.linalg.solve(c.mean(axis=0), sig_macro)[:, None], op.n, axis=1)
-    its, res = op.solve(b, x, abs(sig), tol, max_iter)
-    s = op.stress(x)
+    nthreads = _workers(workers, ny * nx)
+    with _numba_threads(nthreads):
+        c, _q, _ph, soft, _consts = _prepare(omap, constants, ratio, unindexed)
+        op = _Spectral(c, (ny, nx), (omap.row_spacing, omap.step), scheme, nthreads)
+        sig_macro = to_mandel(sig * np.outer(axis, axis))
+        b = np.repeat(sig_macro[:, None], op.n, axis=1)
+        # start from the uniform strain of the Voigt-average medium: compatible, and close
+        x = np.repeat(np.linalg.solve(c.mean(axis=0), sig_macro)[:, None], op.n, axis=1)
+        its, res = op.solve(b, x, abs(sig), tol, max_iter)
+        s = op.stress(x)
     return StressField(
         stress=from_mandel(s.T.reshape(ny, nx, 6)),
         strain=from_mandel(x.T.reshape(ny, nx, 6)),
@@ -680,9 +703,10 @@ def local_resolved_shear(field: StressField, omap: OrientationMap | None = None,
     q = np.array(omap.quats, dtype=np.float64).reshape(-1, 4)
     q[field.compliant.reshape(-1)] = np.nan
     out = np.empty((q.shape[0], len(systems.normals)))
-    _k.resolved_shear_field(q, np.ascontiguousarray(field.stress.reshape(-1, 3, 3)),
+    with _numba_threads(_workers(None, q.shape[0])):
+        _k.resolved_shear_field(q, np.ascontiguousarray(field.stress.reshape(-1, 3, 3)),
                             np.ascontiguousarray(systems.normals, dtype=np.float64),
-                            np.ascontiguousarray(systems.directions, dtype=np.float64), out)
+                                np.ascontiguousarray(systems.directions, dtype=np.float64), out)
     return out.reshape(ny, nx, -1)
 
 
