@@ -170,7 +170,9 @@ def fit_transform(src_points, dst_points, kind: str = "affine") -> Transform:
         a[n:, 3:5], a[n:, 5] = s, 1.0
         a[n:, 6:8], a[n:, 8] = -s * d[:, 1:], -d[:, 1]
         _, sv, vt = np.linalg.svd(a)
-        if n >= 5 and sv[-2] <= 1e-10 * sv[0]:
+        # a unique homography leaves a one-dimensional null space: the 8th singular value must not vanish
+        # (it does when three of four points are collinear, or too many lie on one line)
+        if sv[7] <= 1e-10 * sv[0]:
             raise ParameterError("the control points do not determine a projective transform "
                                  "(too many collinear points)")
         h = vt[-1].reshape(3, 3)

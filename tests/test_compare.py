@@ -123,6 +123,13 @@ def test_registration_errors():
         fit_transform(np.array([[0.0, 0], [10, 0], [10, 0], [0, 10]]), np.array([[0.0, 0], [10, 0], [11, 0], [0, 10]]))
     with pytest.raises(ParameterError, match="collinear"):
         fit_transform(np.array([[0.0, 0], [1, 1], [2, 2], [5, 5]]), np.array([[0.0, 0], [1, 2], [3, 2], [4, 4]]))
+    # three of four points on one line: a homography is not determined (Hartley & Zisserman 2004,
+    # Multiple View Geometry, §4.1), whether or not the destination points are collinear too
+    three_on_a_line = np.array([[0.0, 0], [1, 0], [2, 0], [0, 1]])
+    with pytest.raises(ParameterError, match="do not determine a projective"):
+        fit_transform(three_on_a_line, three_on_a_line * 2.0 + 1.0, "projective")
+    with pytest.raises(ParameterError, match="degenerate projective"):
+        fit_transform(three_on_a_line, np.array([[0.0, 0], [1, 0], [2, 0.1], [0, 1]]), "projective")
     with pytest.raises(ParameterError, match="same number"):
         fit_transform(p3, np.vstack([p3, [[5, 5]]]))
     with pytest.raises(ParameterError, match="kind"):
