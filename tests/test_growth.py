@@ -516,8 +516,9 @@ def test_example_script_runs(capsys):
     assert "arrests at 18 µm" in out and "fitted constants" in out
 
 
-def test_growth_along_a_real_forecast_on_a_three_grain_map():
-    from slipnet.forecast import forecast_crack
+def test_growth_along_a_real_forecast_on_a_three_grain_map(tmp_path):
+    from slipnet.cli import main as cli_main
+    from slipnet.forecast import forecast_crack, write_forecast
     from slipnet.grains import build_grain_graph
     from slipnet.growth import path_from_forecast
     from slipnet.maps import OrientationMap
@@ -538,3 +539,10 @@ def test_growth_along_a_real_forecast_on_a_three_grain_map():
     assert path.m_prime[0] == pytest.approx(first["m_prime"])
     res = simulate_growth(fc, 200.0, n_points=300)
     assert set(res.profile["grain"]) <= set(fc.path["grain"])
+    # the same through the command line, from the forecast's saved tables
+    write_forecast(fc, tmp_path / "fc", figures=False)
+    assert cli_main(["growth", "--forecast", str(tmp_path / "fc"), "--out", str(tmp_path / "g"), "--points", "300",
+                     "--no-figures"]) == 0
+    saved = pd.read_csv(tmp_path / "g" / "growth_barriers.csv")
+    np.testing.assert_allclose(saved["position_um"], path.barrier_positions_um, rtol=1e-9)
+    np.testing.assert_allclose(saved["m_prime"], path.m_prime, rtol=1e-9)
