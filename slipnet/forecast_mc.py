@@ -79,14 +79,15 @@ def _pair(a, b) -> tuple[int, int]:
 
 
 def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int, seed: int, noise, top_k: int,
-                amplitude: float, decay: float, bw, cf):
+                amplitude: float, decay: float, bw, cf, site_radius: float | None = None):
     """Repeat the forecast under perturbed inputs; return ``fc`` with probabilities and ``samples``.
 
     The arguments are the prepared inputs of :func:`slipnet.forecast.forecast_crack`. A perturbed
     tip falling outside the map or on an unindexed point is put back at the nominal tip (counted
     in the ``tip_reset`` column).
     """
-    from .forecast import _core, _start_grain
+    from ._forecast_core import _start_grain
+    from .forecast import _core
 
     rng = np.random.default_rng(seed)
     bar_keys = [_pair(a, b) for a, b in zip(fc.barriers["grain_a"], fc.barriers["grain_b"], strict=True)]
@@ -108,7 +109,7 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         g0 = _start_grain(geo, t, opts.d_ref)
         o = replace(opts, pw=pw)
         res = _core(geo, planes, q, ld, schmid, t, g0, o, amplitude=amplitude, decay=decay, bw=bws, cf=cf,
-                    want_field=False, sigma_um=1.0)
+                    want_field=False, sigma_um=1.0, site_radius=site_radius)
         b = res["barriers"]
         keys = [_pair(a, c) for a, c in zip(b["grain_a"], b["grain_b"], strict=True)]
         for k, onp, rk in zip(keys, b["on_path"], b["rank"], strict=True):

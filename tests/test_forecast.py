@@ -445,7 +445,7 @@ def test_write_forecast_outputs_and_caution(tmp_path, bicrystal_gg):
 
 
 def test_private_numpy_rotations_match_the_orientation_module():
-    from slipnet.forecast import _matrices
+    from slipnet._forecast_core import _matrices
     from slipnet.forecast_mc import _qmul
     from slipnet.orientation import matrix_from_quat, quat_multiply
 
