@@ -58,6 +58,7 @@ __all__ = [
     "effective_schmid",
     "grain_schmid_table",
     "plane_inclinations",
+    "point_schmid_maps",
     "resolved_shear",
     "schmid_factors",
     "schmid_summary",
@@ -384,6 +385,35 @@ def schmid_summary(quats, load_axis, systems: SlipSystems, *, chunk_size: int = 
     with np.errstate(divide="ignore", invalid="ignore"):
         res["second_to_max_ratio"] = np.where(res["schmid_max"] > 0, res["schmid_second"] / res["schmid_max"], np.nan)
     return {k: v.reshape(lead) for k, v in res.items()}
+
+
+def point_schmid_maps(omap, load_axis, systems: SlipSystems | None = None) -> dict[str, np.ndarray]:
+    """Per-point Schmid summary maps of an orientation map (see :func:`schmid_summary`).
+
+    Unindexed points and points of a phase with another crystal structure than ``systems`` get
+    NaN (indices −1).
+
+    Parameters
+    ----------
+    omap
+        :class:`slipnet.maps.OrientationMap`.
+    load_axis : (3,) array_like
+        Map frame.
+    systems
+        Default: the default families of the structure of the map's first phase.
+
+    Returns
+    -------
+    dict of (ny, nx) ndarrays
+        Keys as :func:`schmid_summary`.
+    """
+    if systems is None:
+        systems = slip_systems(omap.phases[0].structure)
+    systems = _check_systems(systems)
+    same = np.array([p.structure == systems.structure for p in omap.phases] + [False])
+    keep = omap.indexed & same[omap.phase]
+    q = np.where(keep[..., None], omap.quats, np.nan)
+    return schmid_summary(q, load_axis, systems)
 
 
 def effective_schmid(factors, systems: SlipSystems) -> np.ndarray:

@@ -398,3 +398,22 @@ def test_write_slip_outputs_writes_tables_pictures_and_caution(tmp_path):
     back = pd.read_csv(tmp_path / "slip" / "grains_slip.csv")
     np.testing.assert_allclose(back["schmid_max"], res["grain_table"]["schmid_max"])
     assert "schmid_max" in gg.graph.nodes[0] and "transmission_ab" in gg.graph.edges[0, 1]
+
+
+def test_point_schmid_maps_mask_unindexed_and_other_phases():
+    from slipnet.slip import point_schmid_maps
+
+    euler = np.zeros((3, 4, 3))
+    euler[:, 2:] = [45.0, 30.0, 0.0]
+    euler[0, 0] = np.nan  # unindexed
+    phase = np.zeros((3, 4), np.int32)
+    phase[2, :] = 1  # an FCC island
+    omap = OrientationMap.from_euler(euler, step=1.0, phase=phase,
+                                     phases=(Phase("ferrite", "bcc", 0.2866), Phase("austenite", "fcc", 0.3591)))
+    s = slip_systems("bcc")
+    maps = point_schmid_maps(omap, [1, 0, 0], s)
+    assert maps["schmid_max"].shape == (3, 4)
+    assert np.isnan(maps["schmid_max"][0, 0]) and np.all(np.isnan(maps["schmid_max"][2]))
+    assert maps["system_max"][0, 0] == -1
+    ref = np.abs(schmid_factors(omap.quats[1, 3], [1, 0, 0], s)).max()
+    assert maps["schmid_max"][1, 3] == pytest.approx(ref)
