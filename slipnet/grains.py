@@ -473,7 +473,7 @@ def _merge_small(labels: np.ndarray, a: np.ndarray, b: np.ndarray, phase_flat: n
     lab_phase[labels[labels >= 0]] = phase_flat[labels >= 0]
     merged_total = 0
     passes = 0
-    for passes in range(1, 101):  # noqa: B007 - the count is logged
+    for passes in range(1, 101):
         sizes = np.bincount(labels[labels >= 0], minlength=n)
         small = (sizes > 0) & (sizes < min_points)
         if not small.any():
@@ -685,7 +685,8 @@ def build_grain_graph(
                 f"{float(omap.quality.min()):g}..{float(omap.quality.max()):g}"
             )
         log(f"left out {int(omap.indexed.sum() - valid.sum())} indexed points with quality below {mq:g}")
-    log(f"{int(valid.sum())} of {npts} points carry an orientation ({omap.grid} grid {ny}x{nx_}, step {omap.step:g} µm)")
+    log(f"{int(valid.sum())} of {npts} points carry an orientation "
+        f"({omap.grid} grid {ny}x{nx_}, step {omap.step:g} µm)")
 
     steps = _Steps(8, progress)
     qflat = omap.quats.reshape(-1, 4)
@@ -816,6 +817,14 @@ def build_grain_graph(
     firstc = ordc[np.concatenate(([True], chain_b[ordc][1:] != chain_b[ordc][:-1]))] if n_chains else ordc
     ends_xy = np.column_stack((sxv[firstc], syv[firstc], exv[firstc], eyv[firstc])) + np.tile(omap.origin, 2)
     n_chain_per_b = np.diff(boundary_chains)
+    # length along the chained midpoint polylines: follows the boundary itself rather than the
+    # cell-edge staircase, so it is a less grid-biased length estimate
+    seg = np.hypot(*np.diff(xy, axis=0).T) if xy.shape[0] > 1 else np.zeros(0)
+    seg_ok = np.ones(seg.size, dtype=bool)
+    seg_ok[ps[1:] - 1] = False
+    seg_chain = np.repeat(np.arange(n_chains), np.diff(chain_off))[:-1] if n_chains else np.zeros(0, np.int64)
+    chain_len = np.bincount(seg_chain[seg_ok], seg[seg_ok], n_chains)
+    trace_length = np.bincount(chain_b, chain_len, nbd) if n_chains else np.zeros(nbd)
     del mx, my, tx, ty, eorder, first_of_chain, chain_id
     steps("polylines")
 
@@ -894,6 +903,7 @@ def build_grain_graph(
         "grain_b": grain_b.astype(np.int64),
         "n_edges": counts.astype(np.int64),
         "length_um": length,
+        "trace_length_um": trace_length,
         "misorientation_deg": angle,
         "axis_h": axis[:, 0], "axis_k": axis[:, 1], "axis_l": axis[:, 2],
         "boundary_class": bclass.astype(str),
@@ -985,8 +995,8 @@ def write_grain_outputs(gg: GrainGraph, folder: str | os.PathLike, *, figures: b
     paths.append(gg.write_labels(folder / "grain_labels.npy"))
     bar("labels")
     if figures:
-        from .figures.grains import plot_grain_map, plot_misorientation_histogram
         from .figures._common import save_figure
+        from .figures.grains import plot_grain_map, plot_misorientation_histogram
 
         fig = plot_grain_map(gg)
         save_figure(fig, folder / "grain_map.png")
