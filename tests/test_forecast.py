@@ -452,3 +452,55 @@ def test_private_numpy_rotations_match_the_orientation_module():
     a, b = random_quats(20, seed=1), random_quats(20, seed=2)
     assert _matrices(a) == pytest.approx(matrix_from_quat(a), abs=1e-12)
     assert _qmul(a, b) == pytest.approx(quat_multiply(a, b), abs=1e-12)
+
+
+@pytest.mark.slow
+def test_stress_field_replaces_the_uniform_schmid_factors(bicrystal_gg):
+    from slipnet.stress import grain_schmid_factors, solve_elastic
+
+    systems = slip_systems("bcc")
+    field = solve_elastic(bicrystal_gg.omap, L_HAND, 100.0, tol=1e-4)
+    fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, stress_field=field, zigzag_tol=0.0)
+    local = effective_schmid(grain_schmid_factors(field, bicrystal_gg, systems), systems)
+    for r in fc.path.itertuples():
+        assert r.schmid == pytest.approx(local[r.grain, r.system])
+    assert fc.settings["stress_field"] is True
+
+
+# ------------------------------------------------------------------------- command line and demo
+def test_forecast_command_line(tmp_path):
+    from slipnet.cli import main
+    from slipnet.io import write_map
+
+    src = write_map(_bicrystal(), tmp_path / "bicrystal.npz")
+    out = tmp_path / "out"
+    args = ["forecast", str(src), "--tip", "5", "20", "--direction", "1", "0", "--load-axis",
+            *map(str, L_HAND), "--horizon", "60", "--samples", "2", "--out", str(out),
+            "--save-graph", str(tmp_path / "graph.pickle")]
+    assert main(args) == 0
+    assert (out / "forecast_barriers.csv").exists() and (out / "forecast_map.png").exists()
+    assert CAUTION in (out / "summary.md").read_text(encoding="utf-8")
+    # the saved graph gives the same forecast without rebuilding the grains
+    out2 = tmp_path / "out2"
+    assert main(["forecast", "--graph", str(tmp_path / "graph.pickle"), "--tip", "5", "20", "--direction", "1",
+                 "0", "--load-axis", *map(str, L_HAND), "--horizon", "60", "--out", str(out2)]) == 0
+    import pandas as pd
+
+    a = pd.read_csv(out / "forecast_path.csv")
+    b = pd.read_csv(out2 / "forecast_path.csv")
+    assert a[["x0", "y0", "x1", "y1"]].to_numpy() == pytest.approx(b[["x0", "y0", "x1", "y1"]].to_numpy())
+    # a clear error (exit code 2) without a tip
+    assert main(["forecast", str(src), "--out", str(tmp_path / "x")]) == 2
+
+
+def test_demo_step_stores_a_forecast(tmp_path):
+    from slipnet.demo import _step_forecast
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((80, 100), 2.0, grain_size_um=30.0, notch={"depth_um": 20.0, "root_radius_um": 4.0}, seed=2)
+    gg = build_grain_graph(spec.omap)
+    ctx = {"out": tmp_path, "seed": 1, "quick": True, "specimen": spec, "grain_graph": gg, "omap": spec.omap}
+    _step_forecast(ctx)
+    fc = ctx["forecast"]
+    assert fc.length_um > 0 and fc.samples is not None and len(fc.samples) == 8
+    assert (tmp_path / "forecast" / "summary.md").exists()
