@@ -560,3 +560,54 @@ def test_example_script_runs(capsys):
     runpy.run_path(str(script), run_name="__main__")
     out = capsys.readouterr().out
     assert "SYNTHETIC" in out and "registration: RMS" in out and "sites_f1" in out
+
+
+def test_cli_compare_with_a_map(tmp_path, capsys):
+    from slipnet.cli import main
+    from slipnet.io import write_map
+    from slipnet.orientation import quat_from_euler
+
+    # a two-grain map: 40° apart about z, split at x = 40 µm
+    q = np.where((np.arange(80) < 40)[None, :, None], quat_from_euler([0.0, 0.0, 0.0])[None, None, :],
+                 quat_from_euler([40.0, 0.0, 0.0])[None, None, :])
+    q = np.broadcast_to(q, (60, 80, 4)).copy()
+    omap = OrientationMap(q, np.zeros((60, 80), int), np.ones((60, 80)), np.ones((60, 80), bool), 1.0)
+    write_map(omap, tmp_path / "map.npz")
+    _, forecast, sm = _scenario()
+    write_strain(sm.series, tmp_path / "strain.txt")
+    forecast.sites.to_csv(tmp_path / "sites.csv", index=False)
+    pd.DataFrame({"strain_x_um": sm.strain_points[:, 0], "strain_y_um": sm.strain_points[:, 1],
+                  "map_x_um": sm.map_points[:, 0], "map_y_um": sm.map_points[:, 1]}).to_csv(tmp_path / "cp.csv",
+                                                                                           index=False)
+    rc = main(["compare", str(tmp_path / "strain.txt"), "--points", str(tmp_path / "cp.csv"), "--kind", "similarity",
+               "--map", str(tmp_path / "map.npz"), "--sites", str(tmp_path / "sites.csv"), "--window", "5",
+               "--load-axis", "1", "0", "0", "--no-figures", "--out", str(tmp_path / "out")])
+    assert rc == 0
+    grains = pd.read_csv(tmp_path / "out" / "grain_strain.csv")
+    assert sorted(grains["grain"]) == [0, 1]
+    assert (tmp_path / "out" / "boundary_band_strain.csv").exists()
+    assert not list((tmp_path / "out").glob("*.png"))
+    assert "sites_f1" in capsys.readouterr().out
+
+
+def test_labels_on_a_hexagonal_map():
+    ny, nx = 8, 10
+    q = np.zeros((ny, nx, 4))
+    q[..., 0] = 1.0
+    omap = OrientationMap(q, np.zeros((ny, nx), int), np.ones((ny, nx)), np.ones((ny, nx), bool), 1.0, grid="hex")
+    labels = np.arange(ny * nx).reshape(ny, nx)
+    ident = fit_transform([[0, 0], [1, 0], [0, 1]], [[0, 0], [1, 0], [0, 1]])
+    lab = labels_on_strain_grid(labels, omap, ((14, 20), 0.5, (0.0, 0.0)), ident)
+    x, y = omap.coordinates()
+    # every strain point takes the label of the hexagonal map point nearest to it (brute force)
+    i, j = np.indices((14, 20))
+    px, py = 0.5 * j.ravel(), 0.5 * i.ravel()
+    d = (px[:, None] - x.ravel()[None]) ** 2 + (py[:, None] - y.ravel()[None]) ** 2
+    best = labels.ravel()[np.argmin(d, axis=1)]
+    dmin = np.sort(d, axis=1)
+    clear = dmin[:, 1] - dmin[:, 0] > 1e-9  # skip exact ties between two map points
+    inside = lab.ravel() >= 0
+    assert np.array_equal(lab.ravel()[clear & inside], best[clear & inside])
+    # −1 only at the ragged border of the hexagonal grid (the map's own nearest-point rule)
+    border = (py > y.max() - 1e-9) | (px < 0.5 + 1e-9) | (px > x.max() - 0.5 - 1e-9)
+    assert np.all(border[~inside]) and inside.mean() > 0.85
