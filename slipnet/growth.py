@@ -39,6 +39,7 @@ __all__ = [
     "calibrate",
     "crossing_lengths",
     "growth_profile",
+    "life_amplitude",
     "path_from_forecast",
     "path_from_tables",
     "plastic_zone_ratio",
@@ -636,6 +637,7 @@ def _run(path: GrowthPath, s: float, p: GrowthParameters, a0: float, a1: float, 
 
 
 def _resolve_path(forecast_or_path, **kw) -> GrowthPath:
+    kw = {k: v for k, v in kw.items() if v is not None}
     if isinstance(forecast_or_path, GrowthPath):
         return forecast_or_path
     if hasattr(forecast_or_path, "path"):
@@ -660,6 +662,9 @@ def simulate_growth(
     samples: int | None = None,
     strength_scatter: float = 0.2,
     seed: int = 0,
+    stress_field=None,
+    grain_graph=None,
+    systems=None,
 ) -> GrowthResult:
     """Grow a crack along a path: rate and cycles versus crack length, crossings, dips and arrest.
 
@@ -688,12 +693,15 @@ def simulate_growth(
         Log-normal σ of the barrier strength draws.
     seed
         Seed of those draws.
+    stress_field, grain_graph, systems
+        With a forecast: take the grain orientation factors from the local stress field instead of the
+        forecast's uniform-stress Schmid factors (see :func:`path_from_forecast`).
 
     Returns
     -------
     GrowthResult
     """
-    path = _resolve_path(forecast_or_path)
+    path = _resolve_path(forecast_or_path, stress_field=stress_field, grain_graph=grain_graph, systems=systems)
     p = _params(params, friction_stress=friction_stress, coefficient=coefficient, exponent=exponent,
                 barrier_stress=barrier_stress)
     s = _check_amplitude(stress_amplitude, p)
@@ -988,7 +996,8 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
                       polyline=np.column_stack([poly_s, poly_x, poly_y])[keep])
 
 
-def path_from_forecast(forecast, *, offset_um: float | None = None) -> GrowthPath:
+def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field=None, grain_graph=None,
+                       systems=None) -> GrowthPath:
     """A :class:`GrowthPath` from a ``CrackForecast`` (its ``.path``, ``.crossings``, ``.barriers``).
 
     Parameters
@@ -998,6 +1007,15 @@ def path_from_forecast(forecast, *, offset_um: float | None = None) -> GrowthPat
     offset_um
         Crack length already behind the forecast tip (µm); default the forecast's
         ``settings["initial_crack_um"]`` (0 for a notch root).
+    stress_field
+        Optional ``StressField``: the grain factors then come from the local grain Schmid factors
+        (``slipnet.stress.grain_schmid_factors``) of the system the path follows in each grain
+        (the largest over systems in stage II) instead of the forecast's ``schmid`` column.
+    grain_graph
+        The ``GrainGraph`` of the map (needed with ``stress_field``).
+    systems
+        The slip systems the forecast used (default catalogue when None; relative CRSS divide the
+        local factors as in the effective Schmid factor).
 
     See :func:`path_from_tables` for how the tables are read.
     """
@@ -1006,9 +1024,102 @@ def path_from_forecast(forecast, *, offset_um: float | None = None) -> GrowthPat
     if offset_um is None:
         settings = getattr(forecast, "settings", None) or {}
         offset_um = float(settings.get("initial_crack_um", 0.0) or 0.0)
-    return path_from_tables(forecast.path, getattr(forecast, "barriers", None),
+    table = forecast.path
+    if stress_field is not None:
+        table = _local_factors(table, stress_field, grain_graph, systems)
+    return path_from_tables(table, getattr(forecast, "barriers", None),
                             crossings=getattr(forecast, "crossings", None), offset_um=offset_um,
                             source="forecast.path")
+
+
+def _local_factors(table: pd.DataFrame, stress_field, grain_graph, systems) -> pd.DataFrame:
+    """The path table with ``schmid`` replaced by local effective Schmid factors from a stress field."""
+    if grain_graph is None:
+        raise ParameterError("grain_graph should be given with stress_field (the local factors are grain means)")
+    if "system" not in table.columns:
+        raise ParameterError("forecast.path should have a 'system' column to use local Schmid factors")
+    from .stress import grain_schmid_factors
+
+    local = np.abs(np.asarray(grain_schmid_factors(stress_field, grain_graph, systems), dtype=float))
+    crss = np.asarray(getattr(systems, "crss", np.ones(local.shape[1])), dtype=float)
+    eff = np.nan_to_num(local / crss[None, :])
+    g = table["grain"].to_numpy(np.int64)
+    sysi = table["system"].to_numpy(np.int64)
+    ok = (g >= 0) & (g < eff.shape[0])
+    gi = np.where(ok, g, 0)
+    on_sys = eff[gi, np.clip(sysi, 0, eff.shape[1] - 1)]
+    best = eff[gi].max(axis=1)
+    out = table.copy()
+    out["schmid"] = np.where(ok, np.where(sysi >= 0, on_sys, best), table["schmid"].to_numpy(float))
+    return out
+
+
+def life_amplitude(
+    path: GrowthPath,
+    cycles: float,
+    *,
+    params: GrowthParameters | None = None,
+    initial_length: float | None = None,
+    final_length: float | None = None,
+    n_points: int = 1000,
+    rtol: float = 1e-6,
+) -> float:
+    """Stress amplitude (MPa) at which the crack grows from ``initial_length`` to ``final_length`` in
+    ``cycles`` cycles: a finite-life fatigue strength of the mapped path.
+
+    The cycles to reach ``final_length`` fall monotonically with the amplitude, so the root of
+    ln N(σ) − ln N_target is bracketed by ``scipy.optimize.brentq`` between the amplitude needed to
+    pass every barrier up to ``final_length`` (the microstructural fatigue limit, eq. 7 of
+    ``docs/growth-model.md``) and σ_f. When even just above that limit the crack needs fewer cycles
+    than asked (possible for m < 2, where the approach to a barrier takes finite time), the limit
+    itself is returned: below it the crack arrests.
+
+    Parameters
+    ----------
+    path
+        The path.
+    cycles
+        Target life N (cycles), > 0.
+    params
+        Model constants.
+    initial_length, final_length
+        Crack lengths (µm); defaults as in :func:`simulate_growth`.
+    n_points
+        Crack lengths per model run.
+    rtol
+        Relative tolerance on the amplitude.
+
+    Returns
+    -------
+    float
+        σ_a (MPa).
+    """
+    p = _params(params)
+    target = check_positive(cycles, "cycles")
+    d = path.barrier_positions_um
+    a1 = path.length_um if final_length is None else check_positive(final_length, "final_length")
+    a0 = (0.1 * (d[0] if d.size else a1)) if initial_length is None else check_positive(initial_length,
+                                                                                        "initial_length")
+    if a0 >= a1:
+        raise ParameterError(f"initial_length should be below final_length={a1:g} µm; got {a0:g} µm")
+    th = threshold_amplitudes(path, p)[d < a1]
+    lo = max(float(th.max()) if th.size else 0.0, 1e-9 * p.friction_stress) * (1 + 1e-9)
+    hi = p.friction_stress * (1 - 1e-9)
+    if lo >= hi:
+        raise ParameterError(f"the barriers need {lo:g} MPa, not below friction_stress={p.friction_stress:g} MPa: "
+                             "raise friction_stress or lower barrier_stress")
+
+    def log_excess(sigma: float) -> float:
+        _a, _st, cyc, _x = _run(path, sigma, p, a0, a1, int(n_points))
+        n_end = cyc[-1]
+        # an arrest (rounding right at the limit) counts as "far too many cycles": the sign is what brentq needs
+        return 1e3 if not math.isfinite(n_end) else math.log(max(n_end, 1e-300)) - math.log(target)
+
+    if log_excess(lo) <= 0:
+        return lo
+    if log_excess(hi) >= 0:
+        raise NumericalError(f"even at σ_f = {p.friction_stress:g} MPa the crack needs more than {target:g} cycles")
+    return float(optimize.brentq(log_excess, lo, hi, rtol=rtol))
 
 
 # --------------------------------------------------------------------------------------------

@@ -546,3 +546,33 @@ def test_growth_along_a_real_forecast_on_a_three_grain_map(tmp_path):
     saved = pd.read_csv(tmp_path / "g" / "growth_barriers.csv")
     np.testing.assert_allclose(saved["position_um"], path.barrier_positions_um, rtol=1e-9)
     np.testing.assert_allclose(saved["m_prime"], path.m_prime, rtol=1e-9)
+
+
+def test_life_amplitude_hits_the_target_life_and_falls_back_to_the_fatigue_limit():
+    from slipnet.growth import life_amplitude
+
+    path = _path()
+    p = GrowthParameters(friction_stress=SF)
+    s = life_amplitude(path, 2e5, params=p, n_points=600)
+    prof = simulate_growth(path, s, params=p, n_points=600).profile
+    assert prof["cycles"].iloc[-1] == pytest.approx(2e5, rel=1e-5)  # brentq root of the integrated life
+    assert s > threshold_amplitudes(path, p).max()
+    # a life longer than the crack needs even at the limit: the answer is the limit itself, eq. (7)
+    assert life_amplitude(path, 1e12, params=p, n_points=600) == pytest.approx(threshold_amplitudes(path, p).max())
+    with pytest.raises(ParameterError, match="cycles"):
+        life_amplitude(path, 0.0)
+
+
+def test_local_stress_field_factors_replace_the_forecast_schmid(monkeypatch):
+    import slipnet.stress
+    from slipnet.growth import path_from_forecast
+
+    local = np.zeros((10, 4))
+    local[4, 0] = -0.25  # grain 4 follows system 0
+    local[9, 3] = 0.40  # grain 9 follows system 3
+    monkeypatch.setattr(slipnet.stress, "grain_schmid_factors", lambda field, gg, systems=None: local)
+    fc = _fake_forecast()
+    path = path_from_forecast(fc, stress_field=object(), grain_graph=object())
+    np.testing.assert_allclose(path.grain_factors, [0.25, 0.40])
+    with pytest.raises(ParameterError, match="grain_graph"):
+        path_from_forecast(fc, stress_field=object())
