@@ -644,8 +644,8 @@ def demo_specimen(seed: int = 7, quick: bool = False) -> Specimen:
     seed
         Seed of the generator (7 gives the documented scenario).
     quick
-        Scan the same 800 × 600 µm field at 4 µm instead of 2 µm (200 × 150 instead of 400 × 300
-        points): the same grains, a quarter of the points.
+        Scan the same 796 × 596 µm field at 4 µm instead of 2 µm (200 × 150 instead of 399 × 299
+        points): the same grains (every other row and column), a quarter of the points.
 
     Returns
     -------
@@ -655,11 +655,11 @@ def demo_specimen(seed: int = 7, quick: bool = False) -> Specimen:
         (map frame), across the notch, so the notch opens in mode I.
     """
     step = 4.0 if quick else 2.0
-    shape = (150, 200) if quick else (300, 400)
+    shape = (150, 200) if quick else (299, 399)  # both span 796 × 596 µm: the same tessellation
     story = (
         "Invented data, not a measurement. Coupon KV-7 is a made-up specimen of a coarse-grained, "
         "normalised ferritic steel plate. Its polished face was 'mapped' over 800 × 600 µm at the left "
-        f"edge, {step:g} µm step, where a 60 µm deep V-notch (45° opening, 15 µm root radius) is "
+        f"edge at {step:g} µm step, where a 60 µm deep V-notch (45° opening, 15 µm root radius) is "
         "cut at mid-height; the coupon is loaded in tension along y, across the notch. Grains of "
         "about 80 µm with random orientations lie ahead of the notch root, so the first grains a "
         "crack meets differ in slip geometry."

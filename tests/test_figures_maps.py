@@ -10,7 +10,7 @@ from slipnet import demo
 from slipnet.cautions import CAUTION
 from slipnet.errors import ParameterError
 from slipnet.figures._common import save_figure
-from slipnet.figures.maps import UNINDEXED_COLOR, ipf_colors, ipf_direction, plot_ipf_map
+from slipnet.figures.maps import UNINDEXED_COLOR, ipf_colors, ipf_direction, plot_ipf_map, plot_scalar_map
 from slipnet.maps import OrientationMap
 from slipnet.orientation import CUBIC_OPERATORS, quat_multiply, random_quats
 from slipnet.synthetic import make_specimen
@@ -140,3 +140,21 @@ def test_demo_writes_specimen_files_picture_and_caution(tmp_path, monkeypatch):
     back = read_map(tmp_path / "specimen.npz")
     assert np.array_equal(back.indexed, ctx["omap"].indexed)
     assert np.allclose(back.quats[back.indexed], ctx["omap"].quats[back.indexed])
+
+
+@pytest.mark.parametrize("grid", ["square", "hex"])
+def test_scalar_map_shows_values_masks_unindexed_and_checks_shape(tmp_path, grid):
+    spec = make_specimen((30, 40), 1.0, grid=grid, grain_size_um=10.0, unindexed_fraction=0.05, seed=2)
+    om = spec.omap
+    ax = plot_scalar_map(om, om.quality, "quality (–)", labels=spec.truth_labels, title="quality")
+    img = ax.images[0].get_array()
+    if grid == "square":
+        assert np.allclose(img[om.indexed], om.quality[om.indexed])
+        assert np.all(img.mask[~om.indexed])
+    else:
+        assert img.shape == (30, 81)  # two half-step pixels per point plus the shifted-row margin
+        assert np.allclose(img[0, 0:2], om.quality[0, 0]) if om.indexed[0, 0] else img.mask[0, 0]
+    assert ax.figure.axes[-1].get_ylabel() == "quality (–)"  # colour bar carries the label and unit
+    save_figure(ax.figure, tmp_path / "q.png")
+    with pytest.raises(ParameterError, match="values"):
+        plot_scalar_map(om, np.zeros((3, 3)), "x")

@@ -343,7 +343,7 @@ def test_parameter_errors_name_the_parameter():
 def test_demo_specimen_scenario(quick):
     spec = demo_specimen(seed=7, quick=quick)
     om = spec.omap
-    assert om.shape == ((150, 200) if quick else (300, 400))
+    assert om.shape == ((150, 200) if quick else (299, 399))
     assert 70 <= spec.n_grains <= 130
     assert "synthetic" in spec.name.lower() and "invented" in spec.description.lower()
     assert np.allclose(spec.load_axis, [0.0, 1.0, 0.0])
@@ -361,6 +361,15 @@ def test_demo_specimen_scenario(quick):
     assert len(set(grains.tolist())) >= 3
     mis = disorientation_angle(spec.grain_quats[grains[:-1]], spec.grain_quats[grains[1:]])
     assert np.all(mis > 15.0)
+
+
+def test_quick_demo_is_the_same_field_at_half_resolution():
+    full, quick = demo_specimen(seed=7), demo_specimen(seed=7, quick=True)
+    assert full.omap.extent == quick.omap.extent
+    assert full.notch_root == quick.notch_root
+    a, b = full.truth_labels[::2, ::2], quick.truth_labels
+    ok = (a >= 0) & (b >= 0)
+    assert np.array_equal(full.grain_quats[a[ok]], quick.grain_quats[b[ok]])
 
 
 @pytest.mark.slow

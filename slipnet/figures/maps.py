@@ -24,9 +24,9 @@ from matplotlib.patches import Patch
 from .._checks import check_positive
 from ..errors import ParameterError
 from ..orientation import quat_rotate
-from ._common import add_scale_bar, label_map_axes, map_extent
+from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
-__all__ = ["add_ipf_key", "ipf_colors", "ipf_direction", "plot_ipf_map"]
+__all__ = ["add_ipf_key", "ipf_colors", "ipf_direction", "plot_ipf_map", "plot_scalar_map"]
 
 #: Colour of unindexed points on maps.
 UNINDEXED_COLOR = (0.55, 0.55, 0.55)
@@ -184,6 +184,94 @@ def _label_edges(labels: np.ndarray) -> np.ndarray:
     return edge
 
 
+def _new_map_axes(omap, figsize_in: float) -> Axes:
+    x0, x1, y0, y1 = omap.extent
+    aspect = (y1 - y0 + omap.row_spacing) / max(x1 - x0 + omap.step, 1e-9)
+    fig, ax = plt.subplots(figsize=(figsize_in, max(2.5, figsize_in * 0.72 * aspect)))
+    fig.subplots_adjust(right=0.72)
+    return ax
+
+
+def _draw_overlays(ax: Axes, omap, extent, labels, boundaries) -> None:
+    """Grain boundaries from a label raster and/or polylines (µm), in black."""
+    if labels is not None:
+        lab = np.asarray(labels)
+        if lab.shape != omap.shape:
+            raise ParameterError(f"labels should have the map's shape {omap.shape}; got {lab.shape}")
+        lab_img, _ = _display_raster(omap, lab.astype(np.int64))
+        edge = _label_edges(lab_img)
+        overlay = np.zeros((*edge.shape, 4))
+        overlay[..., 3] = edge
+        ax.imshow(overlay, extent=extent, origin="upper", interpolation="nearest")
+    if boundaries is not None:
+        items = boundaries.values() if isinstance(boundaries, Mapping) else boundaries
+        segs = []
+        for item in items:
+            for line in ([item] if isinstance(item, np.ndarray) else item):
+                arr = np.asarray(line, dtype=np.float64)
+                if arr.ndim == 2 and arr.shape[1] == 2 and arr.shape[0] >= 2:
+                    segs.append(arr)
+        ax.add_collection(LineCollection(segs, colors="black", linewidths=0.7))
+
+
+def plot_scalar_map(
+    omap,
+    values,
+    label: str,
+    ax: Axes | None = None,
+    labels=None,
+    boundaries: Mapping | Iterable | None = None,
+    *,
+    cmap: str = SCALAR_CMAP,
+    vmin: float | None = None,
+    vmax: float | None = None,
+    title: str | None = None,
+    figsize_in: float = 7.0,
+) -> Axes:
+    """Draw a per-point scalar (KAM, quality, strain, ...) on the map grid, with a colour bar.
+
+    Parameters
+    ----------
+    omap : OrientationMap
+        The map whose grid the values live on (square or hexagonal).
+    values : (ny, nx) array_like
+        One number per point; NaN and unindexed points are drawn grey.
+    label
+        Colour-bar label with units, e.g. ``"KAM (°)"``.
+    ax, labels, boundaries, title, figsize_in
+        As in :func:`plot_ipf_map`.
+    cmap
+        A perceptually uniform, colour-blind-safe map (viridis by default; cividis also fits).
+    vmin, vmax
+        Colour limits (default: data range).
+
+    Returns
+    -------
+    Axes
+        The map axes.
+    """
+    check_positive(figsize_in, "figsize_in")
+    v = np.asarray(values, dtype=np.float64)
+    if v.shape != omap.shape:
+        raise ParameterError(f"values should have the map's shape {omap.shape}; got {v.shape}")
+    if ax is None:
+        ax = _new_map_axes(omap, figsize_in)
+    v = np.where(omap.indexed, v, np.nan)
+    img, extent = _display_raster(omap, v)
+    cm = plt.get_cmap(cmap).with_extremes(bad=UNINDEXED_COLOR)
+    im = ax.imshow(np.ma.masked_invalid(img), extent=extent, origin="upper", interpolation="nearest", cmap=cm,
+                   vmin=vmin, vmax=vmax)
+    _draw_overlays(ax, omap, extent, labels, boundaries)
+    label_map_axes(ax)
+    ax.set_xlim(extent[0], extent[1])
+    ax.set_ylim(extent[2], extent[3])
+    add_scale_bar(ax)
+    ax.figure.colorbar(im, ax=ax, label=label, shrink=0.8)
+    if title is not None:
+        ax.set_title(title)
+    return ax
+
+
 def plot_ipf_map(
     omap,
     direction=(0.0, 0.0, 1.0),
@@ -225,34 +313,14 @@ def plot_ipf_map(
     """
     check_positive(figsize_in, "figsize_in")
     if ax is None:
-        x0, x1, y0, y1 = omap.extent
-        aspect = (y1 - y0 + omap.row_spacing) / max(x1 - x0 + omap.step, 1e-9)
-        fig, ax = plt.subplots(figsize=(figsize_in, max(2.5, figsize_in * 0.72 * aspect)))
-        fig.subplots_adjust(right=0.72)
+        ax = _new_map_axes(omap, figsize_in)
     rgb = ipf_colors(omap.quats, direction)
     rgb[~omap.indexed] = UNINDEXED_COLOR
     img, extent = _display_raster(omap, rgb)
     if omap.grid == "hex":
         img = np.where(np.isnan(img), 1.0, img)  # the half-pixel margins of the shifted rows: white
     ax.imshow(img, extent=extent, origin="upper", interpolation="nearest")
-    if labels is not None:
-        lab = np.asarray(labels)
-        if lab.shape != omap.shape:
-            raise ParameterError(f"labels should have the map's shape {omap.shape}; got {lab.shape}")
-        lab_img, _ = _display_raster(omap, lab.astype(np.int64))
-        edge = _label_edges(lab_img)
-        overlay = np.zeros((*edge.shape, 4))
-        overlay[..., 3] = edge
-        ax.imshow(overlay, extent=extent, origin="upper", interpolation="nearest")
-    if boundaries is not None:
-        items = boundaries.values() if isinstance(boundaries, Mapping) else boundaries
-        segs = []
-        for item in items:
-            for line in ([item] if isinstance(item, np.ndarray) else item):
-                arr = np.asarray(line, dtype=np.float64)
-                if arr.ndim == 2 and arr.shape[1] == 2 and arr.shape[0] >= 2:
-                    segs.append(arr)
-        ax.add_collection(LineCollection(segs, colors="black", linewidths=0.7))
+    _draw_overlays(ax, omap, extent, labels, boundaries)
     label_map_axes(ax)
     ax.set_xlim(extent[0], extent[1])
     ax.set_ylim(extent[2], extent[3])
