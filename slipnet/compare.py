@@ -779,6 +779,8 @@ class Comparison:
     ----------
     transform : Transform or None
         Strain frame → map frame.
+    series : StrainSeries
+        The analysed strain series (strain-image frame).
     shear : (ny, nx) ndarray
         Measured γ_max on the strain grid (dimensionless; NaN where missing).
     shear_on_map : ndarray or None
@@ -794,7 +796,17 @@ class Comparison:
     scores : dict
         Flat dict of every score (see :func:`compare_forecast`).
     settings : dict
-        The tolerances and options used.
+        The tolerances and options used (``synthetic`` True when the series is invented data).
+    predicted_sites : (n, 2) ndarray
+        Predicted site positions (µm, map frame).
+    predicted_path : DataFrame or None
+        Predicted path segments.
+    measured_path : (m, 2) ndarray or None
+        Measured crack path polyline (µm, map frame).
+    predicted_profile : DataFrame or None
+        Predicted growth profile (``crack_length``, ``dadn``) for the figure.
+    map_extent : tuple or None
+        ``imshow`` extent of the map grid (µm) when a grain graph was given.
     """
 
     transform: Transform | None
