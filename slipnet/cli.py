@@ -68,6 +68,41 @@ def _run_map(args) -> int:
     return 0
 
 
+def _add_grains(sub) -> None:
+    p = sub.add_parser(
+        "grains",
+        help="rebuild grains and boundaries as a graph: tables, GraphML, label image and pictures",
+        description="Read IN, rebuild grains (neighbours join below --threshold), and write grain, boundary "
+        "and triple-junction tables (CSV), the grain graph (GraphML), the label image (.npy), a grain map "
+        "with boundaries by class and a misorientation histogram into --out.",
+    )
+    p.add_argument("input", metavar="IN", help="orientation map file")
+    p.add_argument("--out", default="slipnet-grains", help="output folder (default: slipnet-grains)")
+    p.add_argument("--threshold", type=float, default=15.0, help="grain boundary threshold, degrees (default 15)")
+    p.add_argument("--subgrain", type=float, metavar="DEG", help="sub-grain threshold inside grains, degrees")
+    p.add_argument("--min-quality", type=float, metavar="Q", help="leave out points with quality below Q")
+    p.add_argument("--fill", action="store_true", help="fill unlabelled points from the majority of their neighbours")
+    p.add_argument("--min-points", type=int, metavar="N", help="merge grains with fewer than N points")
+    p.add_argument("--min-area", type=float, metavar="UM2", help="merge grains smaller than UM2 square micrometres")
+    p.add_argument("--no-figures", action="store_true", help="skip the pictures")
+    p.add_argument("--frame-rotation", metavar="ROT", help="as for 'slipnet map'")
+    p.set_defaults(func=_run_grains)
+
+
+def _run_grains(args) -> int:
+    from .grains import build_grain_graph, write_grain_outputs
+    from .io import read_map
+
+    omap = read_map(args.input, frame_rotation=args.frame_rotation)
+    gg = build_grain_graph(omap, threshold_deg=args.threshold, subgrain_deg=args.subgrain,
+                           min_quality=args.min_quality, fill_unindexed=args.fill, min_grain_size=args.min_points,
+                           min_grain_area_um2=args.min_area, progress=True)
+    write_grain_outputs(gg, args.out, figures=not args.no_figures, progress=True)
+    print(f"grains: {gg.n_grains} grains, {len(gg.boundaries)} boundaries, {len(gg.triple_junctions)} triple "
+          f"junctions; outputs written to {args.out}")
+    return 0
+
+
 def _add_slip(sub) -> None:
     p = sub.add_parser(
         "slip",
@@ -156,6 +191,8 @@ def _add_growth(sub) -> None:
                    "(default: the forecast's sample count, else 0)")
     p.add_argument("--seed", type=int, default=0, help="seed of the draws (default 0)")
     p.add_argument("--record", metavar="CSV", help="measured record (columns crack_length_um, cycles) to calibrate on")
+    p.add_argument("--life", type=float, metavar="CYCLES",
+                   help="also find the stress amplitude that grows the crack to the final length in CYCLES")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(func=_run_growth)
 
@@ -219,6 +256,16 @@ def _run_growth(args) -> int:
         params = fit.params
     res = simulate_growth(path, float(amplitude), params=params, initial_length=args.initial_length,
                           final_length=args.final_length, n_points=args.points, samples=samples or 0, seed=seed)
+    if args.life is not None:
+        from dataclasses import replace
+
+        from .growth import life_amplitude
+
+        life = life_amplitude(path, args.life, params=params, initial_length=args.initial_length,
+                              final_length=args.final_length)
+        res = replace(res, notes=(*res.notes, f"amplitude for a life of {args.life:g} cycles to the final length: "
+                                  f"{life:.1f} MPa"))
+        print(f"growth: {life:.1f} MPa grows the crack to the final length in {args.life:g} cycles")
     write_growth(res, args.out, figures=not args.no_figures, calibration=fit)
     arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
               else "no arrest on the path")
@@ -462,6 +509,7 @@ def _run_forecast(args) -> int:
 _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("demo", _add_demo),
     ("map", _add_map),
+    ("grains", _add_grains),
     ("slip", _add_slip),
     ("forecast", _add_forecast),
     ("growth", _add_growth),
