@@ -191,8 +191,6 @@ def _add_growth(sub) -> None:
                    "(default: the forecast's sample count, else 0)")
     p.add_argument("--seed", type=int, default=0, help="seed of the draws (default 0)")
     p.add_argument("--record", metavar="CSV", help="measured record (columns crack_length_um, cycles) to calibrate on")
-    p.add_argument("--life", type=float, metavar="CYCLES",
-                   help="also find the stress amplitude that grows the crack to the final length in CYCLES")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(func=_run_growth)
 
@@ -256,16 +254,6 @@ def _run_growth(args) -> int:
         params = fit.params
     res = simulate_growth(path, float(amplitude), params=params, initial_length=args.initial_length,
                           final_length=args.final_length, n_points=args.points, samples=samples or 0, seed=seed)
-    if args.life is not None:
-        from dataclasses import replace
-
-        from .growth import life_amplitude
-
-        life = life_amplitude(path, args.life, params=params, initial_length=args.initial_length,
-                              final_length=args.final_length)
-        res = replace(res, notes=(*res.notes, f"amplitude for a life of {args.life:g} cycles to the final length: "
-                                  f"{life:.1f} MPa"))
-        print(f"growth: {life:.1f} MPa grows the crack to the final length in {args.life:g} cycles")
     write_growth(res, args.out, figures=not args.no_figures, calibration=fit)
     arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
               else "no arrest on the path")
