@@ -277,10 +277,12 @@ def _choose_plane(cry: _Crystal, g: int) -> int:
 
 
 def _zigzag_partner(cry: _Crystal, g: int, p: int, tol: float) -> int:
-    """Best other plane within ``tol`` (relative) of plane ``p``'s factor, trace ≥ 5° away; −1 if none."""
+    """Best other plane whose factor is within ``tol`` (relative) of plane ``p``'s, trace ≥ 5° away; −1 if none."""
     if tol <= 0:
         return -1
-    ok = (cry.trace_ok[g] & (cry.plane_meff[g] >= (1.0 - tol) * cry.plane_meff[g, p])
+    m = cry.plane_meff[g]
+    # close = within tol of each other, relative to the larger of the two factors
+    ok = (cry.trace_ok[g] & (np.abs(m - m[p]) <= tol * np.maximum(m, m[p]))
           & (np.abs(cry.trace[g] @ cry.trace[g, p]) < math.cos(math.radians(5.0))))
     ok[p] = False
     if not ok.any():

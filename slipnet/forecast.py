@@ -14,7 +14,8 @@ Inside a grain the crack follows the surface trace of the slip plane whose best 
 the highest effective Schmid factor ``|m| / τ_c`` (``τ_c`` the relative critical resolved shear
 stress of its family), in the sense with a positive projection on the macroscopic growth
 direction (the direction given at the tip). Where another plane's effective factor is within
-``zigzag_tol`` (relative) of the best, the crack alternates between the two traces (zig-zag) in
+``zigzag_tol`` (relative to the larger of the two) of the plane being followed, the crack
+alternates between the two traces (zig-zag) in
 legs of ``zigzag_step_fraction`` × the grain's equivalent circle diameter. At a boundary the
 outgoing plane is the one with the highest choice score (see :class:`PathWeights`). Stage II
 (growth perpendicular to the in-plane projection of the load axis) starts past
