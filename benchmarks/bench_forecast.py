@@ -1,0 +1,83 @@
+"""Crack forecast speed: one forecast and a 500-sample Monte Carlo on a 1000 × 1000 point map.
+
+Shaped like an asv benchmark (setup, parameters, a fixed seed), runnable as a plain script::
+
+    python benchmarks/bench_forecast.py [--size 1000] [--samples 500] [--horizon 400]
+
+Setup: a synthetic ferritic map of ``size × size`` points at 1 µm (grains ~25 µm, seed 0) and its
+grain graph (``build_grain_graph``, timed: the first reference). Then, in the same run:
+
+* a single forecast from the middle of the left edge across the map (target: well under 1 s once
+  the graph exists), best of 3, with its ratio against two references measured in the same run:
+  the graph reconstruction, and a plain re-computation of the effective Schmid factors of every
+  grain for all 24 BCC systems (``schmid_factors`` + ``effective_schmid``);
+* the same forecast with ``--samples`` Monte Carlo samples (orientation 1.5°, load 2°, tip 1 µm,
+  weights 20 %), once, with the time per sample.
+
+It checks that each case does real work (a path of several grains, barriers ranked, every sample
+used). The machine has 2 cores shared with other jobs, so the times are noisy.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+
+import numpy as np
+
+from slipnet.forecast import forecast_crack
+from slipnet.grains import build_grain_graph
+from slipnet.slip import effective_schmid, schmid_factors, slip_systems
+from slipnet.synthetic import make_specimen
+
+
+def best_time(fn, repeat: int = 3) -> tuple[float, object]:
+    best, out = np.inf, None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t0)
+    return best, out
+
+
+def main(argv=None) -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--size", type=int, default=1000, help="map side in points (default 1000)")
+    ap.add_argument("--samples", type=int, default=500, help="Monte Carlo samples (default 500)")
+    ap.add_argument("--horizon", type=float, default=400.0, help="path length, µm (default 400)")
+    args = ap.parse_args(argv)
+
+    t0 = time.perf_counter()
+    spec = make_specimen((args.size, args.size), 1.0, grain_size_um=25.0, seed=0)
+    t_spec = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    gg = build_grain_graph(spec.omap)
+    t_graph = time.perf_counter() - t0
+    print(f"map {args.size} × {args.size} points, {gg.n_grains} grains; specimen {t_spec:.2f} s, "
+          f"graph (reference 1) {t_graph:.2f} s")
+
+    tip, direction, load = (3.0, 0.5 * args.size), (1.0, 0.0), (0.0, 1.0, 0.0)
+    systems = slip_systems("bcc")
+    forecast_crack(gg, tip, direction, load, 20.0, systems=systems)  # compile the kernels
+    t_schmid, _ = best_time(lambda: effective_schmid(schmid_factors(gg.mean_quats, load, systems), systems))
+    t_single, fc = best_time(lambda: forecast_crack(gg, tip, direction, load, args.horizon, systems=systems))
+    assert fc.path["grain"].nunique() >= 3 and len(fc.barriers) >= 2, "the forecast did too little work"
+    print(f"single forecast: {t_single * 1e3:.1f} ms ({fc.length_um:.0f} µm through "
+          f"{fc.path['grain'].nunique()} grains, {len(fc.barriers)} barriers, {len(fc.sites)} sites)")
+    print(f"  ratio single / graph build   = {t_single / t_graph:.3f}")
+    print(f"  ratio single / Schmid of all grains ({gg.n_grains} × {len(systems)}) = {t_single / t_schmid:.1f}"
+          f"  (Schmid re-computation {t_schmid * 1e3:.2f} ms)")
+
+    t0 = time.perf_counter()
+    mc = forecast_crack(gg, tip, direction, load, args.horizon, systems=systems, samples=args.samples, seed=0)
+    t_mc = time.perf_counter() - t0
+    assert mc.samples is not None and len(mc.samples) == args.samples
+    print(f"Monte Carlo, {args.samples} samples: {t_mc:.1f} s ({t_mc / args.samples * 1e3:.1f} ms per sample)")
+    print(f"  ratio Monte Carlo / graph build = {t_mc / t_graph:.2f}; per sample / single = "
+          f"{t_mc / args.samples / t_single:.2f}")
+    on = mc.barriers[mc.barriers["on_path"]]
+    print(f"  nominal on-path barriers found again: mean p_on_path {on['p_on_path'].mean():.2f}")
+
+
+if __name__ == "__main__":
+    main()
