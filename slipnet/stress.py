@@ -374,12 +374,21 @@ def _frequencies(ny: int, nx: int, hy: float, hx: float, scheme: str) -> tuple[n
     tiny = norm < 1e-10 * norm.max() if norm.max() > 0 else np.ones(norm.shape, bool)
     kind[tiny] = 2
     if scheme == "fourier":
-        # Continuous wave vectors are not periodic: the Nyquist frequencies of an even grid have no
-        # sign, which breaks the Hermitian symmetry of the operator (and CG). Drop them.
+        # Continuous wave vectors are not periodic: on an even grid a Nyquist frequency has no sign,
+        # so a mode on a Nyquist row/column paired with a non-zero, non-Nyquist other component gets
+        # a projection that is not the conjugate of its partner's, breaking the Hermitian symmetry of
+        # the operator (and CG). Drop those and the corner; keep (0, N/2) and (N/2, 0), which laminates need.
+        row_nyq = np.zeros(ny, bool)
+        col_nyq = np.zeros(tx.shape[1], bool)
         if ny % 2 == 0:
-            kind[ny // 2, :] = 2
+            row_nyq[ny // 2] = True
         if nx % 2 == 0:
-            kind[:, -1] = 2
+            col_nyq[-1] = True
+        row_plain = ~row_nyq & (np.arange(ny) != 0)
+        col_plain = ~col_nyq & (np.arange(tx.shape[1]) != 0)
+        kind[row_nyq[:, None] & col_plain[None, :]] = 2
+        kind[row_plain[:, None] & col_nyq[None, :]] = 2
+        kind[row_nyq[:, None] & col_nyq[None, :]] = 2  # (N/2, N/2): direction (1, 1) or (1, −1)?
     kind[0, 0] = 1
     safe = np.where(tiny, 1.0, norm)
     kvec = np.ascontiguousarray(np.stack([k1 / safe, k2 / safe]))
