@@ -292,6 +292,7 @@ def _add_compare(sub) -> None:
     p.add_argument("--path-tol", type=float, default=5.0, help="path distance tolerance, µm (default 5)")
     p.add_argument("--band-tol", type=float, default=10.0, help="band direction tolerance, degrees (default 10)")
     p.add_argument("--dip-tol", type=float, default=5.0, help="dip matching tolerance, µm of crack (default 5)")
+    p.add_argument("--max-sites", type=int, default=None, help="score only the N highest-scored predicted sites")
     p.add_argument("--out", default="slipnet-compare", help="output folder (default: slipnet-compare)")
     p.add_argument("--no-figures", action="store_true", help="write tables and summary only")
     p.set_defaults(func=_run_compare)
@@ -307,7 +308,7 @@ def _run_compare(args) -> int:
         step=args.step, strain_method=args.method, window=args.window,
         peak_threshold=None if args.peak_threshold is None else args.peak_threshold / 100.0,
         peak_distance_um=args.peak_distance, site_tol_um=args.site_tol, path_tol_um=args.path_tol,
-        band_tol_deg=args.band_tol, dip_tol_um=args.dip_tol)
+        band_tol_deg=args.band_tol, dip_tol_um=args.dip_tol, max_sites=args.max_sites)
     write_comparison(comp, args.out, figures=not args.no_figures)
     if comp.transform is not None:
         print(f"compare: registration {comp.transform.kind}, RMS residual {comp.transform.rms:.3g} µm "

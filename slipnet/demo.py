@@ -151,7 +151,7 @@ def _step_compare(ctx: dict) -> None:
                             site_tol_um=3.0 * ctx["omap"].step, path_tol_um=3.0 * ctx["omap"].step,
                             measured_path=meas.measured_path, load_axis=load_axis,
                             growth_record=meas.growth_record, growth=ctx.get("growth"),
-                            dip_prominence=0.05, dip_tol_um=3.0 * ctx["omap"].step)
+                            dip_prominence=0.05, dip_tol_um=3.0 * ctx["omap"].step, max_sites=12)
     write_comparison(comp, folder, title="Forecast against SYNTHETIC measurements")
     ctx["comparison"] = comp
     sc = comp.scores
