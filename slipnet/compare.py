@@ -853,7 +853,7 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
                      band_um: float = 2.0, hot_quantile: float = 0.75, measured_path=None, path_tol_um: float = 5.0,
                      band_sigma_um: float = 2.0, band_tol_deg: float = 10.0, load_axis=None, n_traces: int = 2,
                      growth_record=None, growth=None, dip_prominence: float = 0.1, dip_tol_um: float = 5.0,
-                     ) -> Comparison:
+                     max_sites: int | None = None) -> Comparison:
     """Measure localisation in a strain series and score a forecast against it (whole job).
 
     Parameters
@@ -887,6 +887,8 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
         Predicted dips (and profile for the figure).
     dip_prominence, dip_tol_um
         Measured dip prominence (decades of rate) and matching tolerance (µm of crack length).
+    max_sites : int or None
+        Score only the ``max_sites`` highest-scored predicted sites (None: all).
     """
     tr = transform if transform is not None else fit_transform(
         [[0, 0], [1, 0], [0, 1]], [[0, 0], [1, 0], [0, 1]], "affine")
@@ -933,11 +935,14 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
     pred_path = None
     if forecast is not None and getattr(forecast, "sites", None) is not None:
         pred_xy, pred_score = sites_from_forecast(forecast)
+        if max_sites is not None and len(pred_score) > int(max_sites):
+            top = np.sort(np.argsort(-pred_score, kind="stable")[: int(max_sites)])
+            pred_xy, pred_score = pred_xy[top], pred_score[top]
         sc, site_pairs = score_sites(pred_xy, peaks[["x_um", "y_um"]].to_numpy(), site_tol_um)
         scores.update({f"sites_{kk}": vv for kk, vv in sc.items()})
         if grain_stats is not None and len(pred_xy):
             fs = getattr(forecast, "sites", None)
-            if isinstance(fs, pd.DataFrame) and "grain" in fs.columns:
+            if isinstance(fs, pd.DataFrame) and "grain" in fs.columns and len(fs) == len(pred_xy):
                 gid = fs["grain"].to_numpy(np.int64)
             else:  # a handful of sites: one lookup each
                 gid = np.array([grain_graph.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
@@ -989,6 +994,7 @@ def compare_forecast(series: StrainSeries, *, forecast=None, grain_graph=None, t
                 "peak_distance_um": peak_distance_um, "site_tol_um": site_tol_um, "band_um": band_um,
                 "hot_quantile": hot_quantile, "path_tol_um": path_tol_um, "band_sigma_um": band_sigma_um,
                 "band_tol_deg": band_tol_deg, "dip_prominence": dip_prominence, "dip_tol_um": dip_tol_um,
+                "max_sites": max_sites,
                 "synthetic": bool(series.meta.get("synthetic", False))}
     mp = None
     if measured_path is not None:

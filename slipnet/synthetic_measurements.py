@@ -304,7 +304,11 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
     x_min, x_max, y_min, y_max = omap.extent
     size = min(x_max - x_min, y_max - y_min)
     sites = getattr(forecast, "sites", None)
-    sites = sites.head(n_sites).reset_index(drop=True) if sites is not None else pd.DataFrame({"x": [], "y": []})
+    if sites is None:
+        sites = pd.DataFrame({"x": [], "y": []})
+    elif "score" in sites.columns:
+        sites = sites.sort_values("score", ascending=False, kind="stable")
+    sites = sites.head(n_sites).reset_index(drop=True)
     angles = _site_angles(gg, sites, load_axis) if len(sites) else np.zeros(0)
     angles = np.where(np.isfinite(angles), angles, rng.uniform(0, 180, len(angles)))
     keep = (np.arange(len(sites)) % 4) != 3  # every fourth predicted site stays quiet
@@ -332,7 +336,10 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
 
     prof = growth_profile_from(growth)
     if prof is not None and "cycles" in prof.columns and np.isfinite(prof["cycles"]).sum() > 10:
-        record = synthetic_growth_record(prof, n_readings=120, noise_um=0.01 * step, seed=seed)
+        # dense readings (an eighth of a map step apart): the model's dips are a few µm wide
+        span = float(np.nanmax(prof["crack_length"]) - np.nanmin(prof["crack_length"]))
+        record = synthetic_growth_record(prof, n_readings=max(120, int(span / (0.125 * step))), noise_um=0.01 * step,
+                                         seed=seed)
     else:
         bar = getattr(forecast, "barriers", None)
         dips = ()

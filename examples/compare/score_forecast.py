@@ -39,7 +39,8 @@ def main() -> None:
     comp = compare_forecast(sm.series, forecast=forecast, grain_graph=gg, transform=transform, window=5,
                             peak_distance_um=4 * step, site_tol_um=3 * step, path_tol_um=3 * step,
                             measured_path=meas.measured_path, load_axis=spec.load_axis,
-                            growth_record=meas.growth_record, dip_prominence=0.05, dip_tol_um=3 * step)
+                            growth_record=meas.growth_record, dip_prominence=0.05, dip_tol_um=3 * step,
+                            max_sites=12)
     for key, value in comp.scores.items():
         print(f"  {key:32s} {value:.4g}" if isinstance(value, float) else f"  {key:32s} {value}")
 
