@@ -392,7 +392,8 @@ def make_specimen(
     grid
         ``"square"`` or ``"hex"`` (conventions of :class:`~slipnet.maps.OrientationMap`).
     grain_size_um
-        Mean equivalent circle diameter (ECD) of the grains, µm (number-weighted over grains).
+        Mean equivalent circle diameter (ECD) of the grains, µm (number-weighted over the whole
+        grains, i.e. those not cut by the map edge).
     size_spread
         Standard deviation of ln(diameter) of the drawn placement disks (log-normal), in [0, 1.5].
         The cells come out narrower: σ of ln(ECD) of the grains is about 0.09, 0.25 and 0.38 for
@@ -441,8 +442,11 @@ def make_specimen(
 
     Notes
     -----
-    Time and memory grow linearly with the number of points; apart from the map itself the working
-    memory is a few arrays of ``chunk_points`` entries.
+    Time and memory grow linearly with the number of points. Besides the result (about 52 bytes
+    per point) the generator keeps per-point label and mask arrays (about 25 bytes per point) and
+    work arrays of ``chunk_points`` entries; the container then validates a copy of the quaternions.
+    Measured on a shared 2-core machine: 1000 × 1000 points in about 3 s; 4000 × 4000 in about a
+    minute at 3.2 GiB peak.
     """
     try:
         ny, nx = (int(v) for v in shape)
