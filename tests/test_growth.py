@@ -481,7 +481,7 @@ def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
                  "--record", str(rec), "--coefficient", "0.1", "--no-figures"]) == 0
     assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(tmp_path / "life"),
                  "--life", "1e5", "--points", "300", "--no-figures"]) == 0
-    assert "1e+05 cycles" in (tmp_path / "life" / "summary.md").read_text(encoding="utf-8")
+    assert "life of 100000 cycles" in (tmp_path / "life" / "summary.md").read_text(encoding="utf-8")
     cal = pd.read_csv(out2 / "growth_calibration.csv").set_index("parameter")
     assert cal.loc["coefficient", "value"] == pytest.approx(0.05, rel=0.05)
     assert not (out2 / "growth_rate.png").exists()
