@@ -217,11 +217,12 @@ def resolved_shear_field(quats, stress, normals, directions, out):
 
 
 @nb.njit(cache=True, parallel=True)
-def slip_rates(quats, soft, sig, schmid_c, crss, rate0, exponent, out_rate, out_eps_rate):
+def slip_rates(quats, soft, sig, schmid_c, crss, reverse, rate0, exponent, out_rate, out_eps_rate):
     """Power-law slip rates and the plastic strain rate they give, per point.
 
     ``sig`` (6, N) Mandel sample-frame stress; ``schmid_c`` (S, 6) Mandel crystal-frame Schmid
-    tensors ``sym(d ⊗ n)``; ``crss`` (N, S). ``γ̇ = γ̇₀ |τ/τc|ⁿ sign τ`` with ``τ = σ_c : P``;
+    tensors ``sym(d ⊗ n)``; ``crss`` (N, S), times ``reverse[s]`` for negative τ (BCC twinning /
+    anti-twinning asymmetry). ``γ̇ = γ̇₀ |τ/τc|ⁿ sign τ`` with ``τ = σ_c : P``;
     ``out_eps_rate`` (6, N) = ``Qᵀ Σ γ̇ P`` in the sample frame. Soft (unindexed) points do not slip.
     """
     n = sig.shape[1]
@@ -249,7 +250,7 @@ def slip_rates(quats, soft, sig, schmid_c, crss, rate0, exponent, out_rate, out_
             tau = 0.0
             for a in range(6):
                 tau += sc[a] * schmid_c[s, a]
-            x = abs(tau) / crss[p, s]
+            x = tau / crss[p, s] if tau >= 0.0 else -tau / (crss[p, s] * reverse[s])
             rate = rate0 * x**exponent
             if tau < 0.0:
                 rate = -rate

@@ -11,7 +11,8 @@ Constitutive equations (small strain)
 * Hardening of the critical resolved shear stress: ``τ̇c_α = h₀ (1 − τc_α/τ_s) Σ_β q_αβ |γ̇_β|``
   with ``q_αβ = q + (1 − q) δ_αβ`` (latent ratio q); ``τ_s = ∞`` gives linear hardening, a finite
   ``τ_s`` the saturating (Voce-type) form of Kalidindi, Bronkhorst & Anand (1992), J. Mech. Phys.
-  Solids 40:537. Initial ``τc_α = τ₀ ·`` (relative CRSS of α from the slip catalogue).
+  Solids 40:537. Initial ``τc_α = τ₀ ·`` (relative CRSS of α from the slip catalogue), times the
+  catalogue's reverse-sense ratio for negative τ (the {112}<111> twinning/anti-twinning asymmetry).
 
 Integration
 -----------
@@ -213,10 +214,12 @@ def _run(omap, axis, sig, tol, max_iter, ratio, scheme, unindexed, constants, sy
     rates = np.empty((n, ns))
     eps_rate = np.empty((6, n))
     latent = q_lat + (1.0 - q_lat) * np.eye(ns)
+    base = np.asarray(systems.crss, dtype=float)
+    reverse = np.asarray(getattr(systems, "crss_reverse", base), dtype=float) / base
 
     def eval_rates(load: float) -> float:
         sig_now = load * s1 + s_r
-        _k.slip_rates(q, soft_flat, sig_now, schmid_c, crss, rate0, n_exp, rates, eps_rate)
+        _k.slip_rates(q, soft_flat, sig_now, schmid_c, crss, reverse, rate0, n_exp, rates, eps_rate)
         m = float(np.abs(rates).max())
         if not math.isfinite(m):
             raise NumericalError("slip rates overflowed; lower the applied stress or raise crss_mpa")

@@ -72,7 +72,10 @@ __all__ = [
 ]
 
 SCHEMES = ("rotated", "fourier")
-UNINDEXED_MODES = ("compliant", "nearest")
+UNINDEXED_MODES = ("compliant", "nearest", "auto")
+#: With ``unindexed="auto"``, unindexed clusters of at least this many points (or touching the map
+#: edge) are holes / the notch (compliant); smaller ones are badly indexed metal (nearest orientation).
+HOLE_MIN_POINTS = 25
 _SQ2 = math.sqrt(2.0)
 
 
@@ -502,13 +505,22 @@ def _prepare(omap: OrientationMap, constants, compliant_ratio: float, unindexed:
     quats = np.array(omap.quats, dtype=np.float64)
     phase = np.array(omap.phase, dtype=np.int64)
     soft = ~indexed
-    if unindexed == "nearest" and soft.any():
-        from scipy.ndimage import distance_transform_edt
+    if unindexed != "compliant" and soft.any():
+        from scipy import ndimage
 
-        idx = distance_transform_edt(soft, return_distances=False, return_indices=True)
-        quats = quats[idx[0], idx[1]]
-        phase = phase[idx[0], idx[1]]
-        soft = np.zeros_like(soft)
+        fill = soft.copy()
+        if unindexed == "auto":
+            lab, n_lab = ndimage.label(soft)
+            sizes = np.bincount(lab.ravel(), minlength=n_lab + 1)
+            edge = np.unique(np.concatenate([lab[0], lab[-1], lab[:, 0], lab[:, -1]]))
+            hole = sizes >= HOLE_MIN_POINTS
+            hole[edge] = True
+            hole[0] = False
+            fill = soft & ~hole[lab]
+        idx = ndimage.distance_transform_edt(soft, return_distances=False, return_indices=True)
+        quats = np.where(fill[..., None], quats[idx[0], idx[1]], quats)
+        phase = np.where(fill, phase[idx[0], idx[1]], phase)
+        soft = soft & ~fill
     main = int(np.bincount(phase[~soft].ravel()).argmax())
     vrh = voigt_reuss_hill(consts[main])
     soft_c = compliant_ratio * _isotropic_mandel(vrh["bulk_gpa"], vrh["shear_hill_gpa"])
@@ -583,9 +595,10 @@ def solve_elastic(
         Stiffness of the compliant phase (unindexed points, notch) relative to the isotropic
         Hill stiffness of the main phase, in (0, 1].
     unindexed
-        ``"compliant"`` (unindexed points are the compliant phase: right for a notch or holes)
-        or ``"nearest"`` (take the orientation of the nearest indexed point: right for scattered
-        badly indexed points in dense metal).
+        ``"compliant"`` (unindexed points are the compliant phase: right for a notch or holes),
+        ``"nearest"`` (take the orientation of the nearest indexed point: right for scattered
+        badly indexed points in dense metal) or ``"auto"`` (clusters of at least
+        :data:`HOLE_MIN_POINTS` points or touching the map edge are compliant, smaller ones nearest).
     scheme
         ``"rotated"`` (finite-difference wave vectors of Willot 2015) or ``"fourier"``.
     workers
@@ -711,6 +724,12 @@ def local_resolved_shear(field: StressField, omap: OrientationMap | None = None,
     ny, nx = omap.shape
     q = np.array(omap.quats, dtype=np.float64).reshape(-1, 4)
     q[field.compliant.reshape(-1)] = np.nan
+    try:
+        from .slip import resolved_shear
+    except ImportError:  # pragma: no cover - slip is part of the package; own kernel otherwise
+        resolved_shear = None
+    if resolved_shear is not None:
+        return np.asarray(resolved_shear(q, field.stress.reshape(-1, 3, 3), systems)).reshape(ny, nx, -1)
     out = np.empty((q.shape[0], len(systems.normals)))
     with _numba_threads(_workers(None, q.shape[0])):
         _k.resolved_shear_field(q, np.ascontiguousarray(field.stress.reshape(-1, 3, 3)),

@@ -467,3 +467,12 @@ def test_plasticity_parameters_checked():
     with pytest.raises(NumericalError, match="max_substeps"):
         solve_plastic(uniform_map(quat_from_euler(np.array([20.0, 35.0, 10.0])), (4, 4)), [1, 0, 0], 400.0,
                       max_substeps=3)
+
+
+def test_auto_unindexed_keeps_holes_and_fills_specks():
+    ind = np.ones((40, 40), bool)
+    ind[3, 5] = False  # a speck: badly indexed metal
+    ind[15:22, 15:22] = False  # a hole of 49 points
+    f = solve_elastic(uniform_map([1.0, 0, 0, 0], (40, 40), indexed=ind), [1, 0, 0], unindexed="auto")
+    assert not f.compliant[3, 5] and f.compliant[15:22, 15:22].all()
+    assert f.compliant.sum() == 49
