@@ -1156,9 +1156,9 @@ class CalibrationResult:
 
 
 def _model_cycles(path: GrowthPath, s: float, p: GrowthParameters, a_rec: np.ndarray, n_points: int) -> np.ndarray:
-    a_grid, st, cyc, _x = _run(path, s, p, a_rec[0], a_rec[-1], n_points)
-    a_all = np.unique(np.concatenate([a_grid, a_rec]))
-    st = zone_state(path, a_all, s, p)
+    x = crossing_lengths(path, s, p)
+    a_all = np.unique(np.concatenate([_grid(path, a_rec[0], a_rec[-1], n_points, x), a_rec]))
+    st = zone_state(path, a_all, s, p, crossings=x)
     cyc = _integrate_cycles(a_all, st["dadn"])
     return cyc[np.searchsorted(a_all, a_rec)]
 
