@@ -11,9 +11,9 @@ are MPa, rates are µm per cycle.
 
 Public entries
 --------------
-plastic_zone_ratio, sliding_displacement, GrowthPath, path_from_forecast, path_from_tables,
-barrier_strengths, crossing_lengths, threshold_amplitudes, zone_state, simulate_growth,
-growth_profile, predicted_dips, calibrate.
+plastic_zone_ratio, sliding_displacement, GrowthPath, GrowthParameters, path_from_forecast,
+path_from_tables, barrier_strengths, crossing_lengths, threshold_amplitudes, zone_state,
+simulate_growth, growth_profile, predicted_dips, life_amplitude, calibrate, write_growth.
 """
 
 from __future__ import annotations
