@@ -36,6 +36,10 @@ def atomic_path(path: str | os.PathLike, *, overwrite: bool = True) -> Iterator[
     tmp_path = Path(tmp)
     try:
         yield tmp_path
+        # mkstemp makes the file private (0600); give it the usual permissions of a new file
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp_path, 0o666 & ~umask)
         os.replace(tmp_path, target)
     finally:
         if tmp_path.exists():

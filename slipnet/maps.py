@@ -117,18 +117,25 @@ class OrientationMap:
         if np.any(ind & ~good):
             raise ParameterError("indexed points should carry finite quaternions; mark NaN points unindexed")
         if good.any():
-            n = np.einsum("...i,...i->...", q[good], q[good])
-            if np.abs(n - 1.0).max() > 1e-6:
+            # whole-array passes with masks: no fancy-indexed copies of the (ny, nx, 4) array
+            n = np.einsum("...i,...i->...", q, q)
+            if np.abs(np.where(good, n, 1.0) - 1.0).max() > 1e-6:
                 raise ParameterError("quats should be unit quaternions at indexed points")
-            p = ph[good]
-            if p.min() < 0 or p.max() >= len(phases):
+            p_lo = int(np.where(good, ph, 0).min())
+            p_hi = int(np.where(good, ph, 0).max())
+            if p_lo < 0 or p_hi >= len(phases):
                 raise ParameterError(
-                    f"phase indices of indexed points should lie in 0..{len(phases) - 1}; "
-                    f"got {int(p.min())}..{int(p.max())}"
+                    f"phase indices of indexed points should lie in 0..{len(phases) - 1}; got {p_lo}..{p_hi}"
                 )
-        q = q.copy()
-        q[~good] = np.nan
-        q[good] = np.where(q[good][:, :1] < 0, -q[good], q[good])
+        with np.errstate(invalid="ignore"):
+            neg = good & (q[..., 0] < 0)
+        stale = ~good & ~np.isnan(q[..., 0])
+        # an array we made read-only ourselves (a map rebuilt with dataclasses.replace) is reused
+        # as it is when nothing needs fixing; anything else is copied so user arrays stay theirs
+        if q.flags.writeable or neg.any() or stale.any():
+            q = q.copy()
+            q[~good] = np.nan
+            q[neg] *= -1.0
         ph = np.where(good, ph, -1).astype(np.int32)
         qual = np.where(np.isfinite(qual), qual, 0.0)
         for arr in (q, ph, qual, good):

@@ -1,7 +1,8 @@
 """Rank notch positions along a specimen edge, with Monte Carlo bands.
 
 A small synthetic ferritic specimen is reconstructed into grains, and candidate notches are placed
-every 40 µm along its bottom edge (the load runs along y, so these notches open in mode I). For
+every 40 µm along its bottom edge (the load runs along x, across these notches, so they open
+in mode I). For
 each candidate slipnet estimates the notch stress concentration, finds the grains at the root,
 forecasts the crack path and its growth, and scores the position on two objectives: the initiation
 drive at the root and the strength of the barriers within a 150 µm observation window. Five Monte
@@ -23,7 +24,7 @@ from slipnet.synthetic import make_specimen
 
 
 def main(out: Path) -> None:
-    spec = make_specimen((100, 150), 2.0, grain_size_um=40.0, seed=11, load_axis=(0.0, 1.0, 0.0))
+    spec = make_specimen((100, 150), 2.0, grain_size_um=40.0, seed=11, load_axis=(1.0, 0.0, 0.0))
     gg = build_grain_graph(spec.omap)
     plan = plan_notch(gg, "bottom", spec.load_axis, spacing_um=40.0, depth_um=30.0, root_radius_um=10.0,
                       window_um=150.0, crack_sizes_um=(5.0, 20.0), samples=5, seed=2)
