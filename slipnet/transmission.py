@@ -5,7 +5,7 @@ Definitions (all vectors in the sample frame; ``A`` the incoming grain, ``B`` th
 * **m′** (Luster & Morris 1995, Metall. Mater. Trans. A 26:1745): ``m′ = cos ψ · cos κ`` with ψ
   the angle between the slip-plane normals and κ between the slip directions; reported as |m′|
   (1 = perfectly aligned systems).
-* **Residual Burgers vector** (Lee, Robertson & Birnbaum 1989, Scripta Metall. 23:577; 1990,
+* **Residual Burgers vector** (Lee, Robertson & Birnbaum 1989, Scripta Metall. 23; 1990,
   Metall. Trans. A 21:2437): ``|b_in − b_out|`` with the sign of ``b_out`` that minimises it;
   Burgers vectors a/2⟨111⟩ (BCC) or a/2⟨110⟩ (FCC). In lattice parameters, or nm when a lattice
   parameter is known.
@@ -103,7 +103,7 @@ def residual_burgers(q_a, q_b, systems: SlipSystems, *, lattice_parameter_nm: fl
     Returns
     -------
     (n_sys, n_sys) ndarray
-        In [0, 2|b|/√2·…]; 0 for parallel Burgers vectors.
+        In [0, √2·|b|]; 0 for parallel Burgers vectors.
     """
     systems = _check_systems(systems)
     scale = systems.burgers_length

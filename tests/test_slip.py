@@ -325,7 +325,6 @@ def test_taylor_single_crystal_values():
     assert taylor_factor(IDENTITY, [0, 1, 1], s) == pytest.approx(3.674, abs=1e-3)
 
 
-@pytest.mark.slow
 def test_taylor_random_average_bishop_hill():
     q = random_quats(300, seed=21)
     m = taylor_factor(q, [0, 0, 1], slip_systems("fcc"))
