@@ -15,19 +15,38 @@ the highest effective Schmid factor ``|m| / τ_c`` (``τ_c`` the relative critic
 stress of its family), in the sense with a positive projection on the macroscopic growth
 direction (the direction given at the tip). Where another plane's effective factor is within
 ``zigzag_tol`` (relative to the larger of the two) of the plane being followed, the crack
-alternates between the two traces (zig-zag) in
-legs of ``zigzag_step_fraction`` × the grain's equivalent circle diameter. At a boundary the
-outgoing plane is the one with the highest choice score (see :class:`PathWeights`). Stage II
-(growth perpendicular to the in-plane projection of the load axis) starts past
-``stage2_after_um`` or in a grain whose best effective factor is below ``stage2_min_schmid``.
+alternates between the two traces (zig-zag) in legs of ``zigzag_step_fraction`` × the grain's
+equivalent circle diameter (at least two map steps). The march samples the label image every
+quarter step along the trace (numba) and bisects the exit point to 1/64 of that. At a boundary
+the outgoing plane is the one with the highest choice score (see :class:`PathWeights`); the
+boundary plane is taken perpendicular to the surface through the fitted boundary trace
+(``trace_angle_deg`` of the graph edge) unless an inclination is given. Stage II (growth
+perpendicular to the in-plane projection of the load axis) starts past ``stage2_after_um`` or in
+a grain whose best effective factor is below ``stage2_min_schmid``. The path stops at the
+horizon, the map edge, a run of unindexed points longer than ``unindexed_gap_um``, or where the
+chosen trace leads straight back into the grain it came from ("blocked": the crack would have
+to run along the boundary).
+
+Alternatives, barriers, sites
+-----------------------------
+Every other outgoing plane whose choice score is within ``branch_tol`` of the best starts an
+alternative path (breadth first, at most ``max_branches``). Every boundary met by the main path
+or an alternative is ranked by :func:`rank_barriers`. Localisation sites: in the grains on and
+next to the paths, the band of the most stressed system runs along its surface trace through
+the grain; where it ends on a boundary its score is τ × band length × (1 − transmission), with
+τ = m_eff × stress amplitude (MPa) and the transmission the best |m′| to a system of the next
+grain weighted by that system's relative effective factor. The bands, weighted by their sites'
+scores, drawn on the grid and blurred with a Gaussian of ``field_sigma_um`` give the predicted
+localisation field (maximum 1). Monte Carlo: :mod:`slipnet.forecast_mc`.
 
 References
 ----------
 Zhai, T., Wilkinson, A. J. & Martin, J. W. (2000). A crystallographic mechanism for fatigue crack
 propagation through grain boundaries. Acta Materialia 48, 4917–4927.
-https://doi.org/10.1016/S1359-6454(00)00214-7
 Luster, J. & Morris, M. A. (1995). Compatibility of deformation in two-phase Ti-Al alloys.
 Metallurgical and Materials Transactions A 26, 1745–1756.
+Navarro, A. & de los Rios, E. R. (1988). Short and long fatigue crack growth: a unified model.
+Philosophical Magazine A 57, 15–36.
 """
 
 from __future__ import annotations
