@@ -796,7 +796,8 @@ def write_slip_outputs(gg, load_axis, folder: str | os.PathLike, *, systems: Sli
         mean_taylor = np.nanmean(grain_table["taylor_factor"])
         lines.append(f"Mean Taylor factor (uniaxial, full constraints): {mean_taylor:.3f}.")
     lines += [
-        "Stress: uniform uniaxial unless local factors were given.",
+        "Stress: per-grain local Schmid factors given by the caller (e.g. from the full-field solve)."
+        if factors is not None else "Stress: uniform uniaxial along the load axis in every grain.",
         f"Shen factor: boundary plane ASSUMED to contain the surface trace of the boundary, inclined "
         f"{inclination_deg:g}° to the surface (90° = perpendicular); the true plane is not known from a surface map.",
         "Transmission score A→B: max over outgoing systems j of |m′(i*, j)| · effective Schmid_B(j) / "
