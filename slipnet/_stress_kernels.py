@@ -185,38 +185,6 @@ def cg_direction(p, r, beta):
 
 
 @nb.njit(cache=True, parallel=True)
-def resolved_shear_field(quats, stress, normals, directions, out):
-    """Resolved shear ``τ = d · (g σ gᵀ) · n`` per point and system.
-
-    ``quats`` (N, 4) sample → crystal (NaN rows give NaN), ``stress`` (N, 3, 3) sample frame,
-    ``normals``/``directions`` (S, 3) crystal frame, ``out`` (N, S).
-    """
-    n = quats.shape[0]
-    ns = normals.shape[0]
-    for p in nb.prange(n):
-        if not math.isfinite(quats[p, 0]):
-            for s in range(ns):
-                out[p, s] = np.nan
-            continue
-        g = np.empty((3, 3))
-        quat_to_matrix_single(quats[p], g)
-        sc = np.zeros((3, 3))
-        for i in range(3):
-            for j in range(3):
-                t = 0.0
-                for k in range(3):
-                    for m in range(3):
-                        t += g[i, k] * stress[p, k, m] * g[j, m]
-                sc[i, j] = t
-        for s in range(ns):
-            t = 0.0
-            for i in range(3):
-                for j in range(3):
-                    t += directions[s, i] * sc[i, j] * normals[s, j]
-            out[p, s] = t
-
-
-@nb.njit(cache=True, parallel=True)
 def slip_rates(quats, soft, sig, schmid_c, crss, reverse, rate0, exponent, out_rate, out_eps_rate):
     """Power-law slip rates and the plastic strain rate they give, per point.
 

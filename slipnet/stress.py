@@ -43,7 +43,6 @@ from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
-import pandas as pd
 import scipy.fft
 
 from . import _stress_kernels as _k
@@ -69,6 +68,7 @@ __all__ = [
     "to_mandel",
     "uniform_schmid_factors",
     "voigt_reuss_hill",
+    "write_stress_outputs",
 ]
 
 SCHEMES = ("rotated", "fourier")
@@ -644,243 +644,15 @@ def solve_elastic(
     )
 
 
-# ---------------------------------------------------------------------------- local slip quantities
-@dataclass(frozen=True)
-class _Systems:
-    """Minimal slip-system set (used only if :mod:`slipnet.slip` is not importable)."""
-
-    normals: np.ndarray
-    directions: np.ndarray
-    families: np.ndarray
-    crss: np.ndarray
-    structure: str
-
-
-def _family(plane, direction) -> tuple[np.ndarray, np.ndarray]:
-    import itertools
-
-    def variants(v):
-        out = set()
-        for perm in itertools.permutations(v):
-            for signs in itertools.product((1, -1), repeat=3):
-                out.add(tuple(int(a * b) for a, b in zip(perm, signs, strict=True)))
-        return [np.array(u, float) for u in sorted(out)]
-
-    ns, ds = [], []
-    for n in variants(plane):
-        if next(x for x in n if x != 0) < 0:
-            continue  # one normal per plane
-        for d in variants(direction):
-            if abs(n @ d) < 1e-12 and next(x for x in d if x != 0) > 0:
-                ns.append(n / np.linalg.norm(n))
-                ds.append(d / np.linalg.norm(d))
-    return np.array(ns), np.array(ds)
-
-
-def _catalogue(structure: str):
-    """The slip catalogue's default systems for a structure (own fallback if slip is absent)."""
-    try:
-        from .slip import slip_systems
-    except ImportError:
-        slip_systems = None
-    if slip_systems is not None:
-        return slip_systems(structure)
-    fams = ({"{110}<111>": ((1, 1, 0), (1, 1, 1)), "{112}<111>": ((1, 1, 2), (1, 1, 1))} if structure == "bcc"
-            else {"{111}<110>": ((1, 1, 1), (1, 1, 0))})
-    parts = [(lab, *_family(*pd)) for lab, pd in fams.items()]
-    n = np.concatenate([p[1] for p in parts])
-    d = np.concatenate([p[2] for p in parts])
-    f = np.concatenate([[p[0]] * len(p[1]) for p in parts]).astype(object)
-    return _Systems(n, d, f, np.ones(len(n)), structure)
-
-
-def _default_systems(omap: OrientationMap, systems):
-    if systems is not None:
-        return systems
-    counts = np.bincount(omap.phase[omap.indexed].ravel(), minlength=len(omap.phases))
-    return _catalogue(omap.phases[int(counts.argmax())].structure)
-
-
-def local_resolved_shear(field: StressField, omap: OrientationMap | None = None, systems=None) -> np.ndarray:
-    """Resolved shear stress on every slip system at every point, ``(ny, nx, n_systems)`` MPa.
-
-    ``τ = d · σ_c · n`` with the local stress rotated into the crystal frame (signed; slip
-    sense matters in BCC). NaN at unindexed / compliant points.
-
-    Parameters
-    ----------
-    field
-        A solved :class:`StressField`.
-    omap
-        The map giving the orientations (default: ``field.omap``).
-    systems
-        A ``SlipSystems`` from :func:`slipnet.slip.slip_systems` (default: the catalogue's
-        default for the main phase).
-    """
-    omap = field.omap if omap is None else omap
-    if omap.shape != field.shape:
-        raise ParameterError(f"omap shape {omap.shape} should match the stress field shape {field.shape}")
-    systems = _default_systems(omap, systems)
-    ny, nx = omap.shape
-    q = np.array(omap.quats, dtype=np.float64).reshape(-1, 4)
-    q[field.compliant.reshape(-1)] = np.nan
-    try:
-        from .slip import resolved_shear
-    except ImportError:  # pragma: no cover - slip is part of the package; own kernel otherwise
-        resolved_shear = None
-    if resolved_shear is not None:
-        return np.asarray(resolved_shear(q, field.stress.reshape(-1, 3, 3), systems)).reshape(ny, nx, -1)
-    out = np.empty((q.shape[0], len(systems.normals)))
-    with _numba_threads(_workers(None, q.shape[0])):
-        _k.resolved_shear_field(q, np.ascontiguousarray(field.stress.reshape(-1, 3, 3)),
-                            np.ascontiguousarray(systems.normals, dtype=np.float64),
-                                np.ascontiguousarray(systems.directions, dtype=np.float64), out)
-    return out.reshape(ny, nx, -1)
-
-
-def local_schmid_factors(field: StressField, omap: OrientationMap | None = None, systems=None) -> np.ndarray:
-    """Local signed Schmid factors ``τ / σ_applied`` per point and system, ``(ny, nx, n_systems)``.
-
-    Under a uniform stress these equal the usual Schmid factors ``(n·l)(d·l)``.
-    """
-    return local_resolved_shear(field, omap, systems) / field.applied_stress
-
-
-def uniform_schmid_factors(quats, load_axis, systems) -> np.ndarray:
-    """Uniform-stress Schmid factors ``(n·l)(d·l)`` (signed), ``(n, n_systems)``.
-
-    Uses :func:`slipnet.slip.schmid_factors` when available.
-    """
-    try:
-        from .slip import schmid_factors
-    except ImportError:  # pragma: no cover - the slip module is part of the package
-        schmid_factors = None
-    if schmid_factors is not None:
-        return np.asarray(schmid_factors(quats, load_axis, systems))
-    from .orientation import quat_rotate
-
-    q = np.asarray(quats, dtype=np.float64).reshape(-1, 4)
-    lc = quat_rotate(q, np.broadcast_to(check_vector(load_axis, "load_axis"), (q.shape[0], 3)))
-    return (lc @ np.asarray(systems.normals).T) * (lc @ np.asarray(systems.directions).T)
-
-
-def _grain_means(values: np.ndarray, labels: np.ndarray, n_grains: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per-grain mean and standard deviation of ``values`` (ny, nx, k) over finite points."""
-    lab = labels.reshape(-1)
-    v = values.reshape(lab.size, -1)
-    ok = (lab >= 0) & np.all(np.isfinite(v), axis=1)
-    lab, v = lab[ok], v[ok]
-    cnt = np.bincount(lab, minlength=n_grains).astype(float)
-    mean = np.full((n_grains, v.shape[1]), np.nan)
-    std = np.full((n_grains, v.shape[1]), np.nan)
-    has = cnt > 0
-    for k in range(v.shape[1]):  # over slip systems (a few dozen), not over points
-        s1 = np.bincount(lab, weights=v[:, k], minlength=n_grains)
-        s2 = np.bincount(lab, weights=v[:, k] ** 2, minlength=n_grains)
-        m = s1[has] / cnt[has]
-        mean[has, k] = m
-        std[has, k] = np.sqrt(np.maximum(s2[has] / cnt[has] - m**2, 0.0))
-    return mean, std, cnt
-
-
-def _labels(field: StressField, gg) -> np.ndarray:
-    labels = np.asarray(gg.labels)
-    if labels.shape != field.shape:
-        raise ParameterError(f"grain labels shape {labels.shape} should match the stress field shape {field.shape}")
-    return labels
-
-
-def grain_schmid_factors(field: StressField, gg, systems=None) -> np.ndarray:
-    """Grain means of the local signed Schmid factors, ``(n_grains, n_systems)``.
-
-    Parameters
-    ----------
-    field
-        A solved :class:`StressField` on the map of ``gg``.
-    gg
-        A ``GrainGraph`` (uses ``.labels`` and ``.omap``; grains ids 0..n−1).
-    systems
-        Slip systems (default: the catalogue's default for the main phase).
-
-    Returns
-    -------
-    (n_grains, n_systems) ndarray
-        Mean of ``τ / σ_applied`` over each grain's points (NaN for a grain with no solid point).
-    """
-    labels = _labels(field, gg)
-    n_grains = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
-    local = local_schmid_factors(field, getattr(gg, "omap", None) or field.omap, systems)
-    mean, _std, _cnt = _grain_means(local, labels, n_grains)
-    return mean
-
-
-def grain_stress_table(field: StressField, gg, systems=None) -> pd.DataFrame:
-    """One row per grain: local stress and the most stressed slip system against the uniform estimate.
-
-    Columns: ``grain``, ``n_points``, ``normal_stress_mean_mpa``, ``normal_stress_std_mpa`` (along
-    the load axis), ``von_mises_mean_mpa``, ``system`` (index of the system with the largest
-    |grain-mean local Schmid factor|), ``family``, ``local_schmid_mean``, ``local_schmid_std``,
-    ``uniform_schmid`` (same system, grain mean orientation, uniform stress),
-    ``local_minus_uniform``.
-    """
-    omap = field.omap
-    systems = _default_systems(omap, systems)
-    labels = _labels(field, gg)
-    n_grains = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
-    local = local_schmid_factors(field, omap, systems)
-    mean, std, cnt = _grain_means(local, labels, n_grains)
-    nstress = np.where(field.compliant, np.nan, field.normal_stress())[..., None]
-    ns_mean, ns_std, _ = _grain_means(nstress, labels, n_grains)
-    vm_mean, _, _ = _grain_means(np.where(field.compliant, np.nan, field.von_mises())[..., None], labels, n_grains)
-    best = np.argmax(np.where(np.isfinite(mean), np.abs(mean), -1.0), axis=1) if n_grains else np.zeros(0, int)
-    rows = np.arange(n_grains)
-    mq = np.asarray(getattr(gg, "mean_quats", np.full((n_grains, 4), np.nan)), dtype=float)
-    uni = np.full((n_grains, len(systems.normals)), np.nan)
-    okq = np.all(np.isfinite(mq), axis=1)
-    if okq.any():
-        uni[okq] = uniform_schmid_factors(mq[okq], field.load_axis, systems)
-    fam = np.asarray(systems.families, dtype=object)
-    return pd.DataFrame({
-        "grain": rows,
-        "n_points": cnt.astype(int),
-        "normal_stress_mean_mpa": ns_mean[:, 0],
-        "normal_stress_std_mpa": ns_std[:, 0],
-        "von_mises_mean_mpa": vm_mean[:, 0],
-        "system": best,
-        "family": fam[best] if n_grains else fam[:0],
-        "local_schmid_mean": mean[rows, best],
-        "local_schmid_std": std[rows, best],
-        "uniform_schmid": uni[rows, best],
-        "local_minus_uniform": mean[rows, best] - uni[rows, best],
-    })
-
-
-def stress_concentration(field: StressField, x_um: float, y_um: float, radius_um: float) -> dict[str, float]:
-    """Largest local load-axis normal stress over the applied stress within a radius of a point.
-
-    Parameters
-    ----------
-    field
-        A solved :class:`StressField`.
-    x_um, y_um
-        Centre (e.g. the notch root), µm in the map frame.
-    radius_um
-        Search radius, µm (> 0). Compliant points are ignored.
-
-    Returns
-    -------
-    dict
-        ``concentration`` (max of ``l·σ·l / σ_applied``), ``x_um``, ``y_um`` (where it occurs),
-        ``mean_concentration`` (mean over the disc), ``n_points``.
-    """
-    r = check_positive(radius_um, "radius_um")
-    x, y = field.omap.coordinates()
-    inside = ((x - float(x_um)) ** 2 + (y - float(y_um)) ** 2 <= r * r) & ~field.compliant
-    if not inside.any():
-        raise ParameterError(f"no solid map point lies within radius_um={r:g} of ({x_um:g}, {y_um:g}) µm; "
-                             "give a larger radius or a point on the map")
-    k = field.normal_stress() / field.applied_stress
-    vals = np.where(inside, k, -np.inf)
-    i, j = np.unravel_index(int(np.argmax(vals)), vals.shape)
-    return {"concentration": float(k[i, j]), "x_um": float(x[i, j]), "y_um": float(y[i, j]),
-            "mean_concentration": float(k[inside].mean()), "n_points": int(inside.sum())}
+# local slip quantities and outputs live in a private module; imported last (they use StressField)
+from ._stress_local import _catalogue as _catalogue  # noqa: E402
+from ._stress_local import _default_systems as _default_systems  # noqa: E402
+from ._stress_local import (  # noqa: E402
+    grain_schmid_factors,
+    grain_stress_table,
+    local_resolved_shear,
+    local_schmid_factors,
+    stress_concentration,
+    uniform_schmid_factors,
+    write_stress_outputs,
+)

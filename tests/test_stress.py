@@ -332,19 +332,19 @@ def test_single_crystal_local_schmid_equals_uniform_schmid():
     assert np.abs(ref).max() <= 0.5
 
 
-def test_resolved_shear_kernel_matches_python_version():
-    q = random_quats(4, seed=11)
-    q[2] = np.nan
-    s = np.random.default_rng(1).normal(size=(4, 3, 3))
-    s = s + np.swapaxes(s, 1, 2)
+def test_local_resolved_shear_is_the_rotated_local_stress_on_each_system():
+    omap, _ = polycrystal(16, 6, seed=4)
+    ind = np.ones((16, 16), bool)
+    ind[0, 0] = False
+    omap = OrientationMap(np.where(ind[..., None], omap.quats, np.nan), omap.phase, omap.quality, ind, 1.0)
+    f = solve_elastic(omap, [0.3, 1.0, 0.1], stress=90.0)
     sys_ = _catalogue("bcc")
-    a, b = np.empty((4, 24)), np.empty((4, 24))
-    _k.resolved_shear_field(q, s, sys_.normals, sys_.directions, a)
-    _k.resolved_shear_field.py_func(q, s, sys_.normals, sys_.directions, b)
-    np.testing.assert_allclose(a, b, equal_nan=True)
-    assert np.isnan(a[2]).all()
-    g = matrix_from_quat(q[0])
-    np.testing.assert_allclose(a[0], np.einsum("si,ij,sj->s", sys_.directions, g @ s[0] @ g.T, sys_.normals))
+    tau = local_resolved_shear(f, systems=sys_)
+    assert np.isnan(tau[0, 0]).all() and np.isfinite(tau[1:]).all()
+    for i, j in ((3, 4), (10, 12), (15, 1)):
+        g = matrix_from_quat(omap.quats[i, j])
+        sc = g @ f.stress[i, j] @ g.T  # σ_crystal = g σ_sample gᵀ
+        np.testing.assert_allclose(tau[i, j], np.einsum("si,ij,sj->s", sys_.directions, sc, sys_.normals), atol=1e-9)
 
 
 def test_grain_schmid_factors_and_table_on_a_bicrystal():
