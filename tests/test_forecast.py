@@ -504,3 +504,41 @@ def test_demo_step_stores_a_forecast(tmp_path):
     fc = ctx["forecast"]
     assert fc.length_um > 0 and fc.samples is not None and len(fc.samples) == 8
     assert (tmp_path / "forecast" / "summary.md").exists()
+
+
+def test_alternative_paths_branch_from_main_path_crossings(poly_gg):
+    fc = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 150.0, branch_tol=0.5, max_branches=3)
+    alts = fc.alternatives
+    assert 1 <= alts["branch"].nunique() <= 3
+    starts = alts.groupby("branch").first()
+    cross = fc.crossings
+    for b, r in starts.iterrows():
+        # each alternative starts where some path (main or earlier branch) crossed a boundary
+        c = cross[cross["branch"] == b].iloc[0]
+        assert (r["x0"], r["y0"]) == pytest.approx((c["x"], c["y"]))
+        assert r["grain"] == c["grain_b"]
+    assert set(fc.barriers["on_path"]) <= {True, False}
+    assert fc.barriers.loc[fc.barriers["on_path"], "branches"].str.split(";").map(lambda b: "0" in b).all()
+    none = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 150.0, max_branches=0)
+    assert len(none.alternatives) == 0 and none.barriers["on_path"].all()
+
+
+def test_nearest_point_kernel_agrees_with_the_map(poly_gg):
+    rng = np.random.default_rng(3)
+    for grid in ("square", "hex"):
+        om = _omap(np.tile([1.0, 0.0, 0.0, 0.0], (9, 11, 1)), grid)
+        x, y = rng.uniform(-1.0, 12.0, 200), rng.uniform(-1.0, 9.0, 200)
+        i, j = om.index_of(x, y)
+        got = np.array([K.nearest_point(grid == "hex", 0.0, 0.0, 1.0, om.row_spacing, 9, 11, a, b)
+                        for a, b in zip(x, y, strict=True)])
+        # ties (points exactly halfway) are measure-zero for uniform draws
+        assert np.array_equal(got[:, 0], i) and np.array_equal(got[:, 1], j)
+
+
+def test_rank_barriers_of_nothing_is_an_empty_table():
+    import pandas as pd
+
+    out = rank_barriers(pd.DataFrame())
+    assert len(out) == 0 and {"rank", "score", "twist_deg", "m_prime"} <= set(out.columns)
+    with pytest.raises(ParameterError, match="decay_length_um"):
+        rank_barriers(pd.DataFrame(), decay_length_um=0.0)
