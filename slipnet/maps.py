@@ -231,15 +231,20 @@ class OrientationMap:
             # the nearest hex point may sit on the adjacent row: compare the three candidates
             best_d = np.full(np.shape(x), np.inf)
             bi, bj = np.zeros_like(i), np.zeros_like(j)
+            # candidates are clipped into the grid, so a point at the ragged border of a hex map
+            # still finds its nearest in-grid neighbour; points beyond half a step stay outside
             for di in (-1, 0, 1):
-                ii = i + di
+                ii = np.clip(i + di, 0, ny - 1)
                 sh = 0.5 * (ii % 2)
-                jj = np.rint(x / self.step - sh).astype(np.int64)
+                jj = np.clip(np.rint(x / self.step - sh).astype(np.int64), 0, nx - 1)
                 d = (x - (jj + sh) * self.step) ** 2 + (y - ii * self.row_spacing) ** 2
                 better = d < best_d
                 best_d = np.where(better, d, best_d)
                 bi, bj = np.where(better, ii, bi), np.where(better, jj, bj)
-            i, j = bi, bj
+            x_hi = (nx - 0.5) * self.step if ny > 1 else (nx - 1) * self.step
+            near = (x >= -0.5 * self.step) & (x <= x_hi + 0.5 * self.step)
+            near &= (y >= -0.5 * self.row_spacing) & (y <= (ny - 0.5) * self.row_spacing)
+            i, j = np.where(near, bi, -1), np.where(near, bj, -1)
         inside = (i >= 0) & (i < ny) & (j >= 0) & (j < nx)
         return np.where(inside, i, -1), np.where(inside, j, -1)
 

@@ -42,6 +42,11 @@ def test_index_of_round_trips_on_both_grids():
         np.testing.assert_array_equal(i, np.indices(m.shape)[0])
         np.testing.assert_array_equal(j, np.indices(m.shape)[1])
         assert m.index_of(-10.0, 0.0) == (-1, -1)
+    # Ragged hex border: left of the first (shifted) point of an odd row, the nearest in-grid point
+    # is that row's first point, not "outside".
+    h = _map(4, 5, grid="hex", step=1.0)
+    assert h.index_of(0.05, 0.8) == (1, 0)
+    assert h.index_of(4.9, 0.0) == (0, 4)
 
 
 def test_unindexed_points_carry_nan_and_minus_one():
