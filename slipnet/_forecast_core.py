@@ -144,6 +144,36 @@ class _Geometry:
         return float(t), int(lab), int(st)
 
 
+_GEOMETRY_CACHE: dict[int, tuple] = {}
+_GEOMETRY_CACHE_SIZE = 4
+
+
+def geometry_of(gg) -> _Geometry:
+    """The :class:`_Geometry` of a grain graph, cached for the last few graphs.
+
+    The geometry depends only on the labels and the graph, so repeated forecasts on one graph
+    (notch sweeps, interactive use) skip the O(points) set-up. The entry is keyed by the object
+    identity and checked against a weak reference and the label array, so a new graph never sees
+    a stale entry.
+    """
+    import weakref
+
+    hit = _GEOMETRY_CACHE.get(id(gg))
+    if hit is not None:
+        ref, labels, geo = hit
+        if ref() is gg and gg.labels is labels:
+            return geo
+    geo = _Geometry(gg)
+    try:
+        ref = weakref.ref(gg)
+    except TypeError:  # objects without weak-reference support are not cached
+        return geo
+    if len(_GEOMETRY_CACHE) >= _GEOMETRY_CACHE_SIZE:
+        _GEOMETRY_CACHE.pop(next(iter(_GEOMETRY_CACHE)))
+    _GEOMETRY_CACHE[id(gg)] = (ref, gg.labels, geo)
+    return geo
+
+
 class _Planes:
     """Grouping of the catalogue's systems by slip plane (normals equal up to sign)."""
 

@@ -65,7 +65,6 @@ from ._forecast_core import (
     _Crystal,
     _distance_to_segments,
     _field,
-    _Geometry,
     _make_opts,
     _Opts,
     _parse_tip,
@@ -74,6 +73,7 @@ from ._forecast_core import (
     _start_grain,
     _trace_all,
     crack_plane_angles,
+    geometry_of,
 )
 from .errors import ParameterError
 
@@ -465,7 +465,7 @@ def forecast_crack(
     Cost: one march per segment (numba), O(grains ahead × systems) for scores; a forecast takes
     milliseconds once the graph exists (``benchmarks/bench_forecast.py``).
     """
-    geo = _Geometry(gg)
+    geo = geometry_of(gg)
     horizon = check_positive(horizon, "horizon")
     tip_xy, d, crack_len = _parse_tip(geo, tip, direction)
     load = check_vector(load_axis, "load_axis", 3)

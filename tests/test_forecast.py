@@ -542,3 +542,15 @@ def test_rank_barriers_of_nothing_is_an_empty_table():
     assert len(out) == 0 and {"rank", "score", "twist_deg", "m_prime"} <= set(out.columns)
     with pytest.raises(ParameterError, match="decay_length_um"):
         rank_barriers(pd.DataFrame(), decay_length_um=0.0)
+
+
+def test_geometry_is_cached_per_graph(bicrystal_gg, poly_gg):
+    from slipnet._forecast_core import geometry_of
+
+    a = geometry_of(bicrystal_gg)
+    assert geometry_of(bicrystal_gg) is a
+    b = geometry_of(poly_gg)
+    assert b is not a and b.labels.shape == poly_gg.labels.shape
+    fc1 = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0)
+    fc2 = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0)
+    assert fc1.path.equals(fc2.path) and fc1.sites.equals(fc2.sites)
