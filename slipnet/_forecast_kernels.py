@@ -27,14 +27,19 @@ def nearest_point(hexgrid, ox, oy, step, rs, ny, nx, x, y):
     if not hexgrid:
         j = math.floor(fx / step + 0.5)
     else:
-        # the nearest hex point may sit on an adjacent row: compare the three candidate rows
+        # the nearest hex point may sit on an adjacent row: compare the three candidate rows,
+        # clipped into the grid like OrientationMap.index_of (nearest in-grid point at the ragged
+        # border; points beyond half a step of the grid stay outside)
+        x_hi = (nx - 0.5) * step if ny > 1 else (nx - 1) * step
+        if fx < -0.5 * step or fx > x_hi + 0.5 * step or fy < -0.5 * rs or fy > (ny - 0.5) * rs:
+            return -1, -1
         best = 1e300
         bi = i
         bj = 0
         for di in range(-1, 2):
-            ii = i + di
+            ii = min(max(i + di, 0), ny - 1)
             sh = 0.5 * (ii % 2)
-            jj = math.floor(fx / step - sh + 0.5)
+            jj = min(max(math.floor(fx / step - sh + 0.5), 0), nx - 1)
             d = (fx - (jj + sh) * step) ** 2 + (fy - ii * rs) ** 2
             if d < best:
                 best = d
