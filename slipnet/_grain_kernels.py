@@ -13,8 +13,6 @@ import math
 import numba as nb
 import numpy as np
 
-from ._orientation_kernels import _sort4_desc
-
 SQRT2_INV = 1.0 / math.sqrt(2.0)
 
 # Forward offsets (each unordered neighbour pair once). Hex grid: odd rows shifted +step/2, so the
@@ -77,25 +75,35 @@ def fill_pairs(ny, nx, offsets, row_start, a, b):
 # ----------------------------------------------------------------------------- disorientation
 @nb.njit(cache=True, inline="always")
 def cubic_angle(w, x, y, z):
-    """Smallest rotation angle (rad) among the 24 cubic equivalents of an (unnormalised) quaternion.
+    """Smallest rotation angle (rad) among the 24 cubic equivalents of a unit quaternion.
 
-    With sorted absolute components a >= b >= c >= d the best scalar part is
-    max(a, (a+b)/√2, (a+b+c+d)/2); the angle is taken as 2·atan2(|v|, w) with |v|² written
-    from differences of components, which stays accurate for nearly equal orientations.
+    With the absolute components sorted a ≥ b ≥ c ≥ d, the best scalar part is
+    max(a, (a+b)/√2, (a+b+c+d)/2) (closed form); a and b are found without a full sort: the
+    largest is the larger of the two pair maxima, the second the larger of (smaller pair maximum,
+    larger pair minimum).
     """
-    n = math.sqrt(w * w + x * x + y * y + z * z)
-    a, b, c, d = _sort4_desc(abs(w) / n, abs(x) / n, abs(y) / n, abs(z) / n)
-    best = a
-    v2 = b * b + c * c + d * d
-    s2 = (a + b) * SQRT2_INV
-    if s2 > best:
-        best = s2
-        v2 = 0.5 * (a - b) * (a - b) + c * c + d * d
-    s3 = 0.5 * (a + b + c + d)
-    if s3 > best:
-        best = s3
-        v2 = 0.25 * ((a - b) ** 2 + (a - c) ** 2 + (a - d) ** 2 + (b - c) ** 2 + (b - d) ** 2 + (c - d) ** 2)
-    return 2.0 * math.atan2(math.sqrt(v2), best)
+    w = abs(w)
+    x = abs(x)
+    y = abs(y)
+    z = abs(z)
+    hi1 = w if w > x else x
+    lo1 = x if w > x else w
+    hi2 = y if y > z else z
+    lo2 = z if y > z else y
+    first = hi1 if hi1 > hi2 else hi2
+    small_hi = hi2 if hi1 > hi2 else hi1
+    big_lo = lo1 if lo1 > lo2 else lo2
+    second = small_hi if small_hi > big_lo else big_lo
+    c = first
+    c2 = (first + second) * SQRT2_INV
+    if c2 > c:
+        c = c2
+    c3 = 0.5 * (w + x + y + z)
+    if c3 > c:
+        c = c3
+    if c > 1.0:
+        c = 1.0
+    return 2.0 * math.acos(c)
 
 
 @nb.njit(cache=True, inline="always")
@@ -404,6 +412,28 @@ def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, 
                 bbox[g, 3] = y
             if i == 0 or j == 0 or i == ny - 1 or j == nx - 1:
                 edge[g] = True
+
+
+@nb.njit(cache=True)
+def boundary_pairs(a, b, labels):
+    """The pairs whose two points carry different grain labels (both labelled), as int32 (ea, eb)."""
+    n = 0
+    for k in range(a.shape[0]):
+        la = labels[a[k]]
+        lb = labels[b[k]]
+        if la != lb and la >= 0 and lb >= 0:
+            n += 1
+    ea = np.empty(n, dtype=np.int32)
+    eb = np.empty(n, dtype=np.int32)
+    n = 0
+    for k in range(a.shape[0]):
+        la = labels[a[k]]
+        lb = labels[b[k]]
+        if la != lb and la >= 0 and lb >= 0:
+            ea[n] = a[k]
+            eb[n] = b[k]
+            n += 1
+    return ea, eb
 
 
 @nb.njit(cache=True)

@@ -47,6 +47,7 @@ from __future__ import annotations
 import logging
 import math
 import os
+import time
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -570,12 +571,18 @@ class _Steps:
 
     def __init__(self, total: int, enabled: bool) -> None:
         self.bar = None
+        self.timings: dict[str, float] = {}
+        self._t = time.perf_counter()
         if enabled:
             from tqdm.auto import tqdm
 
             self.bar = tqdm(total=total, desc="grains", unit="step", leave=False)
 
     def __call__(self, name: str) -> None:
+        now = time.perf_counter()
+        self.timings[name] = now - self._t
+        self._t = now
+        logger.debug("step %s: %.3f s", name, self.timings[name])
         if self.bar is not None:
             self.bar.set_postfix_str(name)
             self.bar.update(1)
@@ -688,7 +695,7 @@ def build_grain_graph(
     log(f"{int(valid.sum())} of {npts} points carry an orientation "
         f"({omap.grid} grid {ny}x{nx_}, step {omap.step:g} µm)")
 
-    steps = _Steps(8, progress)
+    steps = _Steps(9, progress)
     qflat = omap.quats.reshape(-1, 4)
     phase_flat = omap.phase.reshape(-1)
 
@@ -741,12 +748,8 @@ def build_grain_graph(
     steps("orientations")
 
     # 6. boundaries
-    la = labels[a]
-    lb = labels[b]
-    sel = (la != lb) & (la >= 0) & (lb >= 0)
-    ea, eb = a[sel], b[sel]
-    ga, gb = la[sel].astype(np.int64), lb[sel].astype(np.int64)
-    del la, lb, sel
+    ea, eb = _k.boundary_pairs(a, b, labels)
+    ga, gb = labels[ea].astype(np.int64), labels[eb].astype(np.int64)
     lo, hi = np.minimum(ga, gb), np.maximum(ga, gb)
     key = lo * max(n, 1) + hi
     order = np.argsort(key, kind="stable")
@@ -952,11 +955,13 @@ def build_grain_graph(
     ecols = {k: boundaries[k].tolist() for k in EDGE_KEYS}
     ga_l, gb_l = boundaries["grain_a"].tolist(), boundaries["grain_b"].tolist()
     graph.add_edges_from((ga_l[i], gb_l[i], {k: ecols[k][i] for k in EDGE_KEYS}) for i in range(nbd))
+    steps("graph")
     steps.close()
 
     settings = {
         "threshold_deg": thr, "subgrain_deg": sub, "min_quality": min_quality, "fill_unindexed": bool(fill_unindexed),
         "min_grain_points": min_points or None, "fill_sweeps": fill_sweeps, "grid": omap.grid, "step_um": omap.step,
+        "timings_s": steps.timings,
     }
     return GrainGraph(
         omap=omap,
