@@ -156,6 +156,72 @@ def _run_slip(args) -> int:
     return 0
 
 
+def _add_stress(sub) -> None:
+    p = sub.add_parser(
+        "stress",
+        help="local stresses from a full-field elastic (optionally crystal-plastic) solve on the map",
+        description="Solve for the local stress in IN taken as a periodic cell of columnar grains under a "
+        "uniaxial load, then write stress and local Schmid factor pictures, a per-grain table and a summary "
+        "(with the model assumptions) into --out.",
+    )
+    p.add_argument("input", metavar="IN", help="orientation map file")
+    p.add_argument("--out", default="slipnet-stress", help="output folder (default: slipnet-stress)")
+    p.add_argument("--load-axis", nargs=3, type=float, default=(1.0, 0.0, 0.0), metavar=("X", "Y", "Z"),
+                   help="uniaxial load axis in the map frame (default 1 0 0)")
+    p.add_argument("--stress", type=float, default=100.0, help="applied uniaxial stress, MPa (default 100)")
+    p.add_argument("--tol", type=float, default=1e-6, help="normalised equilibrium residual to reach (default 1e-6)")
+    p.add_argument("--max-iter", type=int, default=1000, help="most solver iterations (default 1000)")
+    p.add_argument("--scheme", choices=("rotated", "fourier"), default="rotated",
+                   help="discretisation (default rotated finite differences)")
+    p.add_argument("--unindexed", choices=("auto", "compliant", "nearest"), default="auto",
+                   help="unindexed points: compliant holes, nearest orientation, or auto by cluster size (default)")
+    p.add_argument("--compliant-ratio", type=float, default=1e-3,
+                   help="stiffness of holes/notch relative to the matrix (default 0.001)")
+    p.add_argument("--threshold", type=float, default=15.0,
+                   help="grain boundary threshold for the per-grain table, degrees (default 15)")
+    p.add_argument("--notch", nargs=2, type=float, metavar=("X", "Y"),
+                   help="point (µm) around which to report the stress concentration, e.g. the notch root")
+    p.add_argument("--radius", type=float, metavar="UM", help="radius of that search, µm (default 5 steps)")
+    p.add_argument("--plastic", action="store_true",
+                   help="add rate-dependent crystal plasticity, load ramped in --increments increments")
+    p.add_argument("--crss", type=float, default=100.0,
+                   help="initial critical resolved shear stress, MPa (default 100)")
+    p.add_argument("--increments", type=int, default=10, help="load increments with --plastic (default 10)")
+    p.add_argument("--no-figures", action="store_true", help="skip the pictures")
+    p.add_argument("--frame-rotation", metavar="ROT", help="as for 'slipnet map'")
+    p.set_defaults(func=_run_stress)
+
+
+def _run_stress(args) -> int:
+    from .grains import build_grain_graph
+    from .io import read_map
+    from .stress import solve_elastic, write_stress_outputs
+
+    omap = read_map(args.input, frame_rotation=args.frame_rotation)
+    common = {"tol": args.tol, "max_iter": args.max_iter, "scheme": args.scheme, "unindexed": args.unindexed,
+              "compliant_ratio": args.compliant_ratio}
+    plastic = None
+    if args.plastic:
+        from .plasticity import solve_plastic
+
+        plastic = solve_plastic(omap, args.load_axis, args.stress, crss_mpa=args.crss, increments=args.increments,
+                                **common)
+        field = plastic.field
+    else:
+        field = solve_elastic(omap, args.load_axis, args.stress, **common)
+    gg = build_grain_graph(omap, threshold_deg=args.threshold)
+    res = write_stress_outputs(field, args.out, gg, notch_root=args.notch, radius_um=args.radius,
+                               figures=not args.no_figures, plastic=plastic)
+    print(f"stress: {field.iterations} iterations, residual {field.residual:.2e}, apparent modulus "
+          f"{field.apparent_modulus:.1f} GPa along the load axis")
+    if res["concentration"] is not None:
+        c = res["concentration"]
+        print(f"stress: concentration {c['concentration']:.2f} at ({c['x_um']:.1f}, {c['y_um']:.1f}) µm")
+    print(f"assumptions: {field.assumptions}")
+    print(f"outputs written to {args.out}")
+    return 0
+
+
 def _add_growth(sub) -> None:
     p = sub.add_parser(
         "growth",
@@ -191,6 +257,8 @@ def _add_growth(sub) -> None:
                    "(default: the forecast's sample count, else 0)")
     p.add_argument("--seed", type=int, default=0, help="seed of the draws (default 0)")
     p.add_argument("--record", metavar="CSV", help="measured record (columns crack_length_um, cycles) to calibrate on")
+    p.add_argument("--life", type=float, metavar="CYCLES",
+                   help="also find the stress amplitude that grows the crack to the final length in CYCLES")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
     p.set_defaults(func=_run_growth)
 
@@ -254,6 +322,16 @@ def _run_growth(args) -> int:
         params = fit.params
     res = simulate_growth(path, float(amplitude), params=params, initial_length=args.initial_length,
                           final_length=args.final_length, n_points=args.points, samples=samples or 0, seed=seed)
+    if args.life is not None:
+        from dataclasses import replace
+
+        from .growth import life_amplitude
+
+        life = life_amplitude(path, args.life, params=params, initial_length=args.initial_length,
+                              final_length=args.final_length)
+        res = replace(res, notes=(*res.notes, f"amplitude for a life of {args.life:g} cycles to the final length: "
+                                  f"{life:.1f} MPa"))
+        print(f"growth: {life:.1f} MPa grows the crack to the final length in {args.life:g} cycles")
     write_growth(res, args.out, figures=not args.no_figures, calibration=fit)
     arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
               else "no arrest on the path")
@@ -500,6 +578,7 @@ _SUBCOMMANDS: list[tuple[str, Callable]] = [
     ("map", _add_map),
     ("grains", _add_grains),
     ("slip", _add_slip),
+    ("stress", _add_stress),
     ("forecast", _add_forecast),
     ("growth", _add_growth),
     ("notch", _add_notch),

@@ -76,6 +76,30 @@ def _step_slip(ctx: dict) -> None:
         f"{len(tt) // 2} boundaries, median transmission score {tt['transmission_score'].median():.2f} (slip/).")
 
 
+def _step_stress(ctx: dict) -> None:
+    """Full-field elastic stress on the demo map: local Schmid factors, notch-root concentration."""
+    from .stress import solve_elastic, write_stress_outputs
+
+    omap, spec = ctx.get("omap"), ctx.get("specimen")
+    if omap is None or spec is None:
+        ctx.setdefault("notes", []).append("Stress: skipped (needs the specimen).")
+        return
+    load = spec.load_axis if getattr(spec, "load_axis", None) is not None else (0.0, 1.0, 0.0)
+    # the notch stays a compliant hole; specks of bad indexing take the nearest orientation
+    field = solve_elastic(omap, load, stress=200.0, tol=1e-5, unindexed="auto")
+    ctx["stress_field"] = field
+    res = write_stress_outputs(field, Path(ctx["out"]) / "stress", ctx.get("grain_graph"), ctx.get("systems"),
+                               title="Local stresses (demo)", notch_root=getattr(spec, "notch_root", None),
+                               radius_um=6.0 * omap.step)
+    conc = res["concentration"]
+    ctx.setdefault("notes", []).append(
+        f"Stress: full-field elastic solve in {field.iterations} iterations (residual {field.residual:.1e}), "
+        f"apparent modulus {field.apparent_modulus:.0f} GPa"
+        + (f", notch-root concentration {conc['concentration']:.2f}" if conc else "")
+        + " (stress/; periodic columnar elastic model)."
+    )
+
+
 def _step_forecast(ctx: dict) -> None:
     """Forecast the crack path from the demo notch root: barriers, sites, a modest Monte Carlo."""
     from .forecast import forecast_crack, write_forecast
@@ -117,6 +141,29 @@ def _step_growth(ctx: dict) -> None:
     ctx.setdefault("notes", []).append(
         f"Growth: {res.path.n_barriers} barriers on the path, {len(res.dips)} predicted rate dips, {arrest} at "
         f"σ_a = {amplitude:g} MPa (growth/).")
+
+
+def _step_notch(ctx: dict) -> None:
+    """Where else could the notch go? Rank positions along the uncut right edge of the coupon."""
+    from .notch import plan_notch
+    from .notch_sweep import write_plan
+
+    gg = ctx.get("grain_graph")
+    spec = ctx["specimen"]
+    if gg is None:
+        ctx.setdefault("notes", []).append("Notch plan: skipped (needs the grains step).")
+        return
+    quick = ctx["quick"]
+    # a notch cut from the right edge runs along x, across the load axis (y): it opens in mode I
+    plan = plan_notch(gg, "right", spec.load_axis, spacing_um=80.0 if quick else 40.0, depth_um=60.0,
+                      root_radius_um=15.0, opening_deg=45.0, window_um=200.0, crack_sizes_um=(10.0, 30.0),
+                      samples=3 if quick else 8, seed=ctx["seed"], scheduler="synchronous")
+    write_plan(plan, gg, Path(ctx["out"]) / "notch")
+    ctx["notch_plan"] = plan
+    best = plan.iloc[0]
+    ctx.setdefault("notes", []).append(
+        f"Notch plan: {len(plan)} candidate positions along the right edge; best root at "
+        f"({best['x']:.0f}, {best['y']:.0f}) µm, score {best['score']:.2f} (notch/).")
 
 
 def _step_compare(ctx: dict) -> None:
@@ -166,8 +213,10 @@ STEPS: list[tuple[str, Callable[[dict], None]]] = [
     ("files", _step_files),
     ("grains", _step_grains),
     ("slip", _step_slip),
+    ("stress", _step_stress),
     ("forecast", _step_forecast),
     ("growth", _step_growth),
+    ("notch", _step_notch),
     ("compare", _step_compare),
 ]
 

@@ -286,7 +286,7 @@ def _run(omap, axis, sig, tol, max_iter, ratio, scheme, unindexed, constants, sy
         applied_stress=sig,
         load_axis=axis,
         macro_strain=from_mandel(eps_final.mean(axis=1)),
-        assumptions=assumptions_text(scheme, ratio, omap.grid, plastic=True),
+        assumptions=assumptions_text(scheme, ratio, omap.grid, plastic=True, unindexed=unindexed),
         omap=omap,
         compliant=soft,
         tol=tol,

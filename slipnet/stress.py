@@ -249,14 +249,18 @@ def _isotropic_mandel(bulk: float, shear: float) -> np.ndarray:
 
 # ---------------------------------------------------------------------------- result container
 def assumptions_text(scheme: str = "rotated", compliant_ratio: float = 1e-3, grid: str = "square",
-                     plastic: bool = False) -> str:
+                     plastic: bool = False, unindexed: str = "compliant") -> str:
     """The statement every output made from a :class:`StressField` prints."""
     model = ("linear elasticity plus rate-dependent crystal plasticity (small strain)" if plastic
              else "linear elasticity only (no plasticity)")
     text = (f"Local stresses assume {model}; grains as columns through the thickness (generalized plane "
             "strain, nothing varies with depth); the map repeated periodically in x and y (periodic cell, "
-            "so edges see copies of the opposite edge); unindexed points and the notch as a very compliant "
-            f"isotropic phase ({compliant_ratio:g} x the matrix stiffness); spectral solve, {scheme} scheme.")
+            "so edges see copies of the opposite edge); "
+            + {"compliant": "unindexed points and the notch",
+               "auto": "the notch and unindexed clusters (small specks take the nearest orientation)",
+               "nearest": "no point (unindexed points take the nearest orientation)"}[unindexed]
+            + f" as a very compliant isotropic phase ({compliant_ratio:g} x the matrix stiffness); "
+            f"spectral solve, {scheme} scheme.")
     if grid == "hex":
         text += " Hexagonal grid treated as a rectangular grid with the row spacing."
     return text
@@ -636,7 +640,7 @@ def solve_elastic(
         applied_stress=sig,
         load_axis=axis,
         macro_strain=from_mandel(x.mean(axis=1)),
-        assumptions=assumptions_text(scheme, ratio, omap.grid),
+        assumptions=assumptions_text(scheme, ratio, omap.grid, unindexed=unindexed),
         omap=omap,
         compliant=soft,
         tol=tol,

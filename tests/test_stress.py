@@ -476,3 +476,33 @@ def test_auto_unindexed_keeps_holes_and_fills_specks():
     f = solve_elastic(uniform_map([1.0, 0, 0, 0], (40, 40), indexed=ind), [1, 0, 0], unindexed="auto")
     assert not f.compliant[3, 5] and f.compliant[15:22, 15:22].all()
     assert f.compliant.sum() == 49
+
+
+# ---------------------------------------------------------------------------- outputs, figures, CLI
+def test_outputs_carry_assumptions_and_caution(tmp_path):
+    from slipnet.cautions import CAUTION
+    from slipnet.stress import write_stress_outputs
+
+    omap, labels = polycrystal(24, 6, seed=6)
+    gg = types.SimpleNamespace(labels=labels, omap=omap, mean_quats=random_quats(6, seed=7))
+    f = solve_elastic(omap, [0, 1, 0], stress=150.0)
+    res = write_stress_outputs(f, tmp_path, gg, notch_root=(10.0, 10.0), radius_um=3.0)
+    text = (tmp_path / "summary.md").read_text(encoding="utf-8")
+    assert f.assumptions in text and CAUTION in text
+    assert len(res["table"]) == 6 and (tmp_path / "grain_stress.csv").exists()
+    for name in ("stress_load_axis.png", "local_schmid_max.png", "local_schmid_minus_uniform.png"):
+        assert (tmp_path / name).stat().st_size > 1000
+
+
+def test_cli_stress_writes_outputs(tmp_path, capsys):
+    from slipnet.cli import main
+    from slipnet.io import write_map
+
+    omap, _ = polycrystal(16, 4, seed=8)
+    write_map(omap, tmp_path / "m.npz")
+    rc = main(["stress", str(tmp_path / "m.npz"), "--out", str(tmp_path / "o"), "--load-axis", "0", "1", "0",
+               "--no-figures"])
+    out = capsys.readouterr().out
+    assert rc == 0 and "periodic" in out and (tmp_path / "o" / "summary.md").exists()
+    assert main(["stress", str(tmp_path / "m.npz"), "--tol", "0"]) == 2
+    assert "tol should lie in" in capsys.readouterr().err
