@@ -383,6 +383,7 @@ def test_grains_of_other_structure_are_skipped():
     assert t["schmid_max"].isna().all() and (t["system_max"] == -1).all()
 
 
+@pytest.mark.slow  # ~25 s on a cold numba cache (compiles the transmission kernel and loads matplotlib)
 def test_write_slip_outputs_writes_tables_pictures_and_caution(tmp_path):
     from slipnet.cautions import CAUTION
     from slipnet.slip import write_slip_outputs

@@ -218,3 +218,17 @@ def test_example_runs(capsys):
     script = Path(__file__).resolve().parents[1] / "examples" / "slip" / "schmid_and_transmission.py"
     runpy.run_path(str(script), run_name="__main__")
     assert "twinning sense" in capsys.readouterr().out
+
+
+def test_summaries_unchanged_by_crystal_symmetry():
+    # a cubic operator S (q -> S q) describes the same crystal: every summary value must be equal
+    q = random_quats(20, seed=8)
+    rng = np.random.default_rng(3)
+    q_sym = quat_multiply(CUBIC_OPERATORS[rng.integers(0, 24, 20)], q)
+    q_sym = np.where(q_sym[:, :1] < 0, -q_sym, q_sym)
+    ga, gb = np.arange(19), np.arange(1, 20)
+    th = np.linspace(5, 170, 19)
+    r1 = transmission_summaries(q, ga, gb, SYS, load_axis=[0.3, 0.9, 0.1], trace_angle_deg=th)
+    r2 = transmission_summaries(q_sym, ga, gb, SYS, load_axis=[0.3, 0.9, 0.1], trace_angle_deg=th)
+    for key in ("m_prime_max", "m_prime", "score", "residual_burgers", "shen"):
+        np.testing.assert_allclose(r2[key], r1[key], atol=1e-9, err_msg=key)
