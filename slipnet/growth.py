@@ -14,21 +14,30 @@ Public entries
 plastic_zone_ratio, sliding_displacement, GrowthPath, GrowthParameters, path_from_forecast,
 path_from_tables, barrier_strengths, crossing_lengths, threshold_amplitudes, zone_state,
 simulate_growth, growth_profile, predicted_dips, life_amplitude, calibrate, write_growth.
+
+This module holds the model itself; the path and its construction from a forecast live in
+:mod:`slipnet.growth_path`, calibration and the finite-life amplitude in
+:mod:`slipnet.growth_calibration`, file output in :mod:`slipnet.growth_report`. Every name above is
+importable from here (the calibration names on first use, because that module imports this one).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
-from typing import Any
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
-from scipy import integrate, optimize
-from scipy import stats as sps
+from scipy import integrate
 
 from ._checks import check_positive, check_range
 from .errors import NumericalError, ParameterError
+from .growth_path import GrowthPath, path_from_forecast, path_from_tables
+from .growth_report import write_growth
+
+if TYPE_CHECKING:  # for readers and checkers; at run time __getattr__ below provides them
+    from .growth_calibration import CalibrationResult, calibrate, life_amplitude
 
 __all__ = [
     "CalibrationResult",
@@ -50,6 +59,25 @@ __all__ = [
     "write_growth",
     "zone_state",
 ]
+
+# growth_calibration imports this module, so its names are re-exported on first access (PEP 562)
+# rather than imported here: either module can then be imported first.
+_CALIBRATION_NAMES = frozenset({"CalibrationResult", "calibrate", "life_amplitude"})
+
+
+def __getattr__(name: str) -> Any:
+    if name in _CALIBRATION_NAMES:
+        from . import growth_calibration
+
+        value = getattr(growth_calibration, name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | _CALIBRATION_NAMES)
+
 
 #: Zone states written in the ``zone_state`` column.
 BLOCKED = "blocked"
@@ -162,170 +190,8 @@ def sliding_displacement(
 
 
 # --------------------------------------------------------------------------------------------
-# The path and the parameters
+# The parameters
 # --------------------------------------------------------------------------------------------
-
-
-def _float_array(value, name: str, size: int | None, default: float | None = None) -> np.ndarray:
-    if value is None:
-        if default is None or size is None:
-            raise ParameterError(f"{name} is required")
-        return np.full(size, float(default))
-    try:
-        arr = np.asarray(value, dtype=float).reshape(-1)
-    except (TypeError, ValueError) as err:
-        raise ParameterError(f"{name} should be numbers; got {value!r}") from err
-    if size is not None and arr.size != size:
-        raise ParameterError(f"{name} should have {size} values; got {arr.size}")
-    return arr
-
-
-@dataclass(frozen=True, eq=False)
-class GrowthPath:
-    """A crack path reduced to what the growth model needs.
-
-    Grain ``k`` spans ``[barrier_positions_um[k-1], barrier_positions_um[k])`` along the path (grain 0
-    starts at the path start, the last grain runs to ``length_um``).
-
-    Attributes
-    ----------
-    barrier_positions_um
-        (k,) distances of the barriers (grain boundaries) from the path start, µm, increasing, > 0.
-    grain_factors
-        (k+1,) orientation factor of each grain along the path (Schmid-type: larger = easier slip).
-        Only ratios matter; all ones means no orientation effect.
-    m_prime
-        (k,) |m′| slip transmission factor of each barrier in [0, 1] (1 = perfect transmission).
-    twist_deg
-        (k,) twist angle of the crack plane across each barrier (degrees, Zhai, Wilkinson & Martin 2000).
-    length_um
-        Total path length, µm (≥ last barrier).
-    grains
-        (k+1,) grain ids along the path (−1 unknown).
-    boundary_ids
-        (k,) boundary ids (−1 unknown).
-    polyline
-        Optional (p, 3) array of (s_um, x_um, y_um) points along the path on the map, s increasing.
-    strength_scale
-        (k,) extra multiplier of each barrier's critical stress (1 by default; Monte Carlo draws use it).
-    """
-
-    barrier_positions_um: np.ndarray
-    grain_factors: np.ndarray
-    m_prime: np.ndarray
-    twist_deg: np.ndarray
-    length_um: float
-    grains: np.ndarray = field(default=None)  # type: ignore[assignment]
-    boundary_ids: np.ndarray = field(default=None)  # type: ignore[assignment]
-    polyline: np.ndarray | None = None
-    strength_scale: np.ndarray = field(default=None)  # type: ignore[assignment]
-
-    def __post_init__(self) -> None:
-        d = _float_array(self.barrier_positions_um, "barrier_positions_um", None)
-        k = d.size
-        if k and (not np.all(np.isfinite(d)) or d[0] <= 0 or np.any(np.diff(d) <= 0)):
-            raise ParameterError("barrier_positions_um should be finite, > 0 µm and strictly increasing")
-        gf = _float_array(self.grain_factors, "grain_factors", k + 1)
-        if not np.all(np.isfinite(gf)) or np.any(gf <= 0):
-            raise ParameterError("grain_factors should be finite and > 0 (Schmid-type orientation factors)")
-        mp = _float_array(self.m_prime, "m_prime", k)
-        mp = np.where(np.isfinite(mp), mp, 1.0)
-        if np.any(mp < -1e-9) or np.any(mp > 1 + 1e-9):
-            raise ParameterError("m_prime should lie in [0, 1] (|m′|)")
-        tw = _float_array(self.twist_deg, "twist_deg", k)
-        tw = np.where(np.isfinite(tw), tw, 0.0)
-        length = float(self.length_um)
-        if not math.isfinite(length) or length <= 0 or (k and length < d[-1]):
-            raise ParameterError(f"length_um should be > 0 and >= the last barrier position; got {self.length_um!r}")
-        grains = np.full(k + 1, -1, dtype=np.int64) if self.grains is None else np.asarray(self.grains, np.int64)
-        bids = np.full(k, -1, dtype=np.int64) if self.boundary_ids is None else np.asarray(self.boundary_ids, np.int64)
-        if grains.shape != (k + 1,) or bids.shape != (k,):
-            raise ParameterError(f"grains should have {k + 1} ids and boundary_ids {k}")
-        scale = np.ones(k) if self.strength_scale is None else _float_array(self.strength_scale, "strength_scale", k)
-        if np.any(~np.isfinite(scale)) or np.any(scale <= 0):
-            raise ParameterError("strength_scale should be finite and > 0")
-        poly = None
-        if self.polyline is not None:
-            poly = np.asarray(self.polyline, dtype=float)
-            if poly.ndim != 2 or poly.shape[1] != 3 or poly.shape[0] < 2:
-                raise ParameterError("polyline should be a (p, 3) array of (s_um, x_um, y_um) with p >= 2")
-        for name, val in (("barrier_positions_um", d), ("grain_factors", gf), ("m_prime", np.clip(mp, 0, 1)),
-                          ("twist_deg", tw), ("length_um", length), ("grains", grains), ("boundary_ids", bids),
-                          ("polyline", poly), ("strength_scale", scale)):
-            object.__setattr__(self, name, val)
-
-    @classmethod
-    def from_barriers(
-        cls,
-        positions_um,
-        *,
-        grain_factors=None,
-        m_prime=None,
-        twist_deg=None,
-        length_um: float | None = None,
-    ) -> GrowthPath:
-        """A hand-built path: barrier positions (µm) and optional per-grain / per-barrier factors.
-
-        Missing factors default to neutral values (grain factors 1, |m′| = 1, twist 0°); the length
-        defaults to 1.5 × the last barrier position (or 100 µm without barriers).
-        """
-        d = _float_array(positions_um, "positions_um", None)
-        k = d.size
-        if length_um is None:
-            length_um = 1.5 * float(d[-1]) if k else 100.0
-        return cls(
-            barrier_positions_um=d,
-            grain_factors=_float_array(grain_factors, "grain_factors", k + 1, 1.0),
-            m_prime=_float_array(m_prime, "m_prime", k, 1.0),
-            twist_deg=_float_array(twist_deg, "twist_deg", k, 0.0),
-            length_um=float(length_um),
-        )
-
-    @classmethod
-    def from_table(cls, table: pd.DataFrame, *, first_grain_factor: float = 1.0,
-                   length_um: float | None = None, source: str = "barrier table") -> GrowthPath:
-        """A path from a barrier table: one row per barrier.
-
-        Columns: ``position_um`` (required), optional ``grain_factor`` (orientation factor of the grain
-        entered past the barrier), ``m_prime``, ``twist_deg``. Rows are sorted by position.
-        """
-        if "position_um" not in table.columns:
-            raise ParameterError(f"{source} should have a 'position_um' column; got columns {list(table.columns)}")
-        t = table.sort_values("position_um").reset_index(drop=True)
-
-        def col(name, default):
-            return t[name].to_numpy(float) if name in t.columns else np.full(len(t), default)
-
-        gf = np.concatenate([[check_positive(first_grain_factor, "first_grain_factor")], col("grain_factor", 1.0)])
-        return cls.from_barriers(t["position_um"].to_numpy(float), grain_factors=gf, m_prime=col("m_prime", 1.0),
-                                 twist_deg=col("twist_deg", 0.0), length_um=length_um)
-
-    @property
-    def n_barriers(self) -> int:
-        """Number of barriers along the path."""
-        return int(self.barrier_positions_um.size)
-
-    def table(self) -> pd.DataFrame:
-        """The barriers as a DataFrame (one row per barrier)."""
-        return pd.DataFrame({
-            "barrier": np.arange(self.n_barriers),
-            "position_um": self.barrier_positions_um,
-            "boundary_id": self.boundary_ids,
-            "grain_before": self.grains[:-1],
-            "grain_after": self.grains[1:],
-            "grain_factor_before": self.grain_factors[:-1],
-            "grain_factor_after": self.grain_factors[1:],
-            "m_prime": self.m_prime,
-            "twist_deg": self.twist_deg,
-        })
-
-    def locate(self, s_um) -> tuple[np.ndarray, np.ndarray]:
-        """Map positions (x, y) in µm of distances ``s_um`` along the path (needs ``polyline``)."""
-        if self.polyline is None:
-            raise ParameterError("this path has no map coordinates (polyline is None)")
-        s = np.asarray(s_um, dtype=float)
-        p = self.polyline
-        return np.interp(s, p[:, 0], p[:, 1]), np.interp(s, p[:, 0], p[:, 2])
 
 
 @dataclass(frozen=True)
@@ -894,436 +760,3 @@ def _bands(paths: list[GrowthPath], s: float, p: GrowthParameters, a: np.ndarray
         out[f"cycles_p{q:02d}"] = np.percentile(cyc, q, axis=0, method="inverted_cdf")
         out[f"dadn_p{q:02d}"] = np.percentile(rate, q, axis=0, method="inverted_cdf")
     return pd.DataFrame(out)
-
-
-# --------------------------------------------------------------------------------------------
-# From the forecast
-# --------------------------------------------------------------------------------------------
-
-
-def _match_transmission(table: pd.DataFrame | None, grains: np.ndarray, positions: np.ndarray, offset: float,
-                        from_col: str, into_col: str, mp: np.ndarray, tw: np.ndarray, bid: np.ndarray,
-                        done: np.ndarray) -> None:
-    """Fill |m′|, twist and boundary id of the path barriers from a crossing or barrier table."""
-    if table is None or len(table) == 0 or from_col not in table.columns or into_col not in table.columns:
-        return
-    ga = table[from_col].to_numpy(np.int64)
-    gb = table[into_col].to_numpy(np.int64)
-    dist = table["distance_um"].to_numpy(float) + offset if "distance_um" in table.columns else None
-    for i in np.flatnonzero(~done):  # per barrier on the path: tens at most
-        g0, g1 = grains[i], grains[i + 1]
-        m = np.flatnonzero(((ga == g0) & (gb == g1)) | ((ga == g1) & (gb == g0)))
-        if m.size == 0:
-            continue
-        if dist is not None:
-            m = m[np.argsort(np.abs(np.nan_to_num(dist[m], nan=np.inf) - positions[i]), kind="stable")]
-        row = table.iloc[int(m[0])]
-        mp[i] = float(row["m_prime"]) if "m_prime" in table.columns else 1.0
-        tw[i] = float(row["twist_deg"]) if "twist_deg" in table.columns else 0.0
-        bid[i] = int(row["boundary_id"]) if "boundary_id" in table.columns else -1
-        done[i] = True
-
-
-def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | None = None, *,
-                     crossings: pd.DataFrame | None = None, offset_um: float = 0.0,
-                     source: str = "path table") -> GrowthPath:
-    """A :class:`GrowthPath` from a forecast path table (and optionally its crossing / barrier tables).
-
-    Parameters
-    ----------
-    path_table
-        One row per straight segment with columns ``grain``, ``x0``, ``y0``, ``x1``, ``y1`` (µm),
-        ``length_um``, ``s_start_um`` and ``schmid`` (the ``CrackForecast.path`` contract).
-    barrier_table
-        ``CrackForecast.barriers``: ``grain_a``, ``grain_b``, ``m_prime``, ``twist_deg``,
-        ``distance_um``, ``boundary_id``, ``on_path``.
-    crossings
-        ``CrackForecast.crossings`` (preferred: one row per crossing of the main path, ``branch`` 0):
-        ``grain_a`` (from), ``grain_b`` (into), ``m_prime``, ``twist_deg``, ``distance_um``.
-    offset_um
-        Crack already present behind the path start (µm): every position is shifted by it, so the
-        crack length is the whole length (the forecast's ``initial_crack_um``).
-    source
-        Name used in error messages.
-
-    Notes
-    -----
-    Barrier positions are the path distances where the grain changes; grain factors are the
-    length-weighted ``schmid`` of each grain's segments. |m′|, twist and boundary id are matched by
-    grain pair (nearest distance first), from the crossings, then the barriers; an unmatched
-    barrier gets neutral transmission (|m′| = 1, twist 0).
-    """
-    need = {"grain", "x0", "y0", "x1", "y1", "length_um", "s_start_um", "schmid"}
-    if path_table is None or len(path_table) == 0:
-        raise ParameterError(f"{source} is empty: the forecast found no path to grow a crack along")
-    missing = need - set(path_table.columns)
-    if missing:
-        raise ParameterError(f"{source} should have columns {sorted(need)}; missing {sorted(missing)}")
-    offset = check_positive(offset_um, "offset_um", allow_zero=True)
-    t = path_table.sort_values("s_start_um").reset_index(drop=True)
-    grain = t["grain"].to_numpy(np.int64)
-    s0 = t["s_start_um"].to_numpy(float) + offset
-    ln = t["length_um"].to_numpy(float)
-    schmid = np.abs(t["schmid"].to_numpy(float))
-    change = np.flatnonzero(grain[1:] != grain[:-1]) + 1
-    starts = np.concatenate([[0], change])
-    ends = np.concatenate([change, [len(t)]])
-    positions = s0[change]
-    grains = grain[starts]
-    # length-weighted orientation factor of each grain's segments (per grain on the path: tens)
-    gf = np.array([np.average(np.nan_to_num(schmid[i:j]), weights=np.maximum(ln[i:j], 1e-12))
-                   for i, j in zip(starts, ends, strict=True)])
-    if not np.any(gf > 0):
-        gf = np.ones_like(gf)
-    gf = np.maximum(gf, 1e-3)  # a grain with no resolved shear: very hard, never infinitely so
-    k = positions.size
-    mp, tw = np.ones(k), np.zeros(k)
-    bid = np.full(k, -1, dtype=np.int64)
-    done = np.zeros(k, dtype=bool)
-    if crossings is not None and len(crossings) and "branch" in crossings.columns:
-        crossings = crossings[crossings["branch"] == 0]
-    _match_transmission(crossings, grains, positions, offset, "grain_a", "grain_b", mp, tw, bid, done)
-    if barrier_table is not None and len(barrier_table) and "on_path" in barrier_table.columns:
-        barrier_table = barrier_table[barrier_table["on_path"].astype(bool)]
-    _match_transmission(barrier_table, grains, positions, offset, "grain_a", "grain_b", mp, tw, bid, done)
-    total = float(s0[-1] + ln[-1])
-    poly_s = np.concatenate([s0, [total]])
-    poly_x = np.concatenate([t["x0"].to_numpy(float), [float(t["x1"].iloc[-1])]])
-    poly_y = np.concatenate([t["y0"].to_numpy(float), [float(t["y1"].iloc[-1])]])
-    keep = np.concatenate([[True], np.diff(poly_s) > 0])
-    return GrowthPath(barrier_positions_um=positions, grain_factors=gf, m_prime=np.clip(np.nan_to_num(mp, nan=1.0),
-                      0, 1), twist_deg=np.nan_to_num(tw), length_um=total, grains=grains, boundary_ids=bid,
-                      polyline=np.column_stack([poly_s, poly_x, poly_y])[keep])
-
-
-def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field=None, grain_graph=None,
-                       systems=None) -> GrowthPath:
-    """A :class:`GrowthPath` from a ``CrackForecast`` (its ``.path``, ``.crossings``, ``.barriers``).
-
-    Parameters
-    ----------
-    forecast
-        The forecast.
-    offset_um
-        Crack length already behind the forecast tip (µm); default the forecast's
-        ``settings["initial_crack_um"]`` (0 for a notch root).
-    stress_field
-        Optional ``StressField``: the grain factors then come from the local grain Schmid factors
-        (``slipnet.stress.grain_schmid_factors``) of the system the path follows in each grain
-        (the largest over systems in stage II) instead of the forecast's ``schmid`` column.
-    grain_graph
-        The ``GrainGraph`` of the map (needed with ``stress_field``).
-    systems
-        The slip systems the forecast used (default catalogue when None; relative CRSS divide the
-        local factors as in the effective Schmid factor).
-
-    See :func:`path_from_tables` for how the tables are read.
-    """
-    if not hasattr(forecast, "path"):
-        raise ParameterError(f"forecast should be a CrackForecast with a .path table; got {type(forecast).__name__}")
-    if offset_um is None:
-        settings = getattr(forecast, "settings", None) or {}
-        offset_um = float(settings.get("initial_crack_um", 0.0) or 0.0)
-    table = forecast.path
-    if stress_field is not None:
-        table = _local_factors(table, stress_field, grain_graph, systems)
-    return path_from_tables(table, getattr(forecast, "barriers", None),
-                            crossings=getattr(forecast, "crossings", None), offset_um=offset_um,
-                            source="forecast.path")
-
-
-def _local_factors(table: pd.DataFrame, stress_field, grain_graph, systems) -> pd.DataFrame:
-    """The path table with ``schmid`` replaced by local effective Schmid factors from a stress field."""
-    if grain_graph is None:
-        raise ParameterError("grain_graph should be given with stress_field (the local factors are grain means)")
-    if "system" not in table.columns:
-        raise ParameterError("forecast.path should have a 'system' column to use local Schmid factors")
-    from .stress import grain_schmid_factors
-
-    local = np.abs(np.asarray(grain_schmid_factors(stress_field, grain_graph, systems), dtype=float))
-    crss = np.asarray(getattr(systems, "crss", np.ones(local.shape[1])), dtype=float)
-    eff = np.nan_to_num(local / crss[None, :])
-    g = table["grain"].to_numpy(np.int64)
-    sysi = table["system"].to_numpy(np.int64)
-    ok = (g >= 0) & (g < eff.shape[0])
-    gi = np.where(ok, g, 0)
-    on_sys = eff[gi, np.clip(sysi, 0, eff.shape[1] - 1)]
-    best = eff[gi].max(axis=1)
-    out = table.copy()
-    out["schmid"] = np.where(ok, np.where(sysi >= 0, on_sys, best), table["schmid"].to_numpy(float))
-    return out
-
-
-def life_amplitude(
-    path: GrowthPath,
-    cycles: float,
-    *,
-    params: GrowthParameters | None = None,
-    initial_length: float | None = None,
-    final_length: float | None = None,
-    n_points: int = 1000,
-    rtol: float = 1e-6,
-) -> float:
-    """Stress amplitude (MPa) at which the crack grows from ``initial_length`` to ``final_length`` in
-    ``cycles`` cycles: a finite-life fatigue strength of the mapped path.
-
-    The cycles to reach ``final_length`` fall monotonically with the amplitude, so the root of
-    ln N(σ) − ln N_target is bracketed by ``scipy.optimize.brentq`` between the amplitude needed to
-    pass every barrier up to ``final_length`` (the microstructural fatigue limit, eq. 7 of
-    ``docs/growth-model.md``) and σ_f. When even just above that limit the crack needs fewer cycles
-    than asked (possible for m < 2, where the approach to a barrier takes finite time), the limit
-    itself is returned: below it the crack arrests.
-
-    Parameters
-    ----------
-    path
-        The path.
-    cycles
-        Target life N (cycles), > 0.
-    params
-        Model constants.
-    initial_length, final_length
-        Crack lengths (µm); defaults as in :func:`simulate_growth`.
-    n_points
-        Crack lengths per model run.
-    rtol
-        Relative tolerance on the amplitude.
-
-    Returns
-    -------
-    float
-        σ_a (MPa).
-    """
-    p = _params(params)
-    target = check_positive(cycles, "cycles")
-    d = path.barrier_positions_um
-    a1 = path.length_um if final_length is None else check_positive(final_length, "final_length")
-    a0 = (0.1 * (d[0] if d.size else a1)) if initial_length is None else check_positive(initial_length,
-                                                                                        "initial_length")
-    if a0 >= a1:
-        raise ParameterError(f"initial_length should be below final_length={a1:g} µm; got {a0:g} µm")
-    th = threshold_amplitudes(path, p)[d < a1]
-    lo = max(float(th.max()) if th.size else 0.0, 1e-9 * p.friction_stress) * (1 + 1e-9)
-    hi = p.friction_stress * (1 - 1e-9)
-    if lo >= hi:
-        raise ParameterError(f"the barriers need {lo:g} MPa, not below friction_stress={p.friction_stress:g} MPa: "
-                             "raise friction_stress or lower barrier_stress")
-
-    def log_excess(sigma: float) -> float:
-        _a, _st, cyc, _x = _run(path, sigma, p, a0, a1, int(n_points))
-        n_end = cyc[-1]
-        # an arrest (rounding right at the limit) counts as "far too many cycles": the sign is what brentq needs
-        return 1e3 if not math.isfinite(n_end) else math.log(max(n_end, 1e-300)) - math.log(target)
-
-    if log_excess(lo) <= 0:
-        return lo
-    if log_excess(hi) >= 0:
-        raise NumericalError(f"even at σ_f = {p.friction_stress:g} MPa the crack needs more than {target:g} cycles")
-    return float(optimize.brentq(log_excess, lo, hi, rtol=rtol))
-
-
-# --------------------------------------------------------------------------------------------
-# Calibration
-# --------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, eq=False)
-class CalibrationResult:
-    """Fitted constants with confidence intervals.
-
-    Attributes
-    ----------
-    params
-        The fitted :class:`GrowthParameters`.
-    table
-        DataFrame: ``parameter``, ``value``, ``low``, ``high`` (confidence interval), ``std_log``.
-    covariance
-        (3, 3) covariance of (ln σ_f, ln C, ln m): s² (JᵀJ)⁻¹.
-    residual_rms
-        RMS of the cycle residuals (counts).
-    success
-        Optimiser success flag.
-    message
-        Optimiser message.
-    """
-
-    params: GrowthParameters
-    table: pd.DataFrame
-    covariance: np.ndarray
-    residual_rms: float
-    success: bool
-    message: str
-
-
-def _model_cycles(path: GrowthPath, s: float, p: GrowthParameters, a_rec: np.ndarray, n_points: int) -> np.ndarray:
-    x = crossing_lengths(path, s, p)
-    a_all = np.unique(np.concatenate([_grid(path, a_rec[0], a_rec[-1], n_points, x), a_rec]))
-    st = zone_state(path, a_all, s, p, crossings=x)
-    cyc = _integrate_cycles(a_all, st["dadn"])
-    return cyc[np.searchsorted(a_all, a_rec)]
-
-
-def calibrate(
-    record_a_um,
-    record_n_cycles,
-    path: GrowthPath,
-    stress_amplitude: float,
-    *,
-    initial: GrowthParameters | None = None,
-    confidence: float = 0.95,
-    n_points: int = 800,
-) -> CalibrationResult:
-    """Fit friction stress, coefficient and exponent to a measured crack-length record.
-
-    Least squares (``scipy.optimize.least_squares``) on θ = (ln σ_f, ln C, ln m); the residuals are
-    model minus measured cycles to reach each recorded length, counted from the first record point.
-    Confidence intervals from the Jacobian: cov(θ) = s² (JᵀJ)⁻¹, s² = RSS/(n − 3), intervals
-    exp(θ ± t·√diag) (Student t, n − 3 degrees of freedom).
-
-    Parameters
-    ----------
-    record_a_um
-        (n,) crack lengths along the path (µm), increasing, n ≥ 4.
-    record_n_cycles
-        (n,) cycles at those lengths.
-    path
-        The path the crack grew along.
-    stress_amplitude
-        σ_a of the test (MPa).
-    initial
-        Starting constants (defaults: :class:`GrowthParameters`); σ_f is kept above σ_a.
-    confidence
-        Confidence level of the intervals.
-    n_points
-        Crack-length grid of each model run.
-
-    Returns
-    -------
-    CalibrationResult
-    """
-    a = np.asarray(record_a_um, dtype=float).reshape(-1)
-    nc = np.asarray(record_n_cycles, dtype=float).reshape(-1)
-    if a.size != nc.size or a.size < 4:
-        raise ParameterError(f"record_a_um and record_n_cycles should have the same length >= 4; got {a.size}, "
-                             f"{nc.size}")
-    if not (np.all(np.isfinite(a)) and np.all(np.isfinite(nc))) or np.any(a <= 0) or np.any(np.diff(a) <= 0):
-        raise ParameterError("record_a_um should be finite, > 0 µm and strictly increasing; cycles finite")
-    conf = check_range(confidence, "confidence", 0.0, 1.0, inclusive=False)
-    p0 = initial if initial is not None else GrowthParameters()
-    s = _as_stress(stress_amplitude, "stress_amplitude")
-    s = float(s)
-    sf0 = max(p0.friction_stress, 1.05 * s)
-    theta0 = np.log([sf0, p0.coefficient, p0.exponent])
-    lo = np.array([math.log(s * 1.0001), -np.inf, math.log(0.05)])
-    hi = np.array([np.inf, np.inf, math.log(20.0)])
-    theta0 = np.clip(theta0, lo + 1e-6, hi - 1e-6)
-    n_rel = nc - nc[0]
-    scale = max(float(np.max(np.abs(n_rel))), 1.0)
-    penalty = 10.0
-
-    def residuals(theta: np.ndarray) -> np.ndarray:
-        sf, cc, m = np.exp(theta)
-        pp = replace(p0, friction_stress=sf, coefficient=cc, exponent=m)
-        model = _model_cycles(path, s, pp, a, n_points)
-        r = (model - n_rel) / scale
-        return np.where(np.isfinite(r), r, penalty)
-
-    fit = optimize.least_squares(residuals, theta0, bounds=(lo, hi), x_scale="jac", method="trf")
-    sf, cc, m = np.exp(fit.x)
-    pfit = replace(p0, friction_stress=sf, coefficient=cc, exponent=m)
-    dof = max(a.size - 3, 1)
-    rss = float(np.sum(fit.fun**2))
-    s2 = rss / dof
-    jtj = fit.jac.T @ fit.jac
-    try:
-        cov = s2 * np.linalg.inv(jtj)
-    except np.linalg.LinAlgError:
-        cov = np.full((3, 3), np.inf)
-    sd = np.sqrt(np.clip(np.diag(cov), 0, None))
-    t = float(sps.t.ppf(0.5 + conf / 2.0, dof))
-    table = pd.DataFrame({
-        "parameter": ["friction_stress_mpa", "coefficient", "exponent"],
-        "value": [sf, cc, m],
-        "low": np.exp(fit.x - t * sd),
-        "high": np.exp(fit.x + t * sd),
-        "std_log": sd,
-    })
-    return CalibrationResult(params=pfit, table=table, covariance=cov,
-                             residual_rms=math.sqrt(rss / a.size) * scale, success=bool(fit.success),
-                             message=str(fit.message))
-
-
-# --------------------------------------------------------------------------------------------
-# Writing
-# --------------------------------------------------------------------------------------------
-
-
-def write_growth(result: GrowthResult, folder, gg=None, *, figures: bool = True,
-                 calibration: CalibrationResult | None = None, title: str = "Short-crack growth prediction") -> dict:
-    """Write the growth tables (CSV), settings (JSON), pictures and a summary carrying the caution.
-
-    Files: ``growth_profile.csv``, ``growth_barriers.csv``, ``growth_dips.csv``, ``growth_bands.csv``
-    (with bands), ``growth_calibration.csv`` (with a calibration), ``growth_settings.json``, the
-    pictures of :func:`slipnet.figures.growth.save_growth_figures` and ``summary.md``.
-
-    Returns
-    -------
-    dict
-        Name → path of every file written.
-    """
-    import json
-    from dataclasses import asdict
-    from pathlib import Path
-
-    from ._files import atomic_path
-    from .report import write_summary, write_table
-
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    out = {
-        "profile": write_table(result.profile, folder / "growth_profile.csv"),
-        "barriers": write_table(result.barriers, folder / "growth_barriers.csv"),
-        "dips": write_table(result.dips, folder / "growth_dips.csv"),
-    }
-    if result.bands is not None:
-        out["bands"] = write_table(result.bands, folder / "growth_bands.csv")
-    if calibration is not None:
-        out["calibration"] = write_table(calibration.table, folder / "growth_calibration.csv")
-    settings = {"stress_amplitude_mpa": result.stress_amplitude, **asdict(result.params),
-                "arrest_length_um": result.arrest_length_um, "notes": list(result.notes)}
-    with atomic_path(folder / "growth_settings.json") as tmp:
-        tmp.write_text(json.dumps(settings, indent=1, default=str), encoding="utf-8")
-    out["settings"] = folder / "growth_settings.json"
-    if figures:
-        from .figures.growth import save_growth_figures
-
-        out.update(save_growth_figures(result, folder, gg))
-    prof = result.profile
-    fin = prof.loc[np.isfinite(prof["cycles"]), "cycles"]
-    p = result.params
-    lines = [
-        f"Stress amplitude σ_a = {result.stress_amplitude:g} MPa; friction stress σ_f = {p.friction_stress:g} MPa; "
-        f"da/dN = {p.coefficient:g} · φ^{p.exponent:g} (µm/cycle, φ in µm).",
-        f"Barrier critical stress S_c = {p.barrier_stress:g} MPa at r₀ = {p.source_distance:g} µm; coupling "
-        f"1 + {p.transmission_weight:g}(1 − |m′|) + {p.twist_weight:g} sin(twist).",
-        f"Path: {result.path.n_barriers} barriers over {result.path.length_um:.1f} µm.",
-        (f"The crack arrests at {result.arrest_length_um:.1f} µm (barrier strength exceeds what the blocked zone "
-         f"can deliver); cycles are infinite beyond." if math.isfinite(result.arrest_length_um)
-         else f"No arrest up to {prof['crack_length'].iloc[-1]:.1f} µm; {fin.iloc[-1]:.3g} cycles from "
-              f"{prof['crack_length'].iloc[0]:.2f} µm."),
-        f"Amplitude needed to pass every barrier on the path: "
-        f"{float(result.barriers['threshold_amplitude_mpa'].max()) if len(result.barriers) else 0.0:.1f} MPa "
-        "(microstructural fatigue-limit estimate).",
-        f"Predicted dips: {len(result.dips)} (growth_dips.csv: crack length of each minimum, depth = minimum rate "
-        "/ rate just after crossing).",
-        *[f"Note: {n}" for n in result.notes],
-        "",
-        "The model (Bilby, Cottrell & Swinden 1963 strip-yield zone blocked at grain boundaries as in Navarro & "
-        "de los Rios 1988) and every added assumption are described in docs/growth-model.md. The constants are "
-        "illustrative until calibrated against a growth record of the material.",
-    ]
-    if calibration is not None:
-        lines += ["", "Calibration (95 % intervals):"]
-        lines += [f"- {r.parameter}: {r.value:.4g} [{r.low:.4g}, {r.high:.4g}]" for r in calibration.table.itertuples()]
-    out["summary"] = write_summary(folder, title, lines)
-    return out
