@@ -83,34 +83,35 @@ def schmid_summary_rows(q, load, normals_t, directions_t, inv_crss_pos, inv_crss
             l0, l1, l2 = _load_in_crystal(q[i], load)
             for s in range(ns):
                 m = (n0[s] * l0 + n1[s] * l1 + n2[s] * l2) * (d0[s] * l0 + d1[s] * l1 + d2[s] * l2)
-                buf[s] = m
+                buf[s] = abs(m)
                 eff[s] = abs(m) * (inv_crss_pos[s] if m >= 0.0 else inv_crss_neg[s])
             b1 = -1.0
             i1 = -1
+            for s in range(ns):
+                if buf[s] > b1:
+                    b1 = buf[s]
+                    i1 = s
             be = -1.0
             ie = -1
             for s in range(ns):
-                am = abs(buf[s])
-                if am > b1:
-                    b1 = am
-                    i1 = s
                 if eff[s] > be:
                     be = eff[s]
                     ie = s
             b2 = -1.0
             i2 = -1
             for s in range(ns):
-                am = abs(buf[s])
-                if s != i1 and am > b2:
-                    b2 = am
+                if s != i1 and buf[s] > b2:
+                    b2 = buf[s]
                     i2 = s
+            # sign of the largest factor, recomputed for that one system only
+            neg = (n0[i1] * l0 + n1[i1] * l1 + n2[i1] * l2) * (d0[i1] * l0 + d1[i1] * l1 + d2[i1] * l2) < 0.0
             m_max[i] = b1
             s_max[i] = i1
             m_second[i] = b2
             s_second[i] = i2
             eff_max[i] = be
             s_eff[i] = ie
-            sign_max[i] = 1 if buf[i1] >= 0.0 else -1
+            sign_max[i] = -1 if neg else 1
 
 
 @nb.njit(cache=True, parallel=True)
