@@ -455,38 +455,47 @@ def kam_sums(a, b, angle, labels, threshold, sums, counts):
 
 # ----------------------------------------------------------------------------- boundary chains
 @nb.njit(cache=True, parallel=True)
-def chain_edges(bstart, ev0, ev1, inc_v, inc_e, order, first_of_chain, start_v, end_v):
+def chain_edges(bstart, ev0, ev1, order, first_of_chain, start_v, end_v):
     """Order the edges of every boundary into chains (polylines) through shared vertices.
 
     Edges of boundary k occupy ``[bstart[k], bstart[k+1])`` with end vertices ``ev0``/``ev1``.
-    ``inc_v``/``inc_e`` list the 2 incidences (vertex, edge) per edge, sorted by boundary then
-    vertex, so boundary k owns incidences ``[2*bstart[k], 2*bstart[k+1])``. Chains start at
-    vertices of odd degree (ends of open lines), then any edge left (closed loops).
-    Writes the edge order into ``order``, flags the first edge of each chain, and stores each
-    chain's start vertex and end vertex at the position of its first edge.
+    Per boundary, the 2 incidences (vertex, edge) of each edge are sorted by vertex locally (a
+    boundary has few edges, and boundaries run in parallel). Chains start at vertices of odd
+    degree (ends of open lines), then at any edge left (closed loops). Writes the edge order
+    into ``order``, flags the first edge of each chain, and stores each chain's start vertex and
+    end vertex at the position of its first edge.
     """
     nb_ = bstart.shape[0] - 1
     m = ev0.shape[0]
     used = np.zeros(m, dtype=np.bool_)
     for k in nb.prange(nb_):
-        s = 2 * bstart[k]
-        e = 2 * bstart[k + 1]
-        verts = inc_v[s:e]
-        pos = bstart[k]
+        s0 = bstart[k]
+        cnt = bstart[k + 1] - s0
+        lv_raw = np.empty(2 * cnt, dtype=np.int64)
+        for t in range(cnt):
+            lv_raw[t] = ev0[s0 + t]
+            lv_raw[cnt + t] = ev1[s0 + t]
+        srt = np.argsort(lv_raw)
+        verts = lv_raw[srt]
+        edges = np.empty(2 * cnt, dtype=np.int64)
+        for t in range(2 * cnt):
+            edges[t] = s0 + (srt[t] % cnt)
+        e = 2 * cnt
+        pos = s0
         for phase_ in range(2):
-            u = s
+            u = 0
             while u < e:
                 # run of incidences at one vertex
                 w = u
-                while w < e and inc_v[w] == inc_v[u]:
+                while w < e and verts[w] == verts[u]:
                     w += 1
                 deg = w - u
                 if phase_ == 1 or deg % 2 == 1:
                     for t in range(u, w):
-                        e0 = inc_e[t]
+                        e0 = edges[t]
                         if used[e0]:
                             continue
-                        v = inc_v[u]
+                        v = verts[u]
                         first_of_chain[pos] = True
                         start_v[pos] = v
                         head = pos
@@ -496,12 +505,11 @@ def chain_edges(bstart, ev0, ev1, inc_v, inc_e, order, first_of_chain, start_v, 
                             order[pos] = cur
                             pos += 1
                             v = ev1[cur] if ev0[cur] == v else ev0[cur]
-                            lo = np.searchsorted(verts, v)
+                            q = np.searchsorted(verts, v)
                             nxt = -1
-                            q = s + lo
-                            while q < e and inc_v[q] == v:
-                                if not used[inc_e[q]]:
-                                    nxt = inc_e[q]
+                            while q < e and verts[q] == v:
+                                if not used[edges[q]]:
+                                    nxt = edges[q]
                                     break
                                 q += 1
                             if nxt < 0:
@@ -509,3 +517,96 @@ def chain_edges(bstart, ev0, ev1, inc_v, inc_e, order, first_of_chain, start_v, 
                             cur = nxt
                         end_v[head] = v
                 u = w
+
+
+@nb.njit(cache=True)
+def _junction_at(labels, cells, nc, out_g):
+    # distinct labelled grains among the cells meeting at one vertex, sorted ascending
+    m = 0
+    for t in range(nc):
+        g = labels[cells[t]]
+        if g < 0:
+            continue
+        dup = False
+        for u in range(m):
+            if out_g[u] == g:
+                dup = True
+                break
+        if not dup:
+            out_g[m] = g
+            m += 1
+    # insertion sort (at most 4 values)
+    for t in range(1, m):
+        v = out_g[t]
+        u = t - 1
+        while u >= 0 and out_g[u] > v:
+            out_g[u + 1] = out_g[u]
+            u -= 1
+        out_g[u + 1] = v
+    return m
+
+
+@nb.njit(cache=True)
+def triple_junctions(labels, ny, nx, hex_grid, step, row_spacing, max_out):
+    """Cell vertices where three or more grains meet, from the label image in one pass.
+
+    Square grid: every vertex is shared by the 2×2 cells around it; hexagonal grid: by the 3 cells
+    of a lattice triangle. Returns ``(x, y, grains (k, 4) with −1 padding, n_grains)`` with
+    positions in µm from point (0, 0); at most ``max_out`` rows.
+    """
+    xs = np.empty(max_out)
+    ys = np.empty(max_out)
+    gs = np.full((max_out, 4), -1, dtype=np.int64)
+    ns = np.empty(max_out, dtype=np.int64)
+    cells = np.empty(4, dtype=np.int64)
+    tmp = np.empty(4, dtype=np.int64)
+    n = 0
+    for i in range(ny - 1):
+        for j in range(nx - 1 + (1 if hex_grid else 0)):
+            for tri in range(2 if hex_grid else 1):
+                if not hex_grid:
+                    cells[0] = i * nx + j
+                    cells[1] = i * nx + j + 1
+                    cells[2] = (i + 1) * nx + j
+                    cells[3] = (i + 1) * nx + j + 1
+                    nc = 4
+                    x = (j + 0.5) * step
+                    y = (i + 0.5) * row_spacing
+                else:
+                    nc = 3
+                    if i % 2 == 0:
+                        if tri == 0:  # (i,j), (i,j+1), (i+1,j)
+                            a0, a1, a2 = i * nx + j, i * nx + j + 1, (i + 1) * nx + j
+                            x = (j + 0.5) * step
+                            y = (i + 1.0 / 3.0) * row_spacing
+                            ok = j + 1 < nx
+                        else:  # (i,j+1), (i+1,j), (i+1,j+1)
+                            a0, a1, a2 = i * nx + j + 1, (i + 1) * nx + j, (i + 1) * nx + j + 1
+                            x = (j + 1.0) * step
+                            y = (i + 2.0 / 3.0) * row_spacing
+                            ok = j + 1 < nx
+                    else:
+                        if tri == 0:  # (i,j), (i,j+1), (i+1,j+1)
+                            a0, a1, a2 = i * nx + j, i * nx + j + 1, (i + 1) * nx + j + 1
+                            x = (j + 1.0) * step
+                            y = (i + 1.0 / 3.0) * row_spacing
+                            ok = j + 1 < nx
+                        else:  # (i,j), (i+1,j), (i+1,j+1)
+                            a0, a1, a2 = i * nx + j, (i + 1) * nx + j, (i + 1) * nx + j + 1
+                            x = (j + 0.5) * step
+                            y = (i + 2.0 / 3.0) * row_spacing
+                            ok = j + 1 < nx
+                    if not ok:
+                        continue
+                    cells[0] = a0
+                    cells[1] = a1
+                    cells[2] = a2
+                m = _junction_at(labels, cells, nc, tmp)
+                if m >= 3 and n < max_out:
+                    xs[n] = x
+                    ys[n] = y
+                    for t in range(m):
+                        gs[n, t] = tmp[t]
+                    ns[n] = m
+                    n += 1
+    return xs[:n], ys[:n], gs[:n], ns[:n]

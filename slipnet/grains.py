@@ -781,20 +781,12 @@ def build_grain_graph(
 
     # chains of edges → polylines
     m_edges = ea.size
-    vmax = int(max(v0.max(initial=0), v1.max(initial=0))) + 1
-    inc_v = np.concatenate((v0, v1))
-    inc_e = np.concatenate((np.arange(m_edges), np.arange(m_edges)))
-    inc_b = np.concatenate((bid, bid))
-    o2 = np.argsort(inc_b * vmax + inc_v, kind="stable")
-    inc_v, inc_e = inc_v[o2], inc_e[o2]
-    del inc_b, o2
     eorder = np.empty(m_edges, dtype=np.int64)
     first_of_chain = np.zeros(m_edges, dtype=np.bool_)
     start_v = np.zeros(m_edges, dtype=np.int64)
     end_v = np.zeros(m_edges, dtype=np.int64)
     if m_edges:
-        _k.chain_edges(bstart, v0, v1, inc_v, inc_e, eorder, first_of_chain, start_v, end_v)
-    del inc_v, inc_e
+        _k.chain_edges(bstart, v0, v1, eorder, first_of_chain, start_v, end_v)
     chain_id = np.cumsum(first_of_chain) - 1
     n_chains = int(first_of_chain.sum())
     cstart = np.flatnonzero(first_of_chain)
@@ -831,29 +823,16 @@ def build_grain_graph(
     del mx, my, tx, ty, eorder, first_of_chain, chain_id
     steps("polylines")
 
-    # triple junctions: vertices touched by edges of >= 3 distinct grains
-    vk = np.concatenate((v0, v1, v0, v1)) * max(n, 1) + np.concatenate((ga, ga, gb, gb))
-    vk.sort()
-    vk = vk[np.concatenate(([True], vk[1:] != vk[:-1]))] if vk.size else vk
-    vv, gg = vk // max(n, 1), vk % max(n, 1)
-    del vk
-    run_start = np.concatenate(([True], vv[1:] != vv[:-1])) if vv.size else np.zeros(0, dtype=bool)
-    rs_idx = np.flatnonzero(run_start)
-    run_len = np.diff(np.append(rs_idx, vv.size))
-    jsel = run_len >= 3
-    jv = vv[rs_idx[jsel]]
-    jx, jy = vxy(jv)
-    jg = np.full((jv.size, 4), -1, dtype=np.int64)
-    for r in range(4):
-        has = run_len[jsel] > r
-        jg[has, r] = gg[rs_idx[jsel][has] + r]
+    # triple junctions: cell vertices where >= 3 distinct grains meet (2x2 cells on square grids,
+    # lattice triangles on hex grids), one pass over the label image
+    jx, jy, jg, jn = _k.triple_junctions(labels, ny, nx_, omap.grid == "hex", omap.step, omap.row_spacing,
+                                         m_edges + 16)  # each junction has >= 2 boundary edges
     tj = pd.DataFrame({
-        "junction_id": np.arange(jv.size), "x_um": jx + omap.origin[0], "y_um": jy + omap.origin[1],
-        "n_grains": run_len[jsel].astype(np.int64),
-        "grain_1": jg[:, 0], "grain_2": jg[:, 1], "grain_3": jg[:, 2], "grain_4": jg[:, 3],
+        "junction_id": np.arange(jx.size), "x_um": jx + omap.origin[0], "y_um": jy + omap.origin[1],
+        "n_grains": jn, "grain_1": jg[:, 0], "grain_2": jg[:, 1], "grain_3": jg[:, 2], "grain_4": jg[:, 3],
     })
-    del vv, gg, v0, v1
-    log(f"{nbd} boundaries, {n_chains} boundary lines, {jv.size} triple junctions")
+    del v0, v1
+    log(f"{nbd} boundaries, {n_chains} boundary lines, {jx.size} triple junctions")
     steps("junctions")
 
     # 7. tables

@@ -471,6 +471,27 @@ def test_triple_junction_of_three_grains():
     assert sorted([tuple(line[0]), tuple(line[-1])]) == [(5.5, 4.5), (5.5, 9.5)]
 
 
+def test_hex_triple_junctions_at_lattice_triangle_centres():
+    # three 120° sectors around a point of a hex grid meet at the centroid of a lattice triangle
+    om0 = region_map(np.zeros((14, 14), int), [[1.0, 0, 0, 0]], grid="hex", step=1.0)
+    x, y = om0.coordinates()
+    ang = np.degrees(np.arctan2(y - 6.3, x - 6.6)) % 360
+    region = (ang // 120).astype(int)
+    quats = random_quats(3, seed=21)
+    gg = build_grain_graph(region_map(region, quats, grid="hex"), 5.0)
+    assert gg.n_grains == 3
+    tj = gg.triple_junctions
+    assert len(tj) == 1 and tj["n_grains"].iloc[0] == 3
+    # the junction is a cell vertex: equidistant (step/√3) from the three surrounding points
+    d = np.hypot(x - tj["x_um"].iloc[0], y - tj["y_um"].iloc[0]).ravel()
+    np.testing.assert_allclose(np.sort(d)[:3], 1 / SQ3, atol=1e-9)
+    assert len({int(gg.labels.ravel()[k]) for k in np.argsort(d)[:3]}) == 3
+    # kernel and pure-Python versions agree
+    args = (gg.labels.ravel().astype(np.int32), 14, 14, True, 1.0, om0.row_spacing, 64)
+    for u, v in zip(gk.triple_junctions(*args), gk.triple_junctions.py_func(*args), strict=True):
+        np.testing.assert_array_equal(u, v)
+
+
 def test_grain_shape_against_scikit_image_regionprops():
     from skimage.measure import regionprops
 
@@ -598,16 +619,12 @@ def test_chain_kernel_py_func_agrees():
     key, ea, eb = key[o], ea[o], eb[o]
     _, bstart = np.unique(key, return_index=True)
     bstart = np.append(bstart, key.size)
-    bid = np.repeat(np.arange(bstart.size - 1), np.diff(bstart))
     *_, v0, v1, _, _ = _edge_geometry(ea, eb, om)
-    iv = np.concatenate((v0, v1))
-    ie = np.concatenate((np.arange(ea.size), np.arange(ea.size)))
-    o2 = np.argsort(np.concatenate((bid, bid)) * 10**9 + iv, kind="stable")
     outs = []
     for fn in (gk.chain_edges, gk.chain_edges.py_func):
         res = [np.empty(ea.size, np.int64), np.zeros(ea.size, bool), np.zeros(ea.size, np.int64),
                np.zeros(ea.size, np.int64)]
-        fn(bstart, v0, v1, iv[o2], ie[o2], *res)
+        fn(bstart, v0, v1, *res)
         outs.append(res)
     for x, y in zip(*outs, strict=True):
         assert np.array_equal(x, y)
@@ -714,3 +731,18 @@ def test_bad_inputs_refused():
         build_grain_graph(region_map(-np.ones((3, 3), int), [[1.0, 0, 0, 0]]), 10.0)
     with pytest.raises(ParameterError, match="empty"):
         build_grain_graph(make_map(np.zeros((0, 4, 4))), 10.0)
+
+
+def test_cli_grains_writes_outputs_and_reports_errors(tmp_path, capsys):
+    from slipnet.cli import main
+    from slipnet.io import write_map
+
+    om, _, _ = voronoi_map(40, 50, 10, seed=4)
+    path = write_map(om, tmp_path / "m.npz")
+    out = tmp_path / "out"
+    assert main(["grains", str(path), "--out", str(out), "--fill", "--min-points", "2", "--subgrain", "2"]) == 0
+    assert {"grains.csv", "boundaries.csv", "grain_graph.graphml", "grain_labels.npy", "grain_map.png",
+            "summary.md", "subgrain_boundaries.csv"} <= {p.name for p in out.iterdir()}
+    assert (np.load(out / "grain_labels.npy") >= 0).all()
+    assert main(["grains", str(path), "--threshold", "70"]) == 2
+    assert "threshold_deg should lie in" in capsys.readouterr().err
