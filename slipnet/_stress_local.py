@@ -94,6 +94,30 @@ def _grain_means(values: np.ndarray, labels: np.ndarray, n_grains: int) -> tuple
     return mean, std, cnt
 
 
+def _aligned_map(field: StressField, gg, labels: np.ndarray) -> OrientationMap:
+    """The field's map with every grain point's quaternion replaced by its cubic equivalent nearest
+    the grain mean (``gg.mean_quats``), so system indices mean the same slip system at every point of
+    a grain and in the grain-level (uniform-stress) tables built from the mean orientations."""
+    from dataclasses import replace
+
+    from .orientation import nearest_equivalent
+
+    omap = field.omap
+    mq = getattr(gg, "mean_quats", None)
+    if mq is None:
+        return omap
+    mq = np.asarray(mq, dtype=float)
+    q = np.array(omap.quats, dtype=float)
+    sel = (labels >= 0) & omap.indexed
+    if sel.any():
+        ref = mq[labels[sel]]
+        ok = np.all(np.isfinite(ref), axis=1)
+        idx = np.flatnonzero(sel.ravel())[ok]
+        flat = q.reshape(-1, 4)
+        flat[idx] = nearest_equivalent(flat[idx], ref[ok])
+    return replace(omap, quats=q)
+
+
 def _labels(field: StressField, gg) -> np.ndarray:
     labels = np.asarray(gg.labels)
     if labels.shape != field.shape:
@@ -117,10 +141,12 @@ def grain_schmid_factors(field: StressField, gg, systems=None) -> np.ndarray:
     -------
     (n_grains, n_systems) ndarray
         Mean of ``τ / σ_applied`` over each grain's points (NaN for a grain with no solid point).
+        Each point's orientation is first taken as its cubic equivalent nearest ``gg.mean_quats``,
+        so system α here is system α of the uniform-stress factors of the grain mean orientation.
     """
     labels = _labels(field, gg)
     n_grains = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
-    local = local_schmid_factors(field, getattr(gg, "omap", None) or field.omap, systems)
+    local = local_schmid_factors(field, _aligned_map(field, gg, labels), systems)
     mean, _std, _cnt = _grain_means(local, labels, n_grains)
     return mean
 
@@ -138,7 +164,7 @@ def grain_stress_table(field: StressField, gg, systems=None) -> pd.DataFrame:
     systems = _default_systems(omap, systems)
     labels = _labels(field, gg)
     n_grains = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
-    local = local_schmid_factors(field, omap, systems)
+    local = local_schmid_factors(field, _aligned_map(field, gg, labels), systems)
     mean, std, cnt = _grain_means(local, labels, n_grains)
     nstress = np.where(field.compliant, np.nan, field.normal_stress())[..., None]
     ns_mean, ns_std, _ = _grain_means(nstress, labels, n_grains)

@@ -506,3 +506,22 @@ def test_cli_stress_writes_outputs(tmp_path, capsys):
     assert rc == 0 and "periodic" in out and (tmp_path / "o" / "summary.md").exists()
     assert main(["stress", str(tmp_path / "m.npz"), "--tol", "0"]) == 2
     assert "tol should lie in" in capsys.readouterr().err
+
+
+def test_grain_factors_use_the_equivalent_nearest_the_grain_mean():
+    # half of the points store a cubic-symmetry equivalent of the same orientation: the grain means
+    # must still be the Schmid factors of the mean orientation system by system (uniform stress here)
+    from slipnet.orientation import CUBIC_OPERATORS, quat_multiply
+
+    q = quat_from_euler(np.array([25.0, 40.0, 15.0]))
+    q_eq = quat_multiply(CUBIC_OPERATORS[7], q)
+    quats = np.empty((6, 6, 4))
+    quats[:, :3], quats[:, 3:] = q, q_eq
+    omap = OrientationMap(quats, np.zeros((6, 6), int), np.ones((6, 6)), np.ones((6, 6), bool), 1.0)
+    gg = types.SimpleNamespace(labels=np.zeros((6, 6), int), omap=omap, mean_quats=q[None])
+    sys_ = _catalogue("bcc")
+    f = solve_elastic(omap, [1, 0.2, 0.1], stress=100.0)
+    axis = np.array([1, 0.2, 0.1]) / np.linalg.norm([1, 0.2, 0.1])
+    np.testing.assert_allclose(grain_schmid_factors(f, gg, sys_)[0], schmid_with_orix(q, axis, sys_)[0], atol=1e-9)
+    table = grain_stress_table(f, gg, sys_)
+    assert abs(table["local_minus_uniform"].iloc[0]) < 1e-9
