@@ -210,20 +210,22 @@ def _line_in_boundary(n, gbn, out):
         out[2] /= s
 
 
-@nb.njit(cache=True, parallel=True)
-def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sys_plane, sys_dir,
-                          normals, directions, gb_normal, burgers, eff_scale,
+# reassociation lets LLVM vectorise the max reduction over system pairs; no "nnan"/"ninf", so the NaN
+# tests of unindexed grains stay intact
+_REDUCE_MATH = {"reassoc", "nsz", "contract"}
+
+
+@nb.njit(cache=True, parallel=True, fastmath=_REDUCE_MATH)
+def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, normals, directions, gb_normal, burgers, eff_scale,
                           mp_in, out_sys, score, score_sys, resid, shen, mp_max):
     """Transmission summaries for every boundary and both directions.
 
     Parameters (all arrays C-contiguous)
     ------------------------------------
     quats (n_grains, 4); grain_a, grain_b (n_b,) int grain ids; eff (n_grains, n_sys) effective
-    Schmid factors; in_sys (n_grains,) most-stressed system per grain; planes (n_p, 3) and dirs
-    (n_d, 3) the distinct unit plane normals / directions, sys_plane, sys_dir (n_sys,) indices into
-    them; normals, directions (n_sys, 3); gb_normal (n_b, 3) boundary-plane normals (sample frame);
-    burgers (n_b,) Burgers vector length; eff_scale the factor that maps effective Schmid factors
-    onto [0, 1].
+    Schmid factors; in_sys (n_grains,) most-stressed system per grain; normals, directions
+    (n_sys, 3) crystal frame; gb_normal (n_b, 3) boundary-plane normals (sample frame); burgers
+    (n_b,) Burgers vector length; eff_scale the factor that maps effective Schmid factors onto [0, 1].
 
     Outputs, column 0 = A→B, column 1 = B→A: mp_in, score, resid, shen (n_b, 2) float; out_sys,
     score_sys (n_b, 2) int; mp_max (n_b,) the largest |m′| over all system pairs.
@@ -231,14 +233,12 @@ def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sy
     Notes
     -----
     m′ = (n_A·n_B)(d_A·d_B) with both in the sample frame equals ``(n_A · R n_B)(d_A · R d_B)``
-    with ``R = g_A g_Bᵀ`` in crystal A's frame, so the per-boundary work is one 3×3 product and
-    the dot products of the *distinct* planes and directions (for 48 BCC systems: 24 planes and
-    4 directions), then one product per system pair.
+    with ``R = g_A g_Bᵀ`` in crystal A's frame, so per boundary B's normals and directions are
+    rotated once into A's frame (stored components-first so the inner loop over B's systems is
+    contiguous and vectorises), then each pair costs two 3-dot products and a product.
     """
     nb_ = grain_a.shape[0]
-    npl = planes.shape[0]
-    nd = dirs.shape[0]
-    ns = sys_plane.shape[0]
+    ns = normals.shape[0]
     blk_size = 64
     nblk = (nb_ + blk_size - 1) // blk_size
     for blk in nb.prange(nblk):
@@ -246,9 +246,8 @@ def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sy
         ga = np.empty((3, 3))
         gb = np.empty((3, 3))
         r = np.empty((3, 3))
-        pdot = np.empty((npl, npl))
-        ddot = np.empty((nd, nd))
-        w = np.empty(3)
+        rn = np.empty((3, ns))
+        rd = np.empty((3, ns))
         na = np.empty(3)
         nbv = np.empty(3)
         la = np.empty(3)
@@ -271,29 +270,23 @@ def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sy
             for i in range(3):
                 for j in range(3):
                     r[i, j] = ga[i, 0] * gb[j, 0] + ga[i, 1] * gb[j, 1] + ga[i, 2] * gb[j, 2]
-            # plane and direction dot products, crystal A frame: P[pa, pb] = p_pa · R p_pb
-            for j in range(npl):
+            for j in range(ns):
                 for i in range(3):
-                    w[i] = r[i, 0] * planes[j, 0] + r[i, 1] * planes[j, 1] + r[i, 2] * planes[j, 2]
-                for i in range(npl):
-                    pdot[i, j] = planes[i, 0] * w[0] + planes[i, 1] * w[1] + planes[i, 2] * w[2]
-            for j in range(nd):
-                for i in range(3):
-                    w[i] = r[i, 0] * dirs[j, 0] + r[i, 1] * dirs[j, 1] + r[i, 2] * dirs[j, 2]
-                for i in range(nd):
-                    ddot[i, j] = dirs[i, 0] * w[0] + dirs[i, 1] * w[1] + dirs[i, 2] * w[2]
+                    rn[i, j] = r[i, 0] * normals[j, 0] + r[i, 1] * normals[j, 1] + r[i, 2] * normals[j, 2]
+                    rd[i, j] = r[i, 0] * directions[j, 0] + r[i, 1] * directions[j, 1] + r[i, 2] * directions[j, 2]
+            rn0, rn1, rn2 = rn[0], rn[1], rn[2]
+            rd0, rd1, rd2 = rd[0], rd[1], rd[2]
             best = 0.0
             for i in range(ns):
-                pi = sys_plane[i]
-                di = sys_dir[i]
+                a0, a1, a2 = normals[i, 0], normals[i, 1], normals[i, 2]
+                b0, b1, b2 = directions[i, 0], directions[i, 1], directions[i, 2]
                 for j in range(ns):
-                    v = abs(pdot[pi, sys_plane[j]] * ddot[di, sys_dir[j]])
-                    if v > best:
-                        best = v
+                    v = abs((a0 * rn0[j] + a1 * rn1[j] + a2 * rn2[j]) * (b0 * rd0[j] + b1 * rd1[j] + b2 * rd2[j]))
+                    best = max(best, v)
             mp_max[k] = best
             gbn = gb_normal[k]
             for c in range(2):
-                # c = 0: A -> B (incoming system in A, outgoing in B); c = 1: B -> A.
+                # c = 0: A -> B (incoming system i in A, outgoing j in B); c = 1: B -> A.
                 src = a if c == 0 else b
                 dst = b if c == 0 else a
                 i = in_sys[src]
@@ -301,23 +294,37 @@ def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, planes, dirs, sy
                 bj = -1
                 bs = -1.0
                 bsj = -1
-                for j in range(ns):
-                    if c == 0:
-                        v = abs(pdot[sys_plane[i], sys_plane[j]] * ddot[sys_dir[i], sys_dir[j]])
-                    else:
-                        v = abs(pdot[sys_plane[j], sys_plane[i]] * ddot[sys_dir[j], sys_dir[i]])
-                    if v > bm:
-                        bm = v
-                        bj = j
-                    sv = v * eff[dst, j] * eff_scale
-                    if sv > bs:
-                        bs = sv
-                        bsj = j
+                if c == 0:
+                    a0, a1, a2 = normals[i, 0], normals[i, 1], normals[i, 2]
+                    b0, b1, b2 = directions[i, 0], directions[i, 1], directions[i, 2]
+                    for j in range(ns):
+                        v = abs((a0 * rn0[j] + a1 * rn1[j] + a2 * rn2[j]) * (b0 * rd0[j] + b1 * rd1[j] + b2 * rd2[j]))
+                        if v > bm:
+                            bm = v
+                            bj = j
+                        sv = v * eff[dst, j] * eff_scale
+                        if sv > bs:
+                            bs = sv
+                            bsj = j
+                    dd = b0 * rd0[bj] + b1 * rd1[bj] + b2 * rd2[bj]
+                else:
+                    w0, w1, w2 = rn0[i], rn1[i], rn2[i]
+                    u0, u1, u2 = rd0[i], rd1[i], rd2[i]
+                    for j in range(ns):
+                        v = abs((normals[j, 0] * w0 + normals[j, 1] * w1 + normals[j, 2] * w2)
+                                * (directions[j, 0] * u0 + directions[j, 1] * u1 + directions[j, 2] * u2))
+                        if v > bm:
+                            bm = v
+                            bj = j
+                        sv = v * eff[dst, j] * eff_scale
+                        if sv > bs:
+                            bs = sv
+                            bsj = j
+                    dd = directions[bj, 0] * u0 + directions[bj, 1] * u1 + directions[bj, 2] * u2
                 mp_in[k, c] = bm
                 out_sys[k, c] = bj
                 score[k, c] = bs
                 score_sys[k, c] = bsj
-                dd = ddot[sys_dir[i], sys_dir[bj]] if c == 0 else ddot[sys_dir[bj], sys_dir[i]]
                 # |b_in − b_out| with the sign of b_out that minimises it: |b|·sqrt(2 − 2|d_in·d_out|)
                 x = 2.0 - 2.0 * abs(dd)
                 resid[k, c] = burgers[k] * math.sqrt(x if x > 0.0 else 0.0)

@@ -152,7 +152,7 @@ class SlipSystems:
         Relative critical resolved shear stress for negative τ (equal to ``crss`` except {112}).
     planes, directions_distinct : (n_p, 3), (n_d, 3) ndarray
         The distinct unit plane normals and directions; ``plane_index`` / ``direction_index``
-        (n_sys,) point into them (used by the transmission kernel).
+        (n_sys,) point into them (two systems on one plane share a surface trace).
     burgers_length : float
         Burgers vector length in lattice parameters (√3/2 BCC, 1/√2 FCC).
     """

@@ -224,8 +224,7 @@ def transmission_summaries(grain_quats, grain_a, grain_b, systems: SlipSystems, 
         "shen": np.empty((n_b, 2)), "m_prime_max": np.empty(n_b),
     }
     _k.boundary_summary_rows(
-        qk, ga, gb, eff, in_sys, systems.planes, systems.directions_distinct, systems.plane_index,
-        systems.direction_index, systems.normals, systems.directions, gbn, burgers, 1.0 / systems.max_effective,
+        qk, ga, gb, eff, in_sys, systems.normals, systems.directions, gbn, burgers, 1.0 / systems.max_effective,
         out["m_prime"], out["slip_out"], out["score"], out["score_system"], out["residual_burgers"], out["shen"],
         out["m_prime_max"],
     )

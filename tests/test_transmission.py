@@ -126,8 +126,7 @@ def test_summaries_match_the_full_matrices_and_py_func():
     for fn in (K.boundary_summary_rows, K.boundary_summary_rows.py_func):
         o = [np.empty((29, 2)), np.empty((29, 2), np.int64), np.empty((29, 2)), np.empty((29, 2), np.int64),
              np.empty((29, 2)), np.empty((29, 2)), np.empty(29)]
-        fn(q, ga, gb, eff_c, ins, SYS.planes, SYS.directions_distinct, SYS.plane_index, SYS.direction_index,
-           SYS.normals, SYS.directions, gbn, np.full(29, 0.25), 2.0, *o)
+        fn(q, ga, gb, eff_c, ins, SYS.normals, SYS.directions, gbn, np.full(29, 0.25), 2.0, *o)
         outs.append(o)
     for x, y in zip(*outs, strict=True):
         np.testing.assert_allclose(x, y)
