@@ -437,6 +437,58 @@ def boundary_pairs(a, b, labels):
 
 
 @nb.njit(cache=True)
+def grain_means_of(labels, values, n):
+    """Mean of the finite ``values`` (float32 per point) of each grain; NaN where a grain has none."""
+    s = np.zeros(n)
+    c = np.zeros(n, dtype=np.int64)
+    for p in range(labels.shape[0]):
+        g = labels[p]
+        v = values[p]
+        if g >= 0 and v == v:
+            s[g] += v
+            c[g] += 1
+    out = np.full(n, np.nan)
+    for g in range(n):
+        if c[g] > 0:
+            out[g] = s[g] / c[g]
+    return out
+
+
+@nb.njit(cache=True, parallel=True)
+def edge_geometry(ea, eb, nx, step, hex_grid, half, ys, off, width, mx, my, tx, ty, v0, v1):
+    """Midpoint (µm from point 0), unit edge direction and the two integer vertex ids of the cell
+    edge shared by each point pair. Vertices lie on a lattice: x in multiples of step/2, y in
+    multiples of ``1/ys`` (step/2 on square grids, row spacing/3 on hex grids)."""
+    rs = step * (math.sqrt(3.0) / 2.0 if hex_grid else 1.0)
+    for k in nb.prange(ea.shape[0]):
+        ia = ea[k] // nx
+        ja = ea[k] - ia * nx
+        ib = eb[k] // nx
+        jb = eb[k] - ib * nx
+        xa = ja * step + (0.5 * step if (hex_grid and ia % 2 == 1) else 0.0)
+        xb = jb * step + (0.5 * step if (hex_grid and ib % 2 == 1) else 0.0)
+        ya = ia * rs
+        yb = ib * rs
+        cx = 0.5 * (xa + xb)
+        cy = 0.5 * (ya + yb)
+        dx = xb - xa
+        dy = yb - ya
+        nrm = math.sqrt(dx * dx + dy * dy)
+        ux = -dy / nrm
+        uy = dx / nrm
+        mx[k] = cx
+        my[k] = cy
+        tx[k] = ux
+        ty[k] = uy
+        px = cx + half * ux
+        py = cy + half * uy
+        v0[k] = (np.int64(round(py * ys)) + off) * width + (np.int64(round(px * 2.0 / step)) + 2)
+        px = cx - half * ux
+        py = cy - half * uy
+        v1[k] = (np.int64(round(py * ys)) + off) * width + (np.int64(round(px * 2.0 / step)) + 2)
+
+
+@nb.njit(cache=True)
 def kam_sums(a, b, angle, labels, threshold, sums, counts):
     """Accumulate, per point, the angles of its pairs inside one grain and below ``threshold``."""
     for k in range(a.shape[0]):

@@ -514,27 +514,14 @@ def _edge_geometry(ea: np.ndarray, eb: np.ndarray, omap: OrientationMap):
     step, rs = omap.step, omap.row_spacing
     hexg = omap.grid == "hex"
 
-    def xy(idx):
-        i, j = np.divmod(idx.astype(np.int64), nx_)
-        x = j * step + (0.5 * step * (i % 2) if hexg else 0.0)
-        return x, i * rs
-
-    xa, ya = xy(ea)
-    xb, yb = xy(eb)
-    mx, my = 0.5 * (xa + xb), 0.5 * (ya + yb)
-    dx, dy = xb - xa, yb - ya
-    norm = np.hypot(dx, dy)
-    tx, ty = -dy / norm, dx / norm  # edge direction: perpendicular to the pair
+    m = ea.size
+    mx, my, tx, ty = (np.empty(m) for _ in range(4))
+    v0, v1 = np.empty(m, dtype=np.int64), np.empty(m, dtype=np.int64)
     half = 0.5 * step / (math.sqrt(3.0) if hexg else 1.0)
     # vertices sit on a lattice: x in multiples of step/2; y in multiples of step/2 (square) or rs/3 (hex)
     ys, off = (3.0 / rs, 3) if hexg else (2.0 / step, 2)
     width = 2 * nx_ + 8
-
-    def vid(vx, vy):
-        return (np.rint(vy * ys).astype(np.int64) + off) * width + (np.rint(vx * 2.0 / step).astype(np.int64) + 2)
-
-    v0 = vid(mx + half * tx, my + half * ty)
-    v1 = vid(mx - half * tx, my - half * ty)
+    _k.edge_geometry(ea, eb, nx_, step, hexg, half, ys, off, width, mx, my, tx, ty, v0, v1)
 
     def vxy(v):
         r, c = np.divmod(v, width)
@@ -735,10 +722,7 @@ def build_grain_graph(
     means = _grain_means(qflat, valid, labels, n, first)
     mis = np.empty(npts, dtype=np.float32)
     _k.point_to_reference(qflat, valid, labels, means, mis)
-    lab_valid = np.where(valid, labels, -1)
-    ok = lab_valid >= 0
-    gos = np.bincount(lab_valid[ok], weights=mis[ok], minlength=n) / np.maximum(sums[:, 6], 1)
-    del ok
+    gos = _k.grain_means_of(labels, mis, n)  # mis is NaN where a point has no orientation
     ksum = np.zeros(npts)
     kcnt = np.zeros(npts, dtype=np.int32)
     _k.kam_sums(a, b, ang, labels, np.float32(thr), ksum, kcnt)
@@ -850,9 +834,7 @@ def build_grain_graph(
     major_angle = np.degrees(0.5 * np.arctan2(2.0 * vxy_, vxx - vyy)) % 180.0
     area = cnt * omap.point_area
     eul = euler_from_quat(means) if n else np.zeros((0, 3))
-    kam_flat_ok = np.isfinite(kam)
-    kam_grain = np.bincount(labels[kam_flat_ok], weights=kam[kam_flat_ok], minlength=n) / np.maximum(
-        np.bincount(labels[kam_flat_ok], minlength=n), 1)
+    kam_grain = _k.grain_means_of(labels, kam, n)
     n_nb = np.bincount(np.concatenate((grain_a, grain_b)), minlength=n)
     phase_names = np.array([p.name for p in omap.phases], dtype=object)
     x0, y0 = omap.origin
