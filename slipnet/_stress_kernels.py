@@ -90,6 +90,38 @@ def apply_stiffness(c, eps, out):
 
 
 @nb.njit(cache=True, parallel=True)
+def direction_stiffness(c, p, r, beta, out):
+    """CG direction and its stress in one pass: ``p = r + β p``, ``out = C p``; returns ``p · C p``.
+
+    Since ``p`` is compatible and the projection G is orthogonal, ``p · G(C p) = p · C p``: the
+    curvature CG needs comes out of this loop, saving a pass over the fields.
+    """
+    n = p.shape[1]
+    s = 0.0
+    for q in nb.prange(n):
+        e0 = r[0, q] + beta * p[0, q]
+        e1 = r[1, q] + beta * p[1, q]
+        e2 = r[2, q] + beta * p[2, q]
+        e3 = r[3, q] + beta * p[3, q]
+        e4 = r[4, q] + beta * p[4, q]
+        e5 = r[5, q] + beta * p[5, q]
+        p[0, q] = e0
+        p[1, q] = e1
+        p[2, q] = e2
+        p[3, q] = e3
+        p[4, q] = e4
+        p[5, q] = e5
+        t = 0.0
+        for a in range(6):
+            v = (c[q, a, 0] * e0 + c[q, a, 1] * e1 + c[q, a, 2] * e2
+                 + c[q, a, 3] * e3 + c[q, a, 4] * e4 + c[q, a, 5] * e5)
+            out[a, q] = v
+            t += p[a, q] * v
+        s += t
+    return s
+
+
+@nb.njit(cache=True, parallel=True)
 def apply_stiffness_eigen(c, eps, eig, out):
     """``out[:, p] = C[p] · (eps[:, p] − eig[:, p])`` (stress with an eigenstrain)."""
     n = eps.shape[1]
@@ -173,15 +205,6 @@ def cg_update(x, r, p, ap, alpha):
             t += rk * rk
         s += t
     return s
-
-
-@nb.njit(cache=True, parallel=True)
-def cg_direction(p, r, beta):
-    """``p = r + β p``."""
-    n = p.shape[1]
-    for q in nb.prange(n):
-        for k in range(6):
-            p[k, q] = r[k, q] + beta * p[k, q]
 
 
 @nb.njit(cache=True, parallel=True)

@@ -453,10 +453,13 @@ class _Spectral:
                     f"the stress solve did not converge: residual {res:.3g} > tol {tol:g} after {its} iterations "
                     f"(max_iter={max_iter}); raise max_iter, relax tol or raise compliant_ratio"
                 )
-            p = r.copy()
+            p = np.zeros_like(r)
+            beta = 0.0
             while its < max_iter:
-                ap = self.apply(p)
-                pap = _k.dot(p, ap)
+                # three passes per iteration: p = r + βp with C p and p·Cp; FFT, project, inverse FFT;
+                # the x and r updates with the new r·r
+                pap = _k.direction_stiffness(self.c, p, r, beta, self._sig)
+                ap = self.project(self._sig)
                 its += 1
                 if not (pap > 0.0 and math.isfinite(pap)):
                     raise NumericalError(
@@ -467,7 +470,7 @@ class _Spectral:
                 rr_new = _k.cg_update(x, r, p, ap, alpha)
                 if math.sqrt(rr_new / n) / scale <= 0.5 * tol:
                     break
-                _k.cg_direction(p, r, rr_new / rr)
+                beta = rr_new / rr
                 rr = rr_new
             # loop back: recompute the true residual (the CG recurrence drifts in round-off)
 
