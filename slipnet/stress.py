@@ -208,7 +208,7 @@ def directional_modulus(constants: CubicConstants, direction) -> float:
     """Young's modulus (GPa) of a cubic crystal along a crystal direction.
 
     ``1/E = S11 − 2 (S11 − S12 − S44/2)(l1² l2² + l2² l3² + l3² l1²)`` (Nye 1957, *Physical
-    Properties of Crystals*, Oxford), with the compliances from the stiffnesses.
+    Properties of Crystals*, Clarendon Press), with the compliances from the stiffnesses.
     """
     u = check_vector(direction, "direction")
     s = np.linalg.inv(np.array([[constants.c11, constants.c12, constants.c12],
