@@ -506,13 +506,13 @@ def kam_sums(a, b, angle, labels, threshold, sums, counts):
 
 
 # ----------------------------------------------------------------------------- boundary chains
-@nb.njit(cache=True, parallel=True)
+@nb.njit(cache=True)
 def chain_edges(bstart, ev0, ev1, order, first_of_chain, start_v, end_v):
     """Order the edges of every boundary into chains (polylines) through shared vertices.
 
     Edges of boundary k occupy ``[bstart[k], bstart[k+1])`` with end vertices ``ev0``/``ev1``.
     Per boundary, the 2 incidences (vertex, edge) of each edge are sorted by vertex locally (a
-    boundary has few edges, and boundaries run in parallel). Chains start at vertices of odd
+    boundary has few edges). Chains start at vertices of odd
     degree (ends of open lines), then at any edge left (closed loops). Writes the edge order
     into ``order``, flags the first edge of each chain, and stores each chain's start vertex and
     end vertex at the position of its first edge.
@@ -520,7 +520,7 @@ def chain_edges(bstart, ev0, ev1, order, first_of_chain, start_v, end_v):
     nb_ = bstart.shape[0] - 1
     m = ev0.shape[0]
     used = np.zeros(m, dtype=np.bool_)
-    for k in nb.prange(nb_):
+    for k in range(nb_):
         s0 = bstart[k]
         cnt = bstart[k + 1] - s0
         lv_raw = np.empty(2 * cnt, dtype=np.int64)
@@ -653,6 +653,14 @@ def triple_junctions(labels, ny, nx, hex_grid, step, row_spacing, max_out):
                     cells[0] = a0
                     cells[1] = a1
                     cells[2] = a2
+                g0 = labels[cells[0]]
+                same = True
+                for t in range(1, nc):
+                    if labels[cells[t]] != g0:
+                        same = False
+                        break
+                if same:  # inside one grain (the usual case): nothing meets here
+                    continue
                 m = _junction_at(labels, cells, nc, tmp)
                 if m >= 3 and n < max_out:
                     xs[n] = x
