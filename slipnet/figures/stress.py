@@ -24,14 +24,16 @@ __all__ = [
 _NAMES = "xyz"
 
 
-def _caption(fig, text: str) -> None:
-    fig.text(0.5, -0.02, "\n".join(textwrap.wrap(text, 110)), ha="center", va="top", fontsize=7, color="0.25")
+def _caption(ax, text: str) -> None:
+    # under the x label of the map axes (not the figure), so no gap opens when the map is flat
+    ax.text(0.5, -0.16, "\n".join(textwrap.wrap(text, 110)), transform=ax.transAxes, ha="center", va="top",
+            fontsize=7, color="0.25")
 
 
 def _map_axes(field, ax):
     if ax is None:
         ny, nx = field.shape
-        fig, ax = plt.subplots(figsize=(7.0, 7.0 * ny / max(nx, 1) * 0.9 + 0.8))
+        fig, ax = plt.subplots(figsize=(7.0, 5.0 * ny / max(nx, 1) + 1.2))  # the map is about 5 in wide
     else:
         fig = ax.figure
     return fig, ax
@@ -86,7 +88,7 @@ def plot_stress_component(field, component="load", ax=None):
     _show(ax, field, vals, DIVERGING_CMAP, norm, f"{name} (MPa)")
     ax.set_title(f"Local {name}; applied {field.applied_stress:g} MPa along "
                  f"({field.load_axis[0]:.2f}, {field.load_axis[1]:.2f}, {field.load_axis[2]:.2f})", fontsize=10)
-    _caption(fig, field.assumptions)
+    _caption(ax, field.assumptions)
     return fig
 
 
@@ -99,7 +101,7 @@ def plot_max_local_schmid(field, systems=None, ax=None):
     vals = np.where(np.isfinite(vals), vals, np.nan)
     _show(ax, field, vals, SCALAR_CMAP, None, "largest local Schmid factor |τ|/σ (–)")
     ax.set_title("Largest local Schmid factor from the full-field stress", fontsize=10)
-    _caption(fig, field.assumptions)
+    _caption(ax, field.assumptions)
     return fig
 
 
@@ -125,7 +127,7 @@ def plot_schmid_difference(field, systems=None, ax=None):
     _show(ax, field, diff, DIVERGING_CMAP, TwoSlopeNorm(vcenter=0.0, vmin=-span, vmax=span),
           "local − uniform largest Schmid factor (–)")
     ax.set_title("Largest local Schmid factor minus the uniform-stress estimate", fontsize=10)
-    _caption(fig, field.assumptions)
+    _caption(ax, field.assumptions)
     return fig
 
 
@@ -135,7 +137,7 @@ def plot_accumulated_slip(plastic, ax=None):
     fig, ax = _map_axes(field, ax)
     _show(ax, field, plastic.accumulated_slip, SCALAR_CMAP, None, "accumulated slip Σ|γ| (–)")
     ax.set_title(f"Accumulated slip after loading to {field.applied_stress:g} MPa", fontsize=10)
-    _caption(fig, field.assumptions)
+    _caption(ax, field.assumptions)
     return fig
 
 
