@@ -579,6 +579,17 @@ class _Steps:
             self.bar.close()
 
 
+def _whole(value, name: str) -> int:
+    """``value`` as an int >= 1, or a ParameterError naming ``name``."""
+    try:
+        ok = not isinstance(value, bool) and int(value) == value and value >= 1
+    except (TypeError, ValueError):
+        ok = False
+    if not ok:
+        raise ParameterError(f"{name} should be a whole number >= 1; got {value!r}")
+    return int(value)
+
+
 # ============================================================================ public entry
 def build_grain_graph(
     omap: OrientationMap,
@@ -645,17 +656,13 @@ def build_grain_graph(
         sub = check_range(subgrain_deg, "subgrain_deg", 0.0, thr, inclusive=False)
     min_points = 0
     if min_grain_size is not None:
-        if isinstance(min_grain_size, bool) or int(min_grain_size) != min_grain_size or min_grain_size < 1:
-            raise ParameterError(f"min_grain_size should be a whole number of points >= 1; got {min_grain_size!r}")
-        min_points = int(min_grain_size)
+        min_points = _whole(min_grain_size, "min_grain_size")
     if min_grain_area_um2 is not None:
         area = check_positive(min_grain_area_um2, "min_grain_area_um2")
         min_points = max(min_points, math.ceil(area / omap.point_area - 1e-9))
     max_sweeps = 1 << 30
     if fill_sweeps is not None:
-        if int(fill_sweeps) != fill_sweeps or fill_sweeps < 1:
-            raise ParameterError(f"fill_sweeps should be a whole number >= 1; got {fill_sweeps!r}")
-        max_sweeps = int(fill_sweeps)
+        max_sweeps = _whole(fill_sweeps, "fill_sweeps")
 
     log_lines: list[str] = []
 
@@ -669,7 +676,10 @@ def build_grain_graph(
     if not valid.any():
         raise ParameterError(f"the map {omap.name!r} has no indexed point (all {npts} unindexed); nothing to build")
     if min_quality is not None:
-        mq = float(min_quality)
+        try:
+            mq = float(min_quality)
+        except (TypeError, ValueError) as err:
+            raise ParameterError(f"min_quality should be a finite number; got {min_quality!r}") from err
         if not math.isfinite(mq):
             raise ParameterError(f"min_quality should be a finite number; got {min_quality!r}")
         valid = valid & (omap.quality.reshape(-1) >= mq)

@@ -721,8 +721,15 @@ def test_bad_inputs_refused():
     om = region_map(np.zeros((3, 3), int), [[1.0, 0, 0, 0]])
     with pytest.raises(ParameterError, match="subgrain_deg"):
         build_grain_graph(om, 10.0, subgrain_deg=12.0)
-    with pytest.raises(ParameterError, match="min_grain_size"):
-        build_grain_graph(om, 10.0, min_grain_size=0)
+    for bad in (0, 2.5, "x", True):
+        with pytest.raises(ParameterError, match="min_grain_size should be a whole number"):
+            build_grain_graph(om, 10.0, min_grain_size=bad)
+    with pytest.raises(ParameterError, match="fill_sweeps"):
+        build_grain_graph(om, 10.0, fill_unindexed=True, fill_sweeps=0)
+    with pytest.raises(ParameterError, match="min_grain_area_um2"):
+        build_grain_graph(om, 10.0, min_grain_area_um2=-1.0)
+    with pytest.raises(ParameterError, match="min_quality should be a finite number"):
+        build_grain_graph(om, 10.0, min_quality="high")
     with pytest.raises(ParameterError, match="min_quality"):
         build_grain_graph(om, 10.0, min_quality=5.0)
     with pytest.raises(ParameterError, match="OrientationMap"):
