@@ -114,6 +114,8 @@ def run(ny: int, nx: int, n_grains: int, orix_pairs: int | None, repeat: int = 3
     print(f"map {ny} x {nx} ({ny * nx / 1e6:.0f} M points, {n_grains} seeds), generated in {t_map:.1f} s")
     print(f"  build_grain_graph (best of {repeat}): {t_build:.2f} s -> {gg.n_grains} grains, "
           f"{len(gg.boundaries)} boundaries, {len(gg.triple_junctions)} triple junctions")
+    steps = ", ".join(f"{k} {v:.2f}" for k, v in gg.settings["timings_s"].items())
+    print(f"  steps of the traced run (s): {steps}")
     scaled = "" if orix_pairs is None else f" (timed on {n_timed} pairs, scaled per pair)"
     print(f"  orix angle_with, neighbour pairs only: {t_orix:.2f} s{scaled}")
     print(f"  ratio orix pairs / whole slipnet build: {t_orix / t_build:.1f}x (target >= 10x)")
