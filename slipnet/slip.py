@@ -57,6 +57,7 @@ __all__ = [
     "SlipSystems",
     "effective_schmid",
     "grain_schmid_table",
+    "local_grain_factors",
     "plane_inclinations",
     "point_schmid_maps",
     "resolved_shear",
@@ -68,6 +69,9 @@ __all__ = [
     "taylor_factor",
     "write_slip_outputs",
 ]
+
+#: ``factor_source`` value of tables made with local factors from a stress field.
+LOCAL_SOURCE = "local stress field"
 
 #: Slip families known per structure: label → (plane indices, direction indices).
 FAMILIES: dict[str, dict[str, tuple[tuple[int, int, int], tuple[int, int, int]]]] = {
@@ -607,7 +611,61 @@ def grain_quats_for(gg, systems: SlipSystems) -> np.ndarray:
     return q
 
 
-def grain_schmid_table(gg, load_axis, systems: SlipSystems, *, factors=None, taylor: bool = False) -> pd.DataFrame:
+def local_grain_factors(gg, load_axis, systems: SlipSystems, stress_field) -> np.ndarray:
+    """Per-grain local signed Schmid factors from a full-field stress solution.
+
+    The grain means of ``τ / σ_applied`` from :func:`slipnet.stress.grain_schmid_factors`, laid
+    out like the uniform-stress factors of :func:`grain_quats_for` (NaN rows for grains of another
+    structure than ``systems``, or with no solid point).
+
+    Parameters
+    ----------
+    gg
+        The :class:`slipnet.grains.GrainGraph` of the map the field was solved on.
+    load_axis : (3,) array_like
+        Map frame; must be parallel (or anti-parallel) to ``stress_field.load_axis``.
+    systems
+        Catalogue.
+    stress_field
+        A :class:`slipnet.stress.StressField` on ``gg.omap``.
+
+    Returns
+    -------
+    (n_grains, n_sys) ndarray
+        Dimensionless signed local Schmid factors.
+    """
+    from .stress import grain_schmid_factors
+
+    systems = _check_systems(systems)
+    load = check_vector(load_axis, "load_axis")
+    field_axis = getattr(stress_field, "load_axis", None)
+    if field_axis is None or not hasattr(stress_field, "assumptions"):
+        raise ParameterError(f"stress_field should be a slipnet.stress.StressField; got {type(stress_field).__name__}")
+    # a uniaxial load and its reverse give the same factors; any other axis is a different load case
+    if abs(float(np.dot(load, check_vector(field_axis, "stress_field.load_axis")))) < 1.0 - 1e-9:
+        raise ParameterError(
+            f"load_axis {np.round(load, 4).tolist()} should be the load axis the stress field was solved for "
+            f"({np.round(np.asarray(field_axis, float), 4).tolist()})")
+    local = np.asarray(grain_schmid_factors(stress_field, gg, systems), dtype=float)
+    n = _grain_quats(gg).shape[0]
+    f = np.full((n, len(systems)), np.nan)
+    k = min(n, local.shape[0])
+    f[:k] = local[:k]
+    f[~_structure_mask(gg, systems)] = np.nan
+    return f
+
+
+def _factors_or_local(gg, load_axis, systems, factors, stress_field):
+    """``factors`` unchanged, or the local factors of ``stress_field`` (not both)."""
+    if stress_field is None:
+        return factors
+    if factors is not None:
+        raise ParameterError("give either factors or stress_field, not both")
+    return local_grain_factors(gg, load_axis, systems, stress_field)
+
+
+def grain_schmid_table(gg, load_axis, systems: SlipSystems, *, factors=None, taylor: bool = False,
+                       stress_field=None) -> pd.DataFrame:
     """One row per grain: largest Schmid factor and its system, runner-up, ratio, effective factor.
 
     Parameters
@@ -622,7 +680,10 @@ def grain_schmid_table(gg, load_axis, systems: SlipSystems, *, factors=None, tay
         Signed factors to use instead of the uniform-stress ones (e.g. local factors from
         :func:`slipnet.stress.grain_schmid_factors`).
     taylor
-        Add a ``taylor_factor`` column (one LP per grain).
+        Add a ``taylor_factor`` column (one LP per grain; always for the uniform uniaxial load).
+    stress_field
+        A :class:`slipnet.stress.StressField`: use its local grain factors
+        (:func:`local_grain_factors`) instead of the uniform-stress ones; not with ``factors``.
 
     Returns
     -------
@@ -630,10 +691,12 @@ def grain_schmid_table(gg, load_axis, systems: SlipSystems, *, factors=None, tay
         Columns ``grain``, ``schmid_max``, ``system_max``, ``label_max``, ``family_max``,
         ``sense_max`` (+1/−1; +1 twinning sense for {112}), ``schmid_second``, ``system_second``,
         ``label_second``, ``second_to_max_ratio``, ``effective_max``, ``system_effective``,
-        ``label_effective`` (all factors dimensionless), optionally ``taylor_factor``.
+        ``label_effective`` (all factors dimensionless), optionally ``taylor_factor``; with
+        ``stress_field`` also ``factor_source`` = ``"local stress field"``.
     """
     systems = _check_systems(systems)
     q = grain_quats_for(gg, systems)
+    factors = _factors_or_local(gg, load_axis, systems, factors, stress_field)
     if factors is None:
         f = schmid_factors(q, load_axis, systems)
     else:
@@ -658,6 +721,8 @@ def grain_schmid_table(gg, load_axis, systems: SlipSystems, *, factors=None, tay
     t["label_effective"] = lab[s["system_effective"]]
     if taylor:
         t["taylor_factor"] = taylor_factor(q, load_axis, systems)
+    if stress_field is not None:
+        t["factor_source"] = LOCAL_SOURCE
     return t
 
 
@@ -686,11 +751,14 @@ def _summary_from_factors(f: np.ndarray, systems: SlipSystems) -> dict[str, np.n
     return out
 
 
-def slip_trace_table(gg, load_axis, systems: SlipSystems, *, n_planes: int = 2, factors=None) -> pd.DataFrame:
+def slip_trace_table(gg, load_axis, systems: SlipSystems, *, n_planes: int = 2, factors=None,
+                     stress_field=None) -> pd.DataFrame:
     """Surface traces of the most-stressed slip planes of every grain.
 
     For each grain the systems are ranked by effective Schmid factor and the first ``n_planes``
-    systems on *distinct* planes are kept (two systems on one plane share a trace).
+    systems on *distinct* planes are kept (two systems on one plane share a trace). ``factors``
+    ((n_grains, n_sys) signed) or ``stress_field`` (local factors, :func:`local_grain_factors`)
+    replace the uniform-stress factors in the ranking.
 
     Returns
     -------
@@ -698,12 +766,13 @@ def slip_trace_table(gg, load_axis, systems: SlipSystems, *, n_planes: int = 2, 
         Columns ``grain``, ``rank`` (1 = most stressed), ``system``, ``label``, ``family``,
         ``effective_schmid``, ``trace_angle_deg`` ([0, 180) from +x towards +y; NaN if the plane
         is parallel to the surface), ``inclination_deg`` (plane to surface, 90 = perpendicular),
-        ``centroid_x_um``, ``centroid_y_um``.
+        ``centroid_x_um``, ``centroid_y_um``; with ``stress_field`` also ``factor_source``.
     """
     systems = _check_systems(systems)
     if int(n_planes) < 1:
         raise ParameterError(f"n_planes should be >= 1; got {n_planes}")
     q = grain_quats_for(gg, systems)
+    factors = _factors_or_local(gg, load_axis, systems, factors, stress_field)
     f = schmid_factors(q, load_axis, systems) if factors is None else np.asarray(factors, dtype=float)
     ok = np.all(np.isfinite(f), axis=1)
     eff = effective_schmid(np.where(ok[:, None], f, 0.0), systems)
@@ -733,13 +802,21 @@ def slip_trace_table(gg, load_axis, systems: SlipSystems, *, n_planes: int = 2, 
             "trace_angle_deg": ang[rows, s], "inclination_deg": inc[rows, s],
             "centroid_x_um": cx, "centroid_y_um": cy,
         })[ok])
-    return pd.concat(parts, ignore_index=True).sort_values(["grain", "rank"], ignore_index=True)
+    out = pd.concat(parts, ignore_index=True).sort_values(["grain", "rank"], ignore_index=True)
+    if stress_field is not None:
+        out["factor_source"] = LOCAL_SOURCE
+    return out
 
 
 def write_slip_outputs(gg, load_axis, folder: str | os.PathLike, *, systems: SlipSystems | None = None,
                        inclination_deg: float = 90.0, taylor: bool = True, factors=None,
-                       title: str = "slip activity") -> dict:
+                       title: str = "slip activity", stress_field=None) -> dict:
     """Annotate the grain graph and write the slip tables, pictures and a summary into ``folder``.
+
+    With ``stress_field`` (a :class:`slipnet.stress.StressField` solved on ``gg.omap`` for this
+    load axis) every table uses the local grain Schmid factors (:func:`local_grain_factors`)
+    instead of the uniform-stress ones, and the summary states so and prints the field's
+    modelling assumptions. ``factors`` gives caller-computed factors instead (not both).
 
     Writes ``grains_slip.csv``, ``slip_traces.csv``, ``transmission.csv``, ``systems.csv``,
     ``schmid_map.png``, ``transmission_map.png``, ``slip_traces.png`` and ``summary.md``
@@ -760,9 +837,14 @@ def write_slip_outputs(gg, load_axis, folder: str | os.PathLike, *, systems: Sli
         systems = slip_systems(structures[0] if structures else "bcc")
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
+    given = factors is not None
+    factors = _factors_or_local(gg, load, systems, factors, stress_field)  # solved once for all three tables
     grain_table = grain_schmid_table(gg, load, systems, factors=factors, taylor=taylor)
     traces = slip_trace_table(gg, load, systems, factors=factors)
     trans = annotate_transmission(gg, load, systems, inclination_deg=inclination_deg, factors=factors)
+    if stress_field is not None:
+        for t in (grain_table, traces, trans):
+            t["factor_source"] = LOCAL_SOURCE
     for g, row in grain_table.set_index("grain").iterrows():
         if g in gg.graph:
             gg.graph.nodes[g]["schmid_max"] = float(row["schmid_max"])
@@ -795,9 +877,18 @@ def write_slip_outputs(gg, load_axis, folder: str | os.PathLike, *, systems: Sli
     if taylor and ok.any():
         mean_taylor = np.nanmean(grain_table["taylor_factor"])
         lines.append(f"Mean Taylor factor (uniaxial, full constraints): {mean_taylor:.3f}.")
+    if stress_field is not None:
+        lines += [
+            f"Stress: LOCAL Schmid factors (grain means of τ / applied stress) from a full-field solve, "
+            f"applied {stress_field.applied_stress:g} MPa, {stress_field.iterations} iterations, residual "
+            f"{stress_field.residual:.2e}; used for the Schmid, trace and transmission tables "
+            "(factor_source column). The Taylor factor stays the uniform uniaxial one.",
+            f"Local stress assumptions: {stress_field.assumptions}",
+        ]
+    else:
+        lines.append("Stress: per-grain local Schmid factors given by the caller (e.g. from the full-field solve)."
+                     if given else "Stress: uniform uniaxial along the load axis in every grain.")
     lines += [
-        "Stress: per-grain local Schmid factors given by the caller (e.g. from the full-field solve)."
-        if factors is not None else "Stress: uniform uniaxial along the load axis in every grain.",
         f"Shen factor: boundary plane ASSUMED to contain the surface trace of the boundary, inclined "
         f"{inclination_deg:g}° to the surface (90° = perpendicular); the true plane is not known from a surface map.",
         "Transmission score A→B: max over outgoing systems j of |m′(i*, j)| · effective Schmid_B(j) / "

@@ -237,7 +237,7 @@ def transmission_summaries(grain_quats, grain_a, grain_b, systems: SlipSystems, 
 
 
 def annotate_transmission(gg, load_axis, systems: SlipSystems | None = None, *, inclination_deg: float = 90.0,
-                          factors=None) -> pd.DataFrame:
+                          factors=None, stress_field=None) -> pd.DataFrame:
     """Compute transmission summaries for every boundary of ``gg`` and store them on its edges.
 
     Parameters
@@ -254,6 +254,11 @@ def annotate_transmission(gg, load_axis, systems: SlipSystems | None = None, *, 
         Assumed boundary-plane inclination to the surface for the Shen factor (90 = perpendicular).
     factors : (n_grains, n_sys) array_like, optional
         Signed per-grain Schmid factors to use instead of the uniform-stress ones.
+    stress_field
+        A :class:`slipnet.stress.StressField` solved on ``gg.omap`` for ``load_axis``: use its
+        local grain Schmid factors (:func:`slipnet.slip.local_grain_factors`) instead of the
+        uniform-stress ones; not with ``factors``. The table then has ``factor_source`` =
+        ``"local stress field"``.
 
     Returns
     -------
@@ -273,6 +278,10 @@ def annotate_transmission(gg, load_axis, systems: SlipSystems | None = None, *, 
     if inc == 0.0:
         raise ParameterError("inclination_deg should lie in (0, 90]; a boundary plane in the surface has no trace")
     q = grain_quats_for(gg, systems)
+    if stress_field is not None:
+        from .slip import _factors_or_local
+
+        factors = _factors_or_local(gg, load_axis, systems, factors, stress_field)
     if factors is None:
         factors = schmid_factors(q, load_axis, systems)
     b = gg.boundaries
@@ -298,6 +307,10 @@ def annotate_transmission(gg, load_axis, systems: SlipSystems | None = None, *, 
             "boundary_inclination_deg": inc,
         }))
     table = pd.concat(rows, ignore_index=True).sort_values(["boundary_id", "grain_in"], ignore_index=True)
+    if stress_field is not None:
+        from .slip import LOCAL_SOURCE
+
+        table["factor_source"] = LOCAL_SOURCE
     for k, (x, y) in enumerate(zip(ga, gb, strict=True)):
         e = gg.graph.edges[int(x), int(y)]
         lo, hi = (0, 1) if x < y else (1, 0)
