@@ -119,6 +119,31 @@ def _angle_between(q, p, r):
 
 
 @nb.njit(cache=True, parallel=True)
+def fill_pairs_with_angles(ny, nx, offsets, row_start, quats, valid, phase, a, b, out):
+    """:func:`fill_pairs` and :func:`pair_disorientation` in one pass (the pair arrays are written
+    and the two quaternions read while they are in cache)."""
+    to_deg = 180.0 / math.pi
+    for i in nb.prange(ny):
+        par = i % 2
+        pos = row_start[i]
+        for j in range(nx):
+            p = i * nx + j
+            for k in range(offsets.shape[1]):
+                ii = i + offsets[par, k, 0]
+                jj = j + offsets[par, k, 1]
+                if ii < 0 or ii >= ny or jj < 0 or jj >= nx:
+                    continue
+                r = ii * nx + jj
+                a[pos] = p
+                b[pos] = r
+                if valid[p] and valid[r] and phase[p] == phase[r]:
+                    out[pos] = _angle_between(quats, r, p) * to_deg
+                else:
+                    out[pos] = np.nan
+                pos += 1
+
+
+@nb.njit(cache=True, parallel=True)
 def pair_disorientation(quats, valid, phase, a, b, out):
     """Cubic disorientation (degrees, float32) of every pair; NaN if a point is invalid or phases differ."""
     to_deg = 180.0 / math.pi

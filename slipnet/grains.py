@@ -407,8 +407,13 @@ class GrainGraph:
 
 
 # ============================================================================ building blocks
-def _neighbour_pairs(shape: tuple[int, int], grid: str) -> tuple[np.ndarray, np.ndarray]:
-    """Forward neighbour pairs as flat int32 index arrays ``(a, b)``, row-major order."""
+def _neighbour_pairs(shape: tuple[int, int], grid: str, quats=None, valid=None, phase=None):
+    """Forward neighbour pairs as flat int32 index arrays ``(a, b)``, row-major order.
+
+    With ``quats`` (n, 4), ``valid`` (n,) and ``phase`` (n,) also returns the float32 cubic
+    disorientation of every pair in degrees (NaN where a point is invalid or the phases differ),
+    computed in the same kernel pass.
+    """
     ny, nx_ = shape
     offsets = _k.FORWARD_OFFSETS[grid]
     counts = _k.row_pair_counts(ny, nx_, offsets)
@@ -416,8 +421,12 @@ def _neighbour_pairs(shape: tuple[int, int], grid: str) -> tuple[np.ndarray, np.
     np.cumsum(counts, out=start[1:])
     a = np.empty(int(start[-1]), dtype=np.int32)
     b = np.empty(int(start[-1]), dtype=np.int32)
-    _k.fill_pairs(ny, nx_, offsets, start[:-1], a, b)
-    return a, b
+    if quats is None:
+        _k.fill_pairs(ny, nx_, offsets, start[:-1], a, b)
+        return a, b
+    ang = np.empty(a.size, dtype=np.float32)
+    _k.fill_pairs_with_angles(ny, nx_, offsets, start[:-1], quats, valid, phase, a, b, ang)
+    return a, b, ang
 
 
 def _compact(labels: np.ndarray) -> tuple[np.ndarray, int]:
@@ -454,8 +463,10 @@ def _grain_means(qflat, valid, labels, n, first):
     ref = qflat[np.maximum(first, 0)]
     mean = _mean_orientations(qflat, valid, labels, n, ref)
     # second pass, with the first mean as reference, for grains whose first point lay far from
-    # the mean (an outlier reference could pick the wrong symmetric copy of distant points)
-    redo = disorientation_angle(ref, mean) > 5.0
+    # the mean: with the reference δ from the mean, the copy nearest the reference is the one
+    # nearest the mean for every point within 45° − δ of the mean (other copies are ≥ 90° away),
+    # so δ ≤ 15° is safe for any point within 30° of its grain mean
+    redo = disorientation_angle(ref, mean) > 15.0
     if redo.any():
         mean = _mean_orientations(qflat, valid, labels, n, mean, only=redo)
     return mean
@@ -697,9 +708,7 @@ def build_grain_graph(
     phase_flat = omap.phase.reshape(-1)
 
     # 1-2. neighbour pairs and their disorientations
-    a, b = _neighbour_pairs((ny, nx_), omap.grid)
-    ang = np.empty(a.size, dtype=np.float32)
-    _k.pair_disorientation(qflat, valid, phase_flat, a, b, ang)
+    a, b, ang = _neighbour_pairs((ny, nx_), omap.grid, qflat, valid, phase_flat)
     steps("pairs")
 
     # 3. union-find below the threshold

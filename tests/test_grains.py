@@ -18,6 +18,7 @@ from slipnet.errors import ParameterError
 from slipnet.grains import (
     BOUNDARY_CLASSES,
     CSL_TABLE,
+    _neighbour_pairs,
     build_grain_graph,
     csl_rotations,
     mackenzie_cdf,
@@ -149,8 +150,6 @@ def effective_truth(truth, grain_quats, grid, threshold, band=0.0, labels=None):
 
 
 def _pairs(om):
-    from slipnet.grains import _neighbour_pairs
-
     return _neighbour_pairs(om.shape, om.grid)
 
 
@@ -178,6 +177,22 @@ def test_neighbour_pairs_are_the_nearest_grid_points(grid):
     got = {tuple(sorted(p)) for p in zip(a.tolist(), b.tolist(), strict=True)}
     assert got == {tuple(sorted(p)) for p in ref}
     assert a.dtype == np.int32 and np.all(b > a)
+    # the fused pairs-and-angles kernel gives the same pairs and the angles of the pair kernel
+    q = random_quats(om.shape[0] * om.shape[1], seed=1)
+    valid = np.ones(q.shape[0], bool)
+    valid[5] = False
+    phase = np.zeros(q.shape[0], np.int32)
+    a2, b2, ang = _neighbour_pairs(om.shape, grid, q, valid, phase)
+    ref = np.empty(a.size, np.float32)
+    gk.pair_disorientation(q, valid, phase, a, b, ref)
+    assert np.array_equal(a, a2) and np.array_equal(b, b2)
+    np.testing.assert_array_equal(ang, ref)
+    offsets = gk.FORWARD_OFFSETS[grid]
+    start = np.concatenate(([0], np.cumsum(gk.row_pair_counts(*om.shape, offsets))))
+    a3, b3, ang3 = np.empty_like(a), np.empty_like(b), np.empty_like(ang)
+    gk.fill_pairs_with_angles.py_func(*om.shape, offsets, start[:-1], q, valid, phase, a3, b3, ang3)
+    assert np.array_equal(a3, a) and np.array_equal(b3, b)
+    np.testing.assert_allclose(ang3, ang, atol=1e-4)
 
 
 # ----------------------------------------------------------------------------- union-find kernels
