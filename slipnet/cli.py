@@ -103,6 +103,28 @@ def _run_grains(args) -> int:
     return 0
 
 
+def _add_local_stress(p, amplitude: str) -> None:
+    """Register ``--local-stress`` and ``--stress-tol`` on a subcommand that reads a map."""
+    p.add_argument("--local-stress", action="store_true",
+                   help="use local Schmid factors (grain means of τ / applied stress) from a full-field elastic "
+                   f"solve on the map at {amplitude} instead of the uniform-stress ones; the summary states the "
+                   "model's assumptions")
+    p.add_argument("--stress-tol", type=float, default=1e-6,
+                   help="equilibrium residual of that solve (default 1e-6)")
+
+
+def _solve_local(args, omap, stress: float):
+    """The local stress field for ``--local-stress`` (None without it)."""
+    if not getattr(args, "local_stress", False):
+        return None
+    from .stress import solve_elastic
+
+    field = solve_elastic(omap, args.load_axis, stress=stress, tol=args.stress_tol)
+    print(f"local stress: {field.iterations} iterations, residual {field.residual:.2e}; "
+          f"assumptions: {field.assumptions}")
+    return field
+
+
 def _add_slip(sub) -> None:
     p = sub.add_parser(
         "slip",
@@ -126,6 +148,7 @@ def _add_slip(sub) -> None:
                    help="assumed boundary-plane inclination to the surface for the Shen factor, degrees (default 90)")
     p.add_argument("--no-taylor", action="store_true", help="skip the Taylor factor linear programmes")
     p.add_argument("--frame-rotation", metavar="ROT", help="as for 'slipnet map'")
+    _add_local_stress(p, "100 MPa")
     p.set_defaults(func=_run_slip)
 
 
@@ -150,7 +173,7 @@ def _run_slip(args) -> int:
     systems = slip_systems(structure, families, crss, twinning_asymmetry=args.twinning_asymmetry)
     gg = build_grain_graph(omap, threshold_deg=args.threshold)
     res = write_slip_outputs(gg, args.load_axis, args.out, systems=systems, inclination_deg=args.inclination,
-                             taylor=not args.no_taylor)
+                             taylor=not args.no_taylor, stress_field=_solve_local(args, omap, 100.0))
     print(f"slip: {len(res['grain_table'])} grains, {len(res['transmission_table']) // 2} boundaries; "
           f"outputs written to {args.out}")
     return 0
@@ -260,6 +283,11 @@ def _add_growth(sub) -> None:
     p.add_argument("--life", type=float, metavar="CYCLES",
                    help="also find the stress amplitude that grows the crack to the final length in CYCLES")
     p.add_argument("--no-figures", action="store_true", help="write tables only")
+    p.add_argument("--local-stress", action="store_true",
+                   help="require local Schmid factors: growth reads no map, so it cannot solve for the stress itself; "
+                   "the --forecast folder must come from 'slipnet forecast --local-stress' (its path table carries "
+                   "the local factors and its settings the assumptions, which go into the summary); "
+                   "not with --barriers")
     p.set_defaults(func=_run_growth)
 
 
@@ -283,6 +311,9 @@ def _run_growth(args) -> int:
     amplitude = args.stress_amplitude
     samples = args.samples
     seed = args.seed
+    if args.barriers and args.local_stress:
+        raise ParameterError("growth --local-stress needs --forecast DIR from 'slipnet forecast --local-stress'; "
+                             "a barrier table has no map to solve the local stress on")
     if args.barriers:
         table = read_csv(args.barriers, "barrier table")
         if "position_um" not in table.columns:
@@ -300,6 +331,9 @@ def _run_growth(args) -> int:
                                 optional.get("barriers"), crossings=optional.get("crossings"),
                                 offset_um=float(settings.get("initial_crack_um", 0.0) or 0.0),
                                 source=str(folder / "forecast_path.csv"))
+        if args.local_stress and not settings.get("stress_field"):
+            raise ParameterError(f"growth --local-stress: the forecast in {folder} used uniform-stress Schmid factors; "
+                                 "rerun 'slipnet forecast --local-stress' (growth reads no map to solve on)")
         if amplitude is None:
             amplitude = settings.get("stress_amplitude_mpa")
         if samples is None:
@@ -332,6 +366,12 @@ def _run_growth(args) -> int:
         res = replace(res, notes=(*res.notes, f"amplitude for a life of {args.life:g} cycles to the final length: "
                                   f"{life:.1f} MPa"))
         print(f"growth: {life:.1f} MPa grows the crack to the final length in {args.life:g} cycles")
+    if args.local_stress:
+        from dataclasses import replace as _replace
+
+        res = _replace(res, notes=(*res.notes, "Grain factors: LOCAL Schmid factors of the forecast's full-field "
+                                   "stress solve. Local stress assumptions: "
+                                   f"{settings.get('stress_assumptions') or 'not recorded by that forecast'}"))
     write_growth(res, args.out, figures=not args.no_figures, calibration=fit)
     arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
               else "no arrest on the path")
@@ -518,6 +558,8 @@ def _add_forecast(sub) -> None:
     p.add_argument("--inclination", type=float, default=0.0,
                    help="boundary-plane inclination from the vertical about its trace, degrees (default 0)")
     p.add_argument("--frame-rotation", metavar="ROT", help="as for 'slipnet map'")
+    _add_local_stress(p, "the --stress amplitude (the map of --graph when given); the saved path table then "
+                      "carries the local factors for 'slipnet growth'")
     p.set_defaults(func=_run_forecast)
 
 
@@ -564,7 +606,8 @@ def _run_forecast(args) -> int:
     fc = forecast_crack(gg, tip, args.direction, args.load_axis, args.horizon, stress_amplitude=args.stress,
                         stress_ratio=args.ratio, samples=args.samples, seed=args.seed, top_k=args.top_k,
                         stage2_after_um=args.stage2_after, zigzag_tol=args.zigzag_tol,
-                        max_branches=args.max_branches, inclination_deg=args.inclination)
+                        max_branches=args.max_branches, inclination_deg=args.inclination,
+                        stress_field=_solve_local(args, gg.omap, args.stress))
     write_forecast(fc, args.out, gg)
     print(f"forecast: path {fc.length_um:.1f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} "
           f"grains (stopped: {fc.stop_reason}), {len(fc.barriers)} barriers, {len(fc.sites)} sites; "

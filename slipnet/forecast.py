@@ -527,6 +527,8 @@ def forecast_crack(
         "fitted boundary trace" if opts.inclination == 0 else f"inclined {opts.inclination:g}° about the trace",
         "unindexed": unindexed, "unindexed_gap_um": gap, "field_sigma_um": sigma_um, "site_radius_um": site_r,
         "stress_field": stress_field is not None,
+        # outputs made from local factors must print the stress model's assumptions
+        "stress_assumptions": getattr(stress_field, "assumptions", None),
         "systems": sorted(set(map(str, getattr(systems, "families", [])))),
     }
     fc = CrackForecast(path=res["path"], crossings=res["crossings"], barriers=res["barriers"], sites=res["sites"],
@@ -606,6 +608,8 @@ def write_forecast(fc: CrackForecast, folder, gg=None, *, figures: bool = True, 
         f"{fc.path['grain'].nunique() if len(fc.path) else 0} grains; stopped at: {fc.stop_reason}.",
         f"Alternative paths: {fc.alternatives['branch'].nunique() if len(fc.alternatives) else 0}.",
         f"Boundary plane: {st['boundary_plane']} (assumed from a surface map).",
+        *([f"Schmid factors: LOCAL grain means from a full-field stress solve. Local stress assumptions: "
+           f"{st['stress_assumptions']}"] if st.get("stress_field") else []),
         "",
         "Strongest barriers (rank, boundary, grains, score, twist°, tilt°, |m′|, distance µm):",
     ]
