@@ -212,16 +212,19 @@ COS_22_5 = math.cos(math.radians(22.5))
 
 
 @nb.njit(cache=True)
-def quat_moment_sums(quats, valid, labels, refs, only, ops, acc):
+def quat_moment_sums(quats, valid, labels, refs, only, ops, acc, lo=0, hi=-1):
     """Accumulate the 10 distinct terms of Σ q qᵀ per label, each q first brought to its cubic
     equivalent nearest ``refs[label]`` (what :func:`slipnet.orientation.nearest_equivalent` does).
 
     Within 45° of the reference the identity is the nearest equivalent (the closest other copies
     are 90° away), so only the sign is matched; otherwise the 24 operators ``ops`` are searched.
     ``only`` (n,) bool selects the labels to accumulate; ``acc`` (n, 10) float64, terms in
-    row-major upper-triangle order (00, 01, 02, 03, 11, 12, 13, 22, 23, 33).
+    row-major upper-triangle order (00, 01, 02, 03, 11, 12, 13, 22, 23, 33). Points
+    ``lo..hi-1`` only (default all).
     """
-    for p in range(labels.shape[0]):
+    if hi < 0:
+        hi = labels.shape[0]
+    for p in range(lo, hi):
         g = labels[p]
         if g < 0 or not valid[p] or not only[g]:
             continue
@@ -255,6 +258,18 @@ def quat_moment_sums(quats, valid, labels, refs, only, ops, acc):
         acc[g, 7] += y * y
         acc[g, 8] += y * z
         acc[g, 9] += z * z
+
+
+@nb.njit(cache=True, parallel=True)
+def quat_moment_sums_parallel(quats, valid, labels, refs, only, ops, acc, n_chunks):
+    """:func:`quat_moment_sums` over ``n_chunks`` point ranges in parallel, each into its own
+    accumulator, summed at the end (no two threads write the same grain's sums)."""
+    n = labels.shape[0]
+    part = np.zeros((n_chunks, acc.shape[0], acc.shape[1]))
+    for c in nb.prange(n_chunks):
+        quat_moment_sums(quats, valid, labels, refs, only, ops, part[c], c * n // n_chunks, (c + 1) * n // n_chunks)
+    for c in range(n_chunks):
+        acc += part[c]
 
 
 # ----------------------------------------------------------------------------- union-find
@@ -392,7 +407,8 @@ def fill_majority(labels, ny, nx, offsets, max_sweeps):
 
 # ----------------------------------------------------------------------------- per-grain sums
 @nb.njit(cache=True)
-def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, n, sums, bbox, first, ph, edge):
+def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, n, sums, bbox, first, ph, edge,
+                     row_lo=0, row_hi=-1):
     """One pass over the points accumulating per-grain geometry.
 
     ``sums`` (n, 7): count, Σx, Σy, Σxx, Σxy, Σyy, count of valid points (µm, origin at point 0);
@@ -407,7 +423,9 @@ def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, 
         first[g] = -1
         ph[g] = -1
         edge[g] = False
-    for i in range(ny):
+    if row_hi < 0:
+        row_hi = ny
+    for i in range(row_lo, row_hi):
         shift = 0.5 * step if (hex_grid and i % 2 == 1) else 0.0
         y = i * row_spacing
         for j in range(nx):
@@ -437,6 +455,39 @@ def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, 
                 bbox[g, 3] = y
             if i == 0 or j == 0 or i == ny - 1 or j == nx - 1:
                 edge[g] = True
+
+
+@nb.njit(cache=True, parallel=True)
+def grain_point_sums_parallel(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, n, sums, bbox, first, ph,
+                              edge, n_chunks):
+    """:func:`grain_point_sums` over ``n_chunks`` row ranges in parallel, merged in row order."""
+    s_ = np.zeros((n_chunks, n, 7))
+    b_ = np.empty((n_chunks, n, 4))
+    f_ = np.empty((n_chunks, n), dtype=np.int64)
+    p_ = np.empty((n_chunks, n), dtype=np.int32)
+    e_ = np.empty((n_chunks, n), dtype=np.bool_)
+    for c in nb.prange(n_chunks):
+        grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, n, s_[c], b_[c], f_[c], p_[c],
+                         e_[c], c * ny // n_chunks, (c + 1) * ny // n_chunks)
+    for g in range(n):
+        bbox[g, 0] = np.inf
+        bbox[g, 1] = -np.inf
+        bbox[g, 2] = np.inf
+        bbox[g, 3] = -np.inf
+        first[g] = -1
+        ph[g] = -1
+        edge[g] = False
+        for c in range(n_chunks):
+            for t in range(7):
+                sums[g, t] += s_[c, g, t]
+            bbox[g, 0] = min(bbox[g, 0], b_[c, g, 0])
+            bbox[g, 1] = max(bbox[g, 1], b_[c, g, 1])
+            bbox[g, 2] = min(bbox[g, 2], b_[c, g, 2])
+            bbox[g, 3] = max(bbox[g, 3], b_[c, g, 3])
+            if first[g] < 0 and f_[c, g] >= 0:  # chunks run in row order: the first found is first
+                first[g] = f_[c, g]
+                ph[g] = p_[c, g]
+            edge[g] = edge[g] or e_[c, g]
 
 
 @nb.njit(cache=True)

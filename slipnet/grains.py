@@ -447,7 +447,8 @@ def _mean_orientations(qflat: np.ndarray, valid: np.ndarray, labels: np.ndarray,
     """
     sel = np.ones(n, dtype=np.bool_) if only is None else only
     acc = np.zeros((n, 10))
-    _k.quat_moment_sums(qflat, valid, labels, np.ascontiguousarray(ref), sel, CUBIC_OPERATORS, acc)
+    _k.quat_moment_sums_parallel(qflat, valid, labels, np.ascontiguousarray(ref), sel, CUBIC_OPERATORS, acc,
+                                 _n_chunks(labels.size))
     iu = np.triu_indices(4)
     mat = np.zeros((n, 4, 4))
     mat[:, iu[0], iu[1]] = acc
@@ -588,6 +589,14 @@ class _Steps:
     def close(self) -> None:
         if self.bar is not None:
             self.bar.close()
+
+
+def _n_chunks(n_items: int, limit: int | None = None) -> int:
+    """Chunks for the per-thread accumulators: one per numba thread, none on tiny inputs."""
+    import numba
+
+    c = numba.get_num_threads() if n_items >= 1 << 16 else 1
+    return max(1, min(c, limit if limit is not None else c))
 
 
 def _whole(value, name: str) -> int:
@@ -736,8 +745,8 @@ def build_grain_graph(
     first = np.empty(n, dtype=np.int64)
     gphase = np.empty(n, dtype=np.int32)
     edge = np.empty(n, dtype=np.bool_)
-    _k.grain_point_sums(labels, valid, phase_flat, ny, nx_, omap.step, omap.row_spacing, omap.grid == "hex", n,
-                        sums, bbox, first, gphase, edge)
+    _k.grain_point_sums_parallel(labels, valid, phase_flat, ny, nx_, omap.step, omap.row_spacing,
+                                 omap.grid == "hex", n, sums, bbox, first, gphase, edge, _n_chunks(npts, ny))
     means = _grain_means(qflat, valid, labels, n, first)
     mis = np.empty(npts, dtype=np.float32)
     _k.point_to_reference(qflat, valid, labels, means, mis)

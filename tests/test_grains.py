@@ -768,3 +768,27 @@ def test_cli_grains_writes_outputs_and_reports_errors(tmp_path, capsys):
     assert (np.load(out / "grain_labels.npy") >= 0).all()
     assert main(["grains", str(path), "--threshold", "70"]) == 2
     assert "threshold_deg should lie in" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("grid", ["square", "hex"])
+def test_chunked_parallel_sums_equal_serial(grid):
+    om, _, _ = voronoi_map(30, 40, 12, grid=grid, seed=9)
+    gg = build_grain_graph(om, 15.0)
+    lab = gg.labels.ravel().astype(np.int32)
+    n = gg.n_grains
+    valid = om.indexed.ravel()
+    phase = om.phase.ravel()
+    q = om.quats.reshape(-1, 4)
+
+    def geometry(fn, *extra):
+        out = [np.zeros((n, 7)), np.empty((n, 4)), np.empty(n, np.int64), np.empty(n, np.int32), np.empty(n, bool)]
+        fn(lab, valid, phase, 30, 40, 1.0, om.row_spacing, grid == "hex", n, *out, *extra)
+        return out
+
+    for u, v in zip(geometry(gk.grain_point_sums), geometry(gk.grain_point_sums_parallel, 3), strict=True):
+        np.testing.assert_allclose(u, v, rtol=1e-12)
+    acc1, acc3 = np.zeros((n, 10)), np.zeros((n, 10))
+    sel = np.ones(n, bool)
+    gk.quat_moment_sums(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc1)
+    gk.quat_moment_sums_parallel(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc3, 3)
+    np.testing.assert_allclose(acc1, acc3, rtol=1e-12)
