@@ -564,6 +564,38 @@ def edge_geometry(ea, eb, nx, step, hex_grid, half, ys, off, width, mx, my, tx, 
         v1[k] = (np.int64(round(py * ys)) + off) * width + (np.int64(round(px * 2.0 / step)) + 2)
 
 
+@nb.njit(cache=True, parallel=True)
+def kam_rows(a, b, angle, threshold, row_start, nx, out):
+    """Kernel average misorientation per point (float32 degrees, NaN without a qualifying pair).
+
+    Averages the angles of a point's pairs below ``threshold``; such pairs always lie inside one
+    grain (union–find joined them, and merging only unites grains further), so no label lookup
+    is needed. Parallel over rows: the thread of row i handles the pairs starting in row i and
+    the pairs from row i−1 ending in row i, and writes only the points of row i.
+    ``row_start`` (ny+1,) gives the pair range of each row (pairs are listed row by row).
+    """
+    ny = row_start.shape[0] - 1
+    for i in nb.prange(ny):
+        lo_pt = i * nx
+        acc = np.zeros(nx)
+        cnt = np.zeros(nx, dtype=np.int64)
+        k0 = row_start[i - 1] if i > 0 else row_start[0]
+        for k in range(k0, row_start[i + 1]):
+            ang = angle[k]
+            if not ang < threshold:
+                continue
+            p = a[k] - lo_pt
+            r = b[k] - lo_pt
+            if 0 <= p < nx:
+                acc[p] += ang
+                cnt[p] += 1
+            if 0 <= r < nx:
+                acc[r] += ang
+                cnt[r] += 1
+        for j in range(nx):
+            out[lo_pt + j] = acc[j] / cnt[j] if cnt[j] > 0 else np.nan
+
+
 @nb.njit(cache=True)
 def kam_sums(a, b, angle, labels, threshold, sums, counts):
     """Accumulate, per point, the angles of its pairs inside one grain and below ``threshold``."""

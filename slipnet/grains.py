@@ -723,7 +723,14 @@ def build_grain_graph(
     # 3. union-find below the threshold
     parent = np.arange(npts, dtype=np.int32)
     _k.union_below(parent, a, b, ang, np.float32(thr))
-    labels = np.where(valid, parent, -1).astype(np.int32)
+    if min_points > 1 or fill_unindexed:
+        labels = np.where(valid, parent, -1).astype(np.int32)
+    else:  # nothing to clean: number the union-find roots directly
+        labels = parent
+        parent = None
+        lab_c = np.empty(npts, dtype=np.int32)
+        n = int(_k.compact_labels(labels, valid, lab_c))
+        labels = lab_c
     del parent
     n_raw = int(np.count_nonzero(labels == np.arange(npts, dtype=np.int32)))
     log(f"union-find below {thr:g}°: {n_raw} grains")
@@ -735,7 +742,8 @@ def build_grain_graph(
     if fill_unindexed:
         n_fill, sweeps = _k.fill_majority(labels, ny, nx_, _k.ALL_OFFSETS[omap.grid], max_sweeps)
         log(f"filled {int(n_fill)} unlabelled points from the majority of their neighbours ({int(sweeps)} sweeps)")
-    labels, n = _compact(labels)
+    if min_points > 1 or fill_unindexed:
+        labels, n = _compact(labels)
     log(f"{n} grains after clean-up")
     steps("clean-up")
 
@@ -751,12 +759,10 @@ def build_grain_graph(
     mis = np.empty(npts, dtype=np.float32)
     _k.point_to_reference(qflat, valid, labels, means, mis)
     gos = _k.grain_means_of(labels, mis, n)  # mis is NaN where a point has no orientation
-    ksum = np.zeros(npts)
-    kcnt = np.zeros(npts, dtype=np.int32)
-    _k.kam_sums(a, b, ang, labels, np.float32(thr), ksum, kcnt)
-    kam = np.full(npts, np.nan, dtype=np.float32)
-    np.divide(ksum, kcnt, out=kam, where=kcnt > 0, casting="unsafe")
-    del ksum, kcnt
+    row_start = np.zeros(ny + 1, dtype=np.int64)
+    np.cumsum(_k.row_pair_counts(ny, nx_, _k.FORWARD_OFFSETS[omap.grid]), out=row_start[1:])
+    kam = np.empty(npts, dtype=np.float32)
+    _k.kam_rows(a, b, ang, np.float32(thr), row_start, nx_, kam)
     steps("orientations")
 
     # 6. boundaries

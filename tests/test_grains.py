@@ -787,6 +787,17 @@ def test_chunked_parallel_sums_equal_serial(grid):
 
     for u, v in zip(geometry(gk.grain_point_sums), geometry(gk.grain_point_sums_parallel, 3), strict=True):
         np.testing.assert_allclose(u, v, rtol=1e-12)
+    a, b, ang = _neighbour_pairs(om.shape, grid, q, valid, phase)
+    start = np.concatenate(([0], np.cumsum(gk.row_pair_counts(30, 40, gk.FORWARD_OFFSETS[grid]))))
+    k1 = [np.zeros(lab.size), np.zeros(lab.size, np.int32)]
+    gk.kam_sums(a, b, ang, lab, np.float32(15.0), *k1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ref = (k1[0] / k1[1]).astype(np.float32)
+    for fn in (gk.kam_rows, gk.kam_rows.py_func):
+        kam = np.empty(lab.size, np.float32)
+        fn(a, b, ang, np.float32(15.0), start, 40, kam)
+        np.testing.assert_allclose(kam, ref, rtol=1e-6)
+    np.testing.assert_allclose(gg.kam_deg.ravel(), ref, rtol=1e-6)
     acc1, acc3 = np.zeros((n, 10)), np.zeros((n, 10))
     sel = np.ones(n, bool)
     gk.quat_moment_sums(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc1)
