@@ -597,6 +597,34 @@ def kam_rows(a, b, angle, threshold, row_start, nx, out):
 
 
 @nb.njit(cache=True)
+def order_by_key(lo, hi, n):
+    """Order of edges sorted by (lo, hi), both in 0..n-1: a counting sort on ``lo`` and a small
+    sort on ``hi`` inside each bucket — linear time instead of a general sort of millions of keys.
+    Ties keep their input order."""
+    m = lo.shape[0]
+    start = np.zeros(n + 1, dtype=np.int64)
+    for k in range(m):
+        start[lo[k] + 1] += 1
+    for g in range(n):
+        start[g + 1] += start[g]
+    fill = start[:-1].copy()
+    order = np.empty(m, dtype=np.int64)
+    for k in range(m):
+        order[fill[lo[k]]] = k
+        fill[lo[k]] += 1
+    for g in range(n):
+        s0 = start[g]
+        s1 = start[g + 1]
+        if s1 - s0 > 1:
+            seg = order[s0:s1].copy()
+            keys = hi[seg]
+            o = np.argsort(keys, kind="mergesort")
+            for t in range(s1 - s0):
+                order[s0 + t] = seg[o[t]]
+    return order
+
+
+@nb.njit(cache=True)
 def kam_sums(a, b, angle, labels, threshold, sums, counts):
     """Accumulate, per point, the angles of its pairs inside one grain and below ``threshold``."""
     for k in range(a.shape[0]):
@@ -614,13 +642,13 @@ def kam_sums(a, b, angle, labels, threshold, sums, counts):
 
 
 # ----------------------------------------------------------------------------- boundary chains
-@nb.njit(cache=True)
+@nb.njit(cache=True, parallel=True)
 def chain_edges(bstart, ev0, ev1, order, first_of_chain, start_v, end_v):
     """Order the edges of every boundary into chains (polylines) through shared vertices.
 
     Edges of boundary k occupy ``[bstart[k], bstart[k+1])`` with end vertices ``ev0``/``ev1``.
     Per boundary, the 2 incidences (vertex, edge) of each edge are sorted by vertex locally (a
-    boundary has few edges). Chains start at vertices of odd
+    boundary has few edges; boundaries run in parallel). Chains start at vertices of odd
     degree (ends of open lines), then at any edge left (closed loops). Writes the edge order
     into ``order``, flags the first edge of each chain, and stores each chain's start vertex and
     end vertex at the position of its first edge.
@@ -628,7 +656,7 @@ def chain_edges(bstart, ev0, ev1, order, first_of_chain, start_v, end_v):
     nb_ = bstart.shape[0] - 1
     m = ev0.shape[0]
     used = np.zeros(m, dtype=np.bool_)
-    for k in range(nb_):
+    for k in nb.prange(nb_):
         s0 = bstart[k]
         cnt = bstart[k + 1] - s0
         lv_raw = np.empty(2 * cnt, dtype=np.int64)

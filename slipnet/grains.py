@@ -770,7 +770,7 @@ def build_grain_graph(
     ga, gb = labels[ea].astype(np.int64), labels[eb].astype(np.int64)
     lo, hi = np.minimum(ga, gb), np.maximum(ga, gb)
     key = lo * max(n, 1) + hi
-    order = np.argsort(key, kind="stable")
+    order = _k.order_by_key(lo, hi, max(n, 1))
     key, ea, eb, ga, gb = key[order], ea[order], eb[order], ga[order], gb[order]
     del order, lo, hi
     # key is sorted: unique values from the positions where it changes
