@@ -751,6 +751,12 @@ def triple_junctions(labels, ny, nx, hex_grid, step, row_spacing, max_out):
     n = 0
     for i in range(ny - 1):
         for j in range(nx - 1 + (1 if hex_grid else 0)):
+            if not hex_grid:
+                # fast path: the 2x2 cells around the vertex all in one grain (the usual case)
+                g0 = labels[i * nx + j]
+                if (labels[i * nx + j + 1] == g0 and labels[(i + 1) * nx + j] == g0
+                        and labels[(i + 1) * nx + j + 1] == g0):
+                    continue
             for tri in range(2 if hex_grid else 1):
                 if not hex_grid:
                     cells[0] = i * nx + j
