@@ -47,6 +47,15 @@ def _eval_chunk(gg, chunk: list[Candidate], s: PlanSettings, systems) -> list[di
     return [evaluate_candidate(gg, c, s, systems) for c in chunk]
 
 
+def _single_threaded_worker() -> None:
+    """Initialise a sweep worker process with single-threaded numba and BLAS."""
+    import numba
+    from threadpoolctl import threadpool_limits
+
+    numba.set_num_threads(1)
+    threadpool_limits(1)
+
+
 def _chunks(items: list, n: int) -> list[list]:
     n = max(1, min(n, len(items)))
     return [list(c) for c in np.array_split(np.array(items, dtype=object), n) if len(c)]
@@ -88,18 +97,32 @@ def run_sweep(gg, candidates: list[Candidate], s: PlanSettings, *, systems=None,
     if sched in LOCAL_SCHEDULERS:
         import dask
 
-        chunks = _chunks(candidates, 1 if sched == "synchronous" else 4 * nw)
+        chunks = _chunks(candidates, 1 if sched == "synchronous" else 8 * nw)
         tasks = [dask.delayed(_eval_chunk)(gg, c, s, systems) for c in chunks]
-        kw = {"scheduler": sched}
-        if sched != "synchronous":
+        kw: dict = {"scheduler": sched}
+        pool = None
+        if sched == "threads":
             kw["num_workers"] = nw
-        if progress:
-            from dask.diagnostics import ProgressBar
+        elif sched == "processes":
+            # one compute thread per worker process: numba's and BLAS's own thread pools would
+            # otherwise oversubscribe the cores and two workers run no faster than one
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
 
-            with ProgressBar():
+            pool = ProcessPoolExecutor(max_workers=nw, mp_context=multiprocessing.get_context("spawn"),
+                                       initializer=_single_threaded_worker)
+            kw["pool"] = pool
+        try:
+            if progress:
+                from dask.diagnostics import ProgressBar
+
+                with ProgressBar():
+                    parts = dask.compute(*tasks, **kw)
+            else:
                 parts = dask.compute(*tasks, **kw)
-        else:
-            parts = dask.compute(*tasks, **kw)
+        finally:
+            if pool is not None:
+                pool.shutdown()
     elif "://" in sched:
         parts = _run_distributed(gg, candidates, s, systems, sched, progress)
     else:
