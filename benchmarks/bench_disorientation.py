@@ -16,20 +16,11 @@ Prints, for the same pairs in the same run:
 from __future__ import annotations
 
 import argparse
-import time
 
 import numpy as np
+from _timing import best_time  # benchmarks/ is the script's folder, so on sys.path
 
 from slipnet.orientation import disorientation_angle, random_quats
-
-
-def best_time(fn, repeat: int = 5) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 class DisorientationBench:
@@ -59,8 +50,8 @@ def main() -> None:
     for n in args.pairs:
         b = DisorientationBench()
         b.setup(n)
-        t_ours = best_time(b.time_slipnet)
-        t_floor = best_time(b.time_memory_floor)
+        t_ours = best_time(b.time_slipnet, repeat=5)
+        t_floor = best_time(b.time_memory_floor, repeat=5)
         angles = b.time_slipnet()
         assert angles.shape == (n,) and 40.0 < angles.mean() < 41.5  # real work: Mackenzie mean
 

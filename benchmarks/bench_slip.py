@@ -21,22 +21,13 @@ Prints, for the same data in the same run:
 from __future__ import annotations
 
 import argparse
-import time
 
 import numpy as np
+from _timing import best_time  # benchmarks/ is the script's folder, so on sys.path
 
 from slipnet.orientation import matrix_from_quat, random_quats
 from slipnet.slip import effective_schmid, schmid_factors, schmid_summary, slip_systems
 from slipnet.transmission import transmission_summaries
-
-
-def best_time(fn, repeat: int = 3) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def matmul_peak(n: int = 3000) -> float:

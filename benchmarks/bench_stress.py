@@ -24,23 +24,14 @@ from __future__ import annotations
 
 import argparse
 import math
-import time
 
 import numpy as np
 import scipy.fft
+from _timing import best_time  # benchmarks/ is the script's folder, so on sys.path
 
 from slipnet import _stress_kernels as _k
 from slipnet.stress import _numba_threads, _prepare, _Spectral, solve_elastic, to_mandel
 from slipnet.synthetic import make_specimen
-
-
-def best_time(fn, repeat: int = 3) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def setup(n: int, seed: int = 0):

@@ -13,7 +13,7 @@ import math
 import numba as nb
 import numpy as np
 
-SQRT2_INV = 1.0 / math.sqrt(2.0)
+from ._orientation_kernels import _closed_form_angle, _sort4_desc
 
 # Forward offsets (each unordered neighbour pair once). Hex grid: odd rows shifted +step/2, so the
 # row below an even row is met at columns j-1 and j, below an odd row at j and j+1.
@@ -77,33 +77,11 @@ def fill_pairs(ny, nx, offsets, row_start, a, b):
 def cubic_angle(w, x, y, z):
     """Smallest rotation angle (rad) among the 24 cubic equivalents of a unit quaternion.
 
-    With the absolute components sorted a ≥ b ≥ c ≥ d, the best scalar part is
-    max(a, (a+b)/√2, (a+b+c+d)/2) (closed form); a and b are found without a full sort: the
-    largest is the larger of the two pair maxima, the second the larger of (smaller pair maximum,
-    larger pair minimum).
+    The closed form of :mod:`slipnet._orientation_kernels` (one implementation for the whole
+    package, exact near zero angle).
     """
-    w = abs(w)
-    x = abs(x)
-    y = abs(y)
-    z = abs(z)
-    hi1 = w if w > x else x
-    lo1 = x if w > x else w
-    hi2 = y if y > z else z
-    lo2 = z if y > z else y
-    first = hi1 if hi1 > hi2 else hi2
-    small_hi = hi2 if hi1 > hi2 else hi1
-    big_lo = lo1 if lo1 > lo2 else lo2
-    second = small_hi if small_hi > big_lo else big_lo
-    c = first
-    c2 = (first + second) * SQRT2_INV
-    if c2 > c:
-        c = c2
-    c3 = 0.5 * (w + x + y + z)
-    if c3 > c:
-        c = c3
-    if c > 1.0:
-        c = 1.0
-    return 2.0 * math.acos(c)
+    a, b, c, d = _sort4_desc(abs(w), abs(x), abs(y), abs(z))
+    return _closed_form_angle(a, b, c, d)
 
 
 @nb.njit(cache=True, inline="always")
