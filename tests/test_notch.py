@@ -117,7 +117,8 @@ def test_pareto_ranks_small_case():
 
 
 def test_rank_candidates_weighted_and_signs():
-    t = pd.DataFrame({"valid": [True] * 3, "initiation_drive": [1.0, 2.0, 3.0], "first_barrier_um": [10.0, 5.0, np.inf]})
+    t = pd.DataFrame({"valid": [True] * 3, "initiation_drive": [1.0, 2.0, 3.0],
+                      "first_barrier_um": [10.0, 5.0, np.inf]})
     r = rank_candidates(t, {"initiation_drive": 1.0})
     assert list(r["initiation_drive"]) == [3.0, 2.0, 1.0]
     # A negative weight prefers small values; inf ("no barrier reached") is the worst.
@@ -250,3 +251,26 @@ def test_cli_refuses_bad_input_and_writes_nothing(tmp_path, capsys):
     code = main(["notch", str(tmp_path / "bands.npz"), "--side", "top", "--spacing", "30", "--depth", "10",
                  "--radius", "4", "--window", "60", "--crack-sizes", "5", "--out", str(out)])
     assert code == 0 and (out / "notch_plan.csv").is_file()
+
+
+def test_batch_runs_one_study_over_a_folder_of_maps(tmp_path):
+    from slipnet.io import write_map
+    from slipnet.notch_sweep import run_batch
+
+    omap, _ = _band_specimen()
+    folder = tmp_path / "maps"
+    folder.mkdir()
+    write_map(omap, folder / "coupon_a.npz")
+    write_map(omap.crop(0.0, 150.0, 0.0, 118.0), folder / "coupon_b.txt")
+    study = tmp_path / "study.toml"
+    study.write_text(STUDY.replace('map = "bands.npz"\n', ""))
+    table = run_batch(folder, study, tmp_path / "out")
+    assert set(table["specimen"]) == {"coupon_a.npz", "coupon_b.txt"}
+    for stem in ("coupon_a", "coupon_b"):
+        assert (tmp_path / "out" / stem / "notch_plan.csv").is_file()
+    assert (tmp_path / "out" / "batch_best.csv").is_file()
+    # a folder with a bad map fails before any plan is written
+    (folder / "broken.txt").write_text("not a map\n")
+    with pytest.raises(InputFileError):
+        run_batch(folder, study, tmp_path / "out2")
+    assert not (tmp_path / "out2").exists()
