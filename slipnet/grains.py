@@ -28,18 +28,9 @@ Method
    vertex, the midpoints of its edges in order, and its end vertex (µm). The trace direction is
    the principal axis of the second moment of the boundary's edge segments.
 
-Boundary classes (:data:`BOUNDARY_CLASSES`), in order of precedence:
-
-* ``"phase_boundary"``: the two grains belong to different phases;
-* ``"subgrain"``: misorientation below ``subgrain_deg`` (only when it is given; such grain–grain
-  boundaries are rare, because sub-grain boundaries normally lie *inside* grains: those are kept
-  apart, in :attr:`GrainGraph.subgrain_labels` and :attr:`GrainGraph.subgrain_boundaries`);
-* ``"low_angle"``: below 15° (common practice; low-angle takes precedence over CSL, i.e. Σ1);
-* ``"sigma3"`` … ``"sigma29b"``: coincidence-site-lattice boundaries by the Brandon (1966, Acta
-  Metall. 14:1479) criterion: the disorientation between the boundary misorientation and the CSL
-  rotation, searched over all symmetric equivalents, is at most 15°·Σ^(−1/2); if several match,
-  the lowest Σ wins;
-* ``"high_angle"``: everything else.
+Boundary classes (:data:`BOUNDARY_CLASSES`, defined in :mod:`slipnet.grain_classes`): phase
+boundary, sub-grain, low-angle (< 15°), CSL Σ3…Σ29b by the Brandon criterion, high-angle.
+Writing the outputs lives in :mod:`slipnet.grain_report`.
 """
 
 from __future__ import annotations
@@ -50,7 +41,6 @@ import os
 import time
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
-from functools import lru_cache
 from pathlib import Path
 
 import networkx as nx
@@ -58,9 +48,19 @@ import numpy as np
 import pandas as pd
 
 from . import _grain_kernels as _k
+from . import grain_report as _report
 from ._checks import check_positive, check_range
-from ._files import atomic_path
 from .errors import ParameterError
+from .grain_classes import (  # re-exported: slipnet.grains keeps its public names
+    BOUNDARY_CLASSES,
+    CSL_TABLE,
+    LOW_ANGLE_DEG,
+    _classify,
+    csl_rotations,
+    mackenzie_cdf,
+    mackenzie_density,
+)
+from .grain_report import write_grain_outputs  # re-exported
 from .maps import OrientationMap
 from .orientation import (
     CUBIC_OPERATORS,
@@ -68,9 +68,6 @@ from .orientation import (
     disorientation_angle,
     euler_from_quat,
     misorientation,
-    quat_from_axis_angle,
-    quat_multiply,
-    random_quats,
 )
 
 __all__ = [
@@ -92,41 +89,6 @@ logger = logging.getLogger(__name__)
 
 #: Largest cubic disorientation is 62.8° (Mackenzie 1958); a threshold at or above it joins everything.
 MAX_THRESHOLD_DEG = 62.8
-#: Low-angle / high-angle limit, degrees (common practice).
-LOW_ANGLE_DEG = 15.0
-
-#: Coincidence site lattice rotations for cubic lattices: (class, Σ, axis ⟨hkl⟩, m, n), with the
-#: rotation angle θ = 2·atan(n·√(h²+k²+l²)/m) and Σ = (m² + n²(h²+k²+l²)) / 2^k odd
-#: (Ranganathan 1966, Acta Cryst. 21:197; angles as tabulated by Grimmer, Bollmann & Warrington
-#: 1974, Acta Cryst. A30:197).
-CSL_TABLE: tuple[tuple[str, int, tuple[int, int, int], int, int], ...] = (
-    ("sigma3", 3, (1, 1, 1), 3, 1),
-    ("sigma5", 5, (1, 0, 0), 3, 1),
-    ("sigma7", 7, (1, 1, 1), 5, 1),
-    ("sigma9", 9, (1, 1, 0), 4, 1),
-    ("sigma11", 11, (1, 1, 0), 3, 1),
-    ("sigma13a", 13, (1, 0, 0), 5, 1),
-    ("sigma13b", 13, (1, 1, 1), 7, 1),
-    ("sigma15", 15, (2, 1, 0), 5, 1),
-    ("sigma17a", 17, (1, 0, 0), 4, 1),
-    ("sigma17b", 17, (2, 2, 1), 5, 1),
-    ("sigma19a", 19, (1, 1, 0), 6, 1),
-    ("sigma19b", 19, (1, 1, 1), 4, 1),
-    ("sigma21a", 21, (1, 1, 1), 9, 1),
-    ("sigma21b", 21, (2, 1, 1), 6, 1),
-    ("sigma23", 23, (3, 1, 1), 9, 1),
-    ("sigma25a", 25, (1, 0, 0), 7, 1),
-    ("sigma25b", 25, (3, 3, 1), 9, 1),
-    ("sigma27a", 27, (1, 1, 0), 5, 1),
-    ("sigma27b", 27, (2, 1, 0), 7, 1),
-    ("sigma29a", 29, (1, 0, 0), 5, 2),
-    ("sigma29b", 29, (2, 2, 1), 7, 1),
-)
-
-#: Every value the ``boundary_class`` column / edge attribute can take.
-BOUNDARY_CLASSES: tuple[str, ...] = (
-    "phase_boundary", "subgrain", "low_angle", *(row[0] for row in CSL_TABLE), "high_angle",
-)
 
 #: Graph node attribute keys (plain numbers / strings / bools).
 NODE_KEYS: tuple[str, ...] = (
@@ -138,60 +100,6 @@ EDGE_KEYS: tuple[str, ...] = (
     "boundary_id", "length_um", "misorientation_deg", "axis_h", "axis_k", "axis_l",
     "boundary_class", "trace_angle_deg",
 )
-
-
-
-# ============================================================================ CSL and Mackenzie
-def csl_rotations() -> pd.DataFrame:
-    """The CSL rotations of :data:`CSL_TABLE` as a table.
-
-    Returns
-    -------
-    DataFrame
-        Columns ``boundary_class``, ``sigma``, ``axis_h``, ``axis_k``, ``axis_l``, ``angle_deg``,
-        ``brandon_limit_deg`` (15°·Σ^(−1/2)), ``qw``, ``qx``, ``qy``, ``qz``.
-    """
-    rows = []
-    for name, sigma, axis, m, n in CSL_TABLE:
-        angle = math.degrees(2.0 * math.atan(n * math.sqrt(sum(h * h for h in axis)) / m))
-        q = quat_from_axis_angle(axis, angle)
-        rows.append((name, sigma, *axis, angle, 15.0 / math.sqrt(sigma), *q))
-    return pd.DataFrame(rows, columns=["boundary_class", "sigma", "axis_h", "axis_k", "axis_l", "angle_deg",
-                                       "brandon_limit_deg", "qw", "qx", "qy", "qz"])
-
-
-@lru_cache(maxsize=2)
-def _mackenzie_sample(n_pairs: int, seed: int) -> np.ndarray:
-    a = random_quats(n_pairs, seed=seed)
-    b = random_quats(n_pairs, seed=seed + 1)
-    out = np.sort(disorientation_angle(a, b))
-    out.setflags(write=False)
-    return out
-
-
-def mackenzie_cdf(angle_deg, *, n_pairs: int = 1_000_000, seed: int = 0) -> np.ndarray:
-    """Cumulative Mackenzie (1958) distribution of random cubic disorientations, computed numerically.
-
-    Parameters
-    ----------
-    angle_deg : array_like
-        Angles in degrees.
-    n_pairs, seed
-        Number of uniformly random orientation pairs drawn (seeded) to build the curve.
-
-    Returns
-    -------
-    ndarray
-        P(disorientation ≤ angle), same shape as ``angle_deg``.
-    """
-    s = _mackenzie_sample(int(n_pairs), int(seed))
-    return np.searchsorted(s, np.asarray(angle_deg, dtype=np.float64), side="right") / s.size
-
-
-def mackenzie_density(edges_deg, *, n_pairs: int = 1_000_000, seed: int = 0) -> np.ndarray:
-    """Mackenzie (1958) probability density per degree in each bin of ``edges_deg`` (k+1 edges → k values)."""
-    e = np.asarray(edges_deg, dtype=np.float64)
-    return np.diff(mackenzie_cdf(e, n_pairs=n_pairs, seed=seed)) / np.diff(e)
 
 
 # ============================================================================ container
@@ -376,34 +284,18 @@ class GrainGraph:
         labs = self.labels[i0:i1, j0:j1][near]
         return [int(v) for v in np.unique(labs[labs >= 0])]
 
-    # ------------------------------------------------------------------ export
+    # ------------------------------------------------------------------ export (in slipnet.grain_report)
     def write_graphml(self, path: str | os.PathLike) -> Path:
         """Write :attr:`graph` as GraphML (atomically); returns the path."""
-        path = Path(path)
-        with atomic_path(path) as tmp:
-            nx.write_graphml(self.graph, tmp)
-        return path
+        return _report.write_graphml(self, path)
 
     def write_labels(self, path: str | os.PathLike) -> Path:
         """Write the label image as a NumPy ``.npy`` file (atomically); returns the path."""
-        path = Path(path)
-        with atomic_path(path) as tmp, open(tmp, "wb") as fh:
-            np.save(fh, self.labels)
-        return path
+        return _report.write_labels(self, path)
 
     def write_tables(self, folder: str | os.PathLike) -> dict[str, Path]:
         """Write the grain, boundary, triple-junction (and sub-grain boundary) tables as CSV."""
-        from .report import write_table
-
-        folder = Path(folder)
-        out = {
-            "grains": write_table(self.grains, folder / "grains.csv"),
-            "boundaries": write_table(self.boundaries, folder / "boundaries.csv"),
-            "triple_junctions": write_table(self.triple_junctions, folder / "triple_junctions.csv"),
-        }
-        if self.subgrain_boundaries is not None:
-            out["subgrain_boundaries"] = write_table(self.subgrain_boundaries, folder / "subgrain_boundaries.csv")
-        return out
+        return _report.write_tables(self, folder)
 
 
 # ============================================================================ building blocks
@@ -541,28 +433,6 @@ def _edge_geometry(ea: np.ndarray, eb: np.ndarray, omap: OrientationMap):
 
     return mx, my, tx, ty, v0, v1, vxy, 2.0 * half
 
-
-def _classify(angle: np.ndarray, dq: np.ndarray, same_phase: np.ndarray, subgrain_deg: float | None):
-    table = csl_rotations()
-    cq = table[["qw", "qx", "qy", "qz"]].to_numpy()
-    equiv = np.ascontiguousarray(quat_multiply(cq[:, None, :], CUBIC_OPERATORS[None, :, :]))
-    dev = np.empty((dq.shape[0], len(table)))
-    if dq.shape[0]:
-        _k.csl_deviation(np.ascontiguousarray(dq), np.ascontiguousarray(angle, dtype=np.float64), equiv,
-                         table["angle_deg"].to_numpy(), table["brandon_limit_deg"].to_numpy(), dev)
-    match = dev <= table["brandon_limit_deg"].to_numpy()[None, :]
-    first = np.argmax(match, axis=1)
-    anym = match.any(axis=1)
-    names = table["boundary_class"].to_numpy(dtype=object)
-    cls = np.where(angle < LOW_ANGLE_DEG, "low_angle", "high_angle").astype(object)
-    csl = anym & (angle >= LOW_ANGLE_DEG)
-    cls[csl] = names[first[csl]]
-    deviation = np.where(csl, dev[np.arange(dev.shape[0]), first], np.nan)
-    if subgrain_deg is not None:
-        cls[angle < subgrain_deg] = "subgrain"
-    cls[~same_phase] = "phase_boundary"
-    deviation[~same_phase] = np.nan
-    return cls, deviation
 
 
 class _Steps:
@@ -974,52 +844,3 @@ def build_grain_graph(
         settings=settings,
         log=log_lines,
     )
-
-
-def write_grain_outputs(gg: GrainGraph, folder: str | os.PathLike, *, figures: bool = True,
-                        progress: bool = False) -> list[Path]:
-    """Write tables (CSV), graph (GraphML), label image (``.npy``), pictures and a summary into ``folder``.
-
-    Returns the paths written. The summary carries the caution text.
-    """
-    from .report import write_summary
-
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    jobs = ["tables", "graph", "labels"] + (["grain map", "histogram"] if figures else [])
-    bar = _Steps(len(jobs), progress)
-    paths = list(gg.write_tables(folder).values())
-    bar("tables")
-    paths.append(gg.write_graphml(folder / "grain_graph.graphml"))
-    bar("graph")
-    paths.append(gg.write_labels(folder / "grain_labels.npy"))
-    bar("labels")
-    if figures:
-        from .figures._common import save_figure
-        from .figures.grains import plot_grain_map, plot_misorientation_histogram
-
-        fig = plot_grain_map(gg)
-        save_figure(fig, folder / "grain_map.png")
-        paths.append(folder / "grain_map.png")
-        bar("grain map")
-        fig = plot_misorientation_histogram(gg)
-        save_figure(fig, folder / "misorientation_histogram.png")
-        paths.append(folder / "misorientation_histogram.png")
-        bar("histogram")
-    bar.close()
-    cls = gg.boundaries["boundary_class"].value_counts()
-    lines = [
-        f"Map: {gg.omap.name or '(unnamed)'}, {gg.omap.grid} grid {gg.omap.shape[0]} x {gg.omap.shape[1]}, "
-        f"step {gg.omap.step:g} µm.",
-        f"Threshold {gg.settings['threshold_deg']:g}°; {gg.n_grains} grains, {len(gg.boundaries)} boundaries, "
-        f"{len(gg.triple_junctions)} triple junctions.",
-        "",
-        "Boundary classes (count): " + ", ".join(f"{k} {v}" for k, v in cls.items()),
-        "",
-        "Steps:",
-        *(f"- {line}" for line in gg.log),
-        "",
-        "Files: " + ", ".join(p.name for p in paths),
-    ]
-    paths.append(write_summary(folder, "Grains and boundaries", lines))
-    return paths
