@@ -452,6 +452,8 @@ def _add_notch(sub) -> None:
     p.add_argument("--depth", type=float, default=50.0, help="notch depth, µm (50)")
     p.add_argument("--radius", type=float, default=10.0, help="notch root radius, µm (10)")
     p.add_argument("--opening", type=float, default=0.0, help="V-notch opening angle, degrees (0: U notch)")
+    p.add_argument("--full-field", action="store_true",
+                   help="K_t from a full-field elastic solve per candidate instead of the chart fit (slower)")
     p.add_argument("--load-axis", type=float, nargs=3, default=(1.0, 0.0, 0.0), metavar=("LX", "LY", "LZ"),
                    help="load axis in the map frame (default 1 0 0)")
     p.add_argument("--stress", type=float, default=200.0, help="nominal stress amplitude, MPa (200)")
@@ -519,6 +521,7 @@ def _run_notch(args) -> int:
                           opening_deg=args.opening, window_um=args.window, crack_sizes_um=args.crack_sizes,
                           objectives=_parse_objectives(args.objective),
                           method="pareto" if args.pareto else "weighted", samples=args.samples, seed=args.seed,
+                          concentration="full_field" if args.full_field else "peterson",
                           scheduler=args.scheduler or "synchronous", workers=args.workers, progress=True)
         write_plan(plan, gg, args.out)
     best = plan.iloc[0]

@@ -33,7 +33,9 @@ Objectives (column names; the sign of a weight says whether larger is better)
 
 Notes
 -----
-The stress concentration of a U- or V-shaped edge notch uses the semi-infinite-plate fit of
+With ``concentration="full_field"`` K_t comes instead from an anisotropic elastic solve of the
+map with the notch cut in (:func:`full_field_kt`). By default, the stress concentration of a U- or
+V-shaped edge notch uses the semi-infinite-plate fit of
 Peterson's charts (Pilkey & Pilkey 2008, *Peterson's Stress Concentration Factors*, 3rd ed.,
 Wiley, chart 2.2: K_t = 0.855 + 2.21 √(t/r) for 1 ≤ t/r ≤ 361 — from memory), with V notches
 of opening angle ≤ 90° taken equal to the U notch (same charts, the angle matters little below
@@ -64,6 +66,8 @@ __all__ = [
     "candidate_positions",
     "edge_of_map",
     "evaluate_candidate",
+    "full_field_kt",
+    "notch_mask",
     "notch_stress_factor",
     "pareto_ranks",
     "peterson_kt",
@@ -85,6 +89,10 @@ OBJECTIVES: dict[str, bool] = {
 DEFAULT_WEIGHTS: dict[str, float] = {"initiation_drive": 1.0, "barrier_strength_in_window": 1.0}
 
 SIDES = ("left", "right", "top", "bottom")
+
+#: How K_t at each candidate's root is found: the Peterson-type chart fit, or a full-field
+#: anisotropic elastic solve of the map with that notch cut into it (slow: one solve each).
+CONCENTRATION_METHODS = ("peterson", "full_field")
 
 
 @dataclass(frozen=True)
@@ -162,8 +170,12 @@ class PlanSettings:
     position_error_um: float = 5.0
     seed: int = 0
     growth: Mapping = field(default_factory=dict)
+    concentration: str = "peterson"
 
     def __post_init__(self) -> None:
+        if self.concentration not in CONCENTRATION_METHODS:
+            raise ParameterError(f"concentration should be one of {', '.join(map(repr, CONCENTRATION_METHODS))}; "
+                                 f"got {self.concentration!r}")
         object.__setattr__(self, "load_axis", tuple(float(v) for v in check_vector(self.load_axis, "load_axis")))
         object.__setattr__(self, "stress_amplitude", check_positive(self.stress_amplitude, "stress_amplitude"))
         object.__setattr__(self, "window_um", check_positive(self.window_um, "window_um"))
@@ -367,6 +379,78 @@ def candidate_positions(gg, edge, spacing_um: float, notch: NotchShape) -> list[
     ]
 
 
+def notch_mask(omap, edge_xy, normal, notch: NotchShape) -> np.ndarray:
+    """Map points inside a notch cut from ``edge_xy`` along the inward unit ``normal``.
+
+    The notch is a slot of half-width ``r + (t − r − s)·tan(α/2)`` at depth ``s`` (a U notch for
+    α = 0) ending in a semicircle of radius ``r`` whose far point is the root, ``t`` deep.
+
+    Returns
+    -------
+    (ny, nx) bool ndarray
+    """
+    x, y = omap.coordinates()
+    n = np.asarray(normal, dtype=float)
+    tvec = np.array([-n[1], n[0]])
+    dx, dy = x - edge_xy[0], y - edge_xy[1]
+    s = dx * n[0] + dy * n[1]
+    w = dx * tvec[0] + dy * tvec[1]
+    t, r = notch.depth_um, notch.root_radius_um
+    half = r + np.clip(t - r - s, 0.0, None) * math.tan(math.radians(0.5 * notch.opening_deg))
+    slot = (s >= -omap.step) & (s <= t - r) & (np.abs(w) <= half)
+    cx, cy = edge_xy[0] + (t - r) * n[0], edge_xy[1] + (t - r) * n[1]
+    return slot | ((x - cx) ** 2 + (y - cy) ** 2 <= r * r)
+
+
+def _padded_for_edge(omap, normal):
+    """The map with a compliant margin (a fifth of its size) outside the notched side.
+
+    In the periodic cell of the spectral solver the map edge is not a free surface; an unindexed
+    (compliant) margin beyond the notched edge makes it one, so the slot is an edge notch.
+    """
+    from dataclasses import replace as dc_replace
+
+    ny, nx = omap.shape
+    n = np.asarray(normal, dtype=float)
+    if abs(n[1]) >= abs(n[0]):
+        pad = max(2, ny // 5)
+        pad += pad % 2  # keep row 0 an unshifted row on hex grids
+        widths = ((pad, 0), (0, 0)) if n[1] > 0 else ((0, pad), (0, 0))
+        shift = (0.0, -pad * omap.row_spacing if n[1] > 0 else 0.0)
+    else:
+        pad = max(2, nx // 5)
+        widths = ((0, 0), (pad, 0)) if n[0] > 0 else ((0, 0), (0, pad))
+        shift = (-pad * omap.step if n[0] > 0 else 0.0, 0.0)
+    q = np.pad(omap.quats, (*widths, (0, 0)), constant_values=np.nan)
+    return dc_replace(
+        omap, quats=q, phase=np.pad(omap.phase, widths, constant_values=-1),
+        quality=np.pad(omap.quality, widths), indexed=np.pad(omap.indexed, widths),
+        origin=(omap.origin[0] + shift[0], omap.origin[1] + shift[1]), meta=dict(omap.meta))
+
+
+def full_field_kt(gg, cand: Candidate, s: PlanSettings) -> float:
+    """K_t at a candidate root from a full-field elastic solve with the notch cut into the map.
+
+    The map gets a compliant margin beyond the notched edge (a free surface, see
+    :func:`_padded_for_edge`) and the notch points become compliant; the solve
+    (:func:`slipnet.stress.solve_elastic`, generalized plane strain, periodic cell, columnar grains)
+    runs at the nominal stress along the load axis, and K_t is the largest load-axis normal stress
+    over the applied one within one root radius (plus a step) of the root. Only valid for a
+    notch from a map side (normal along x or y); any other edge is refused.
+    """
+    from .stress import solve_elastic, stress_concentration
+
+    n = np.array([cand.normal_x, cand.normal_y])
+    if min(abs(n[0]), abs(n[1])) > 1e-6:
+        raise ParameterError("concentration='full_field' needs a notch from a map side (normal along x or y); "
+                             "use concentration='peterson' for an oblique edge")
+    om = _padded_for_edge(gg.omap, n)
+    om = om.select(~notch_mask(om, (cand.edge_x, cand.edge_y), n, s.notch))
+    field = solve_elastic(om, s.load_axis, stress=s.stress_amplitude, tol=1e-5, unindexed="compliant")
+    res = stress_concentration(field, cand.root_x, cand.root_y, s.notch.root_radius_um + om.step)
+    return float(res["concentration"])
+
+
 # ---------------------------------------------------------------------------------------------
 # one candidate
 
@@ -513,12 +597,14 @@ def evaluate_candidate(gg, cand: Candidate, s: PlanSettings, systems=None, *, sa
 
     if systems is None:
         systems = slip_systems(gg.omap.phases[0].structure)
-    kt = float(peterson_kt(s.notch.depth_um, s.notch.root_radius_um, s.notch.opening_deg))
+    kt_chart = float(peterson_kt(s.notch.depth_um, s.notch.root_radius_um, s.notch.opening_deg))
+    kt = full_field_kt(gg, cand, s) if s.concentration == "full_field" else kt_chart
     root = np.array([cand.root_x, cand.root_y])
     normal = np.array([cand.normal_x, cand.normal_y])
     load = np.asarray(s.load_axis, dtype=float)
     row = {"candidate": cand.index, "x": cand.root_x, "y": cand.root_y, "edge_x": cand.edge_x,
-           "edge_y": cand.edge_y, "normal_x": cand.normal_x, "normal_y": cand.normal_y, "kt": kt}
+           "edge_y": cand.edge_y, "normal_x": cand.normal_x, "normal_y": cand.normal_y, "kt": kt,
+           "kt_chart": kt_chart}
     row.update(_objectives(gg, root, normal, load, s, systems, kt))
     row["samples"] = []
     if s.samples and row["valid"]:
@@ -691,6 +777,7 @@ def plan_notch(
     seed: int = 0,
     systems=None,
     growth: Mapping | None = None,
+    concentration: str = "peterson",
     scheduler: str = "synchronous",
     workers: int | None = None,
     progress: bool = False,
@@ -734,6 +821,10 @@ def plan_notch(
         Slip systems (default: those of the map's first phase).
     growth
         Extra keyword arguments of :func:`slipnet.growth.simulate_growth`.
+    concentration
+        ``"peterson"`` (chart fit, default) or ``"full_field"``: K_t from an anisotropic elastic
+        solve of the map with each candidate's notch cut in (:func:`full_field_kt`; one solve per
+        candidate, seconds each). ``kt_chart`` always holds the chart value for comparison.
     scheduler, workers, progress
         Dask scheduler for the sweep: ``"synchronous"`` (default), ``"threads"``,
         ``"processes"`` or the address of a running ``dask.distributed`` scheduler
@@ -776,6 +867,7 @@ def plan_notch(
         position_error_um=position_error_um,
         seed=seed,
         growth=dict(growth or {}),
+        concentration=concentration,
     )
     if int(top_k) < 1:
         raise ParameterError(f"top_k should be >= 1; got {top_k!r}")
@@ -800,6 +892,9 @@ def finish_plan(rows: list[dict], s: PlanSettings, *, method: str = "weighted", 
     ratio = s.notch.depth_um / s.notch.root_radius_um
     if not 1.0 <= ratio <= 361.0:
         notes.append(f"depth/root radius = {ratio:g} lies outside the 1–361 range of the K_t chart fit")
+    if s.concentration == "full_field":
+        notes.append("K_t from full-field solves: linear anisotropic elasticity, grains as columns through the "
+                     "thickness, periodic cell with a compliant margin beyond the notched edge (a free surface)")
     load = np.asarray(s.load_axis)
     inplane = math.hypot(load[0], load[1])
     if len(table) and inplane > 1e-9:

@@ -12,7 +12,7 @@ A study file records everything a plan needs so it can be re-run exactly; see
 
     [specimen]     map (path, relative to the study file), threshold_deg, min_grain_size
     [loading]      axis (3 numbers, map frame), stress_amplitude_mpa, stress_ratio
-    [notch]        depth_um, root_radius_um, opening_deg
+    [notch]        depth_um, root_radius_um, opening_deg, concentration ("peterson" | "full_field")
     [candidates]   edge ("left" | "right" | "top" | "bottom" or [[x, y], ...] in µm), spacing_um,
                    window_um, crack_sizes_um (list)
     [objectives]   weights (table objective = weight), method ("weighted" | "pareto"),
@@ -165,7 +165,7 @@ def _run_distributed(gg, candidates, s, systems, address: str, progress: bool) -
 _STUDY_KEYS = {
     "specimen": {"map", "threshold_deg", "min_grain_size"},
     "loading": {"axis", "stress_amplitude_mpa", "stress_ratio"},
-    "notch": {"depth_um", "root_radius_um", "opening_deg"},
+    "notch": {"depth_um", "root_radius_um", "opening_deg", "concentration"},
     "candidates": {"edge", "spacing_um", "window_um", "crack_sizes_um"},
     "objectives": {"weights", "method", "strong_barrier", "top_k", "target"},
     "uncertainty": {"samples", "orientation_noise_deg", "load_misalignment_deg", "position_error_um", "seed"},

@@ -274,3 +274,25 @@ def test_batch_runs_one_study_over_a_folder_of_maps(tmp_path):
     with pytest.raises(InputFileError):
         run_batch(folder, study, tmp_path / "out2")
     assert not (tmp_path / "out2").exists()
+
+
+def test_full_field_kt_of_an_edge_notch_near_the_chart_value():
+    from slipnet.orientation import quat_from_euler
+
+    # A cube-oriented single crystal loaded along [100], 240 µm square, 40 µm deep U notch with a
+    # 10 µm root radius from the top edge: the full-field K_t (free edge from the compliant margin)
+    # lies within 15 % of Peterson's chart fit (Pilkey & Pilkey 2008, from memory; cubic anisotropy,
+    # the 2 µm grid and the finite width account for the rest).
+    ny = nx = 120
+    q = np.broadcast_to(quat_from_euler([0.0, 0.0, 0.0]), (ny, nx, 4)).copy()
+    omap = OrientationMap(q, np.zeros((ny, nx), int), np.ones((ny, nx)), np.ones((ny, nx), bool), 2.0)
+    gg = build_grain_graph(omap)
+    plan = plan_notch(gg, "top", (1, 0, 0), spacing_um=300.0, depth_um=40.0, root_radius_um=10.0,
+                      window_um=60.0, crack_sizes_um=(5.0,), concentration="full_field")
+    row = plan.iloc[0]
+    assert row["kt_chart"] == pytest.approx(peterson_kt(40.0, 10.0))
+    assert 0.85 < row["kt"] / row["kt_chart"] < 1.15
+    assert any("full-field" in n for n in plan.attrs["settings"]["notes"])
+    with pytest.raises(ParameterError, match="concentration should be"):
+        plan_notch(gg, "top", (1, 0, 0), concentration="guess", depth_um=40.0, root_radius_um=10.0,
+                   window_um=60.0, crack_sizes_um=(5.0,))
