@@ -13,7 +13,7 @@ import math
 import numba as nb
 import numpy as np
 
-from ._orientation_kernels import _closed_form_angle, _sort4_desc
+from ._orientation_kernels import _closed_form_angle, _sort4_desc, nearest_cubic_single
 
 # Forward offsets (each unordered neighbour pair once). Hex grid: odd rows shifted +step/2, so the
 # row below an even row is met at columns j-1 and j, below an odd row at j and j+1.
@@ -210,21 +210,9 @@ def quat_moment_sums(quats, valid, labels, refs, only, ops, acc, lo=0, hi=-1):
         r0, r1, r2, r3 = refs[g, 0], refs[g, 1], refs[g, 2], refs[g, 3]
         dot = w * r0 + x * r1 + y * r2 + z * r3
         if abs(dot) < COS_22_5:
-            best = -1.0
-            bw, bx, by, bz = w, x, y, z
-            for k in range(ops.shape[0]):
-                s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
-                tw = s0 * w - s1 * x - s2 * y - s3 * z
-                tx = s0 * x + s1 * w + s2 * z - s3 * y
-                ty = s0 * y - s1 * z + s2 * w + s3 * x
-                tz = s0 * z + s1 * y - s2 * x + s3 * w
-                d = tw * r0 + tx * r1 + ty * r2 + tz * r3
-                if abs(d) > best:
-                    best = abs(d)
-                    dot = d
-                    bw, bx, by, bz = tw, tx, ty, tz
-            w, x, y, z = bw, bx, by, bz
-        if dot < 0.0:
+            # sign already matched to the reference by the shared search
+            w, x, y, z, _ = nearest_cubic_single(w, x, y, z, r0, r1, r2, r3, ops)
+        elif dot < 0.0:
             w, x, y, z = -w, -x, -y, -z
         acc[g, 0] += w * w
         acc[g, 1] += w * x

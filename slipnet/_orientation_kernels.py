@@ -254,6 +254,29 @@ def disorientation_angle_rows(qa, qb, out):
         out[i] = _closed_form_angle(a, b, c, d)
 
 
+@nb.njit(cache=True, inline="always")
+def nearest_cubic_single(w, x, y, z, r0, r1, r2, r3, ops):
+    """Cubic equivalent ``S q`` of ``q = (w, x, y, z)`` closest to ``r``, sign matched to it.
+
+    Returns ``(w', x', y', z', |q'·r|)``. With ``r`` the identity this is the equivalent of
+    smallest rotation angle (largest scalar part), the one loop every reduction here shares.
+    """
+    best = -1.0
+    bw, bx, by, bz = w, x, y, z
+    for k in range(ops.shape[0]):
+        s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
+        tw = s0 * w - s1 * x - s2 * y - s3 * z
+        tx = s0 * x + s1 * w + s2 * z - s3 * y
+        ty = s0 * y - s1 * z + s2 * w + s3 * x
+        tz = s0 * z + s1 * y - s2 * x + s3 * w
+        dot = tw * r0 + tx * r1 + ty * r2 + tz * r3
+        if abs(dot) > best:
+            best = abs(dot)
+            sg = 1.0 if dot >= 0 else -1.0
+            bw, bx, by, bz = sg * tw, sg * tx, sg * ty, sg * tz
+    return bw, bx, by, bz, best
+
+
 @nb.njit(cache=True, parallel=True)
 def disorientation_rows(qa, qb, ops, angle, axis):
     """Disorientation angle (rad) and axis (crystal frame, sorted h >= k >= l >= 0)."""
@@ -264,22 +287,9 @@ def disorientation_rows(qa, qb, ops, angle, axis):
         x = b0 * a1 + b1 * a0 + b2 * a3 - b3 * a2
         y = b0 * a2 - b1 * a3 + b2 * a0 + b3 * a1
         z = b0 * a3 + b1 * a2 - b2 * a1 + b3 * a0
-        best = -1.0
-        bx = 0.0
-        by = 0.0
-        bz = 1.0
-        for k in range(ops.shape[0]):
-            s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
-            tw = s0 * w - s1 * x - s2 * y - s3 * z
-            tx = s0 * x + s1 * w + s2 * z - s3 * y
-            ty = s0 * y - s1 * z + s2 * w + s3 * x
-            tz = s0 * z + s1 * y - s2 * x + s3 * w
-            if abs(tw) > best:
-                best = abs(tw)
-                sg = 1.0 if tw >= 0 else -1.0
-                bx, by, bz = sg * tx, sg * ty, sg * tz
+        bw, bx, by, bz, _ = nearest_cubic_single(w, x, y, z, 1.0, 0.0, 0.0, 0.0, ops)
         vn = math.sqrt(bx * bx + by * by + bz * bz)
-        angle[i] = 2.0 * math.atan2(vn, best)
+        angle[i] = 2.0 * math.atan2(vn, bw)
         if vn < 1e-12:
             axis[i, 0], axis[i, 1], axis[i, 2] = 0.0, 0.0, 1.0
         else:
@@ -291,38 +301,13 @@ def disorientation_rows(qa, qb, ops, angle, axis):
 def reduce_cubic_rows(q, ops, out):
     """Cubic equivalent ``S q`` with the largest scalar part, w >= 0."""
     for i in nb.prange(q.shape[0]):
-        w, x, y, z = q[i, 0], q[i, 1], q[i, 2], q[i, 3]
-        best = -1.0
-        for k in range(ops.shape[0]):
-            s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
-            tw = s0 * w - s1 * x - s2 * y - s3 * z
-            if abs(tw) > best:
-                best = abs(tw)
-                sg = 1.0 if tw >= 0 else -1.0
-                out[i, 0] = sg * tw
-                out[i, 1] = sg * (s0 * x + s1 * w + s2 * z - s3 * y)
-                out[i, 2] = sg * (s0 * y - s1 * z + s2 * w + s3 * x)
-                out[i, 3] = sg * (s0 * z + s1 * y - s2 * x + s3 * w)
+        out[i, 0], out[i, 1], out[i, 2], out[i, 3], _ = nearest_cubic_single(
+            q[i, 0], q[i, 1], q[i, 2], q[i, 3], 1.0, 0.0, 0.0, 0.0, ops)
 
 
 @nb.njit(cache=True, parallel=True)
 def nearest_cubic_rows(q, ref, ops, out):
     """Cubic equivalent ``S q`` closest to ``ref`` (one reference per row), sign matched to it."""
     for i in nb.prange(q.shape[0]):
-        w, x, y, z = q[i, 0], q[i, 1], q[i, 2], q[i, 3]
-        r0, r1, r2, r3 = ref[i, 0], ref[i, 1], ref[i, 2], ref[i, 3]
-        best = -1.0
-        for k in range(ops.shape[0]):
-            s0, s1, s2, s3 = ops[k, 0], ops[k, 1], ops[k, 2], ops[k, 3]
-            tw = s0 * w - s1 * x - s2 * y - s3 * z
-            tx = s0 * x + s1 * w + s2 * z - s3 * y
-            ty = s0 * y - s1 * z + s2 * w + s3 * x
-            tz = s0 * z + s1 * y - s2 * x + s3 * w
-            dot = tw * r0 + tx * r1 + ty * r2 + tz * r3
-            if abs(dot) > best:
-                best = abs(dot)
-                sg = 1.0 if dot >= 0 else -1.0
-                out[i, 0] = sg * tw
-                out[i, 1] = sg * tx
-                out[i, 2] = sg * ty
-                out[i, 3] = sg * tz
+        out[i, 0], out[i, 1], out[i, 2], out[i, 3], _ = nearest_cubic_single(
+            q[i, 0], q[i, 1], q[i, 2], q[i, 3], ref[i, 0], ref[i, 1], ref[i, 2], ref[i, 3], ops)
