@@ -248,6 +248,17 @@ def _find(parent, i):
     return i
 
 
+@nb.njit(cache=True, inline="always")
+def _union(parent, i, j):
+    """Join the sets of ``i`` and ``j``; the smaller root wins, so a root is its set's first index."""
+    ri = _find(parent, i)
+    rj = _find(parent, j)
+    if ri < rj:
+        parent[rj] = ri
+    elif rj < ri:
+        parent[ri] = rj
+
+
 @nb.njit(cache=True)
 def union_pairs(parent, a, b, join):
     """Union ``a[k]`` and ``b[k]`` wherever ``join[k]``; the root of a set is its smallest index.
@@ -258,14 +269,7 @@ def union_pairs(parent, a, b, join):
     for k in range(a.shape[0]):
         if not join[k]:
             continue
-        ra = _find(parent, a[k])
-        rb = _find(parent, b[k])
-        if ra == rb:
-            continue
-        if ra < rb:
-            parent[rb] = ra
-        else:
-            parent[ra] = rb
+        _union(parent, a[k], b[k])
     for i in range(parent.shape[0]):
         parent[i] = _find(parent, i)
 
@@ -276,14 +280,7 @@ def union_below(parent, a, b, angle, threshold):
     for k in range(a.shape[0]):
         if not angle[k] < threshold:
             continue
-        ra = _find(parent, a[k])
-        rb = _find(parent, b[k])
-        if ra == rb:
-            continue
-        if ra < rb:
-            parent[rb] = ra
-        else:
-            parent[ra] = rb
+        _union(parent, a[k], b[k])
     for i in range(parent.shape[0]):
         parent[i] = _find(parent, i)
 
