@@ -3,17 +3,16 @@
 from __future__ import annotations
 
 import itertools
-from types import SimpleNamespace
 
-import networkx as nx
 import numpy as np
 import pandas as pd
 import pytest
+from _stubs import bicrystal_graph_stub
 
 from slipnet import _slip_kernels as K
 from slipnet.errors import ParameterError
 from slipnet.maps import OrientationMap, Phase
-from slipnet.orientation import matrix_from_quat, quat_from_axis_angle, quat_from_euler, random_quats
+from slipnet.orientation import matrix_from_quat, quat_from_axis_angle, random_quats
 from slipnet.slip import (
     effective_schmid,
     grain_schmid_table,
@@ -344,20 +343,7 @@ def test_taylor_nan_and_duplicates():
 
 
 # ------------------------------------------------------------------------------------- grain tables
-def _two_grain_graph():
-    euler = np.zeros((4, 6, 3))
-    euler[:, 3:] = [30.0, 40.0, 10.0]
-    omap = OrientationMap.from_euler(euler, step=1.0, phases=(Phase("ferrite", "bcc", 0.2866),))
-    labels = np.zeros((4, 6), np.int64)
-    labels[:, 3:] = 1
-    g = nx.Graph()
-    for k, x in ((0, 1.0), (1, 4.0)):
-        g.add_node(k, phase=0, centroid_x_um=x, centroid_y_um=1.5, ecd_um=3.0)
-    g.add_edge(0, 1, boundary_id=0, trace_angle_deg=90.0, length_um=4.0)
-    mean = np.stack([quat_from_euler([0, 0, 0]), quat_from_euler([30.0, 40.0, 10.0])])
-    bnd = pd.DataFrame({"boundary_id": [0], "grain_a": [0], "grain_b": [1]})
-    return SimpleNamespace(omap=omap, labels=labels, graph=g, mean_quats=mean, boundaries=bnd,
-                           boundary_polylines={0: [np.array([[2.5, -0.5], [2.5, 3.5]])]})
+_two_grain_graph = bicrystal_graph_stub
 
 
 def test_grain_schmid_table_and_trace_table():

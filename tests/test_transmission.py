@@ -2,17 +2,14 @@
 
 from __future__ import annotations
 
-from types import SimpleNamespace
-
-import networkx as nx
 import numpy as np
 import pandas as pd
 import pytest
+from _stubs import bicrystal_graph_stub
 
 from slipnet import _slip_kernels as K
 from slipnet.errors import ParameterError
-from slipnet.maps import OrientationMap, Phase
-from slipnet.orientation import CUBIC_OPERATORS, quat_from_axis_angle, quat_from_euler, quat_multiply, random_quats
+from slipnet.orientation import CUBIC_OPERATORS, quat_from_axis_angle, quat_multiply, random_quats
 from slipnet.slip import effective_schmid, schmid_factors, slip_systems
 from slipnet.transmission import (
     EDGE_KEYS,
@@ -144,20 +141,7 @@ def test_summaries_directional_and_nan_grains():
         transmission_summaries(q, [0], [5], SYS, load_axis=[1, 0, 0])
 
 
-def _bicrystal():
-    euler = np.zeros((4, 6, 3))
-    euler[:, 3:] = [30.0, 40.0, 10.0]
-    omap = OrientationMap.from_euler(euler, step=1.0, phases=(Phase("ferrite", "bcc", 0.2866),))
-    labels = np.zeros((4, 6), np.int64)
-    labels[:, 3:] = 1
-    g = nx.Graph()
-    for k, x in ((0, 1.0), (1, 4.0)):
-        g.add_node(k, phase=0, centroid_x_um=x, centroid_y_um=1.5, ecd_um=3.0)
-    g.add_edge(0, 1, boundary_id=0, trace_angle_deg=90.0, length_um=4.0)
-    mean = np.stack([quat_from_euler([0, 0, 0]), quat_from_euler([30.0, 40.0, 10.0])])
-    bnd = pd.DataFrame({"boundary_id": [0], "grain_a": [0], "grain_b": [1]})
-    return SimpleNamespace(omap=omap, labels=labels, graph=g, mean_quats=mean, boundaries=bnd,
-                           boundary_polylines={0: [np.array([[2.5, -0.5], [2.5, 3.5]])]})
+_bicrystal = bicrystal_graph_stub
 
 
 def test_annotate_transmission_on_a_bicrystal():
