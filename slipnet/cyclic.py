@@ -1,0 +1,721 @@
+"""Cyclic crystal plasticity on the orientation map: implicit full-field solve, FIPs and slip bands.
+
+Constitutive model (small strain, per point, crystal frame)
+-----------------------------------------------------------
+* Stress ``σ = C : (ε − ε_p)``, plastic strain rate ``ε̇_p = Σ_α γ̇_α P_α``, ``P_α = sym(d_α ⊗ n_α)``.
+* Flow rule, power law (Hutchinson 1976, Proc. R. Soc. Lond. A 348:101):
+  ``γ̇_α = γ̇₀ |(τ_α − χ_α)/g_α|ⁿ sign(τ_α − χ_α)``; g_α times the catalogue's reverse-sense
+  ratio when ``τ_α − χ_α < 0`` (the BCC {112} twinning / anti-twinning asymmetry).
+* Kinematic hardening per system, Armstrong–Frederick (Armstrong & Frederick 1966, CEGB report
+  RD/B/N731; reviewed by Chaboche 1989, Int. J. Plast. 5:247): ``χ̇_α = c γ̇_α − d χ_α |γ̇_α|``.
+* Isotropic hardening, Voce type with a latent matrix (the crystal form of Méric & Cailletaud
+  1991, J. Eng. Mater. Technol. 113:162, from memory) plus an optional linear term:
+  ``g_α = τ₀_α + Σ_β h_αβ [Q (1 − exp(−b v_β)) + θ v_β]``, v_β the accumulated slip of system β,
+  ``h_αβ = q + (1 − q) δ_αβ`` (latent ratio q).
+* Optional boundary layer: within ``boundary_width_um`` of another grain, ``τ₀_α`` rises by
+  ``boundary_strength_mpa · (1 − max_β m′_αβ)`` with m′ the Luster–Morris factor between system α
+  and the systems β of the grain across (after the slip-penetration resistance of Ma, Roters &
+  Raabe 2006, Acta Mater. 54:2169 — from memory, not checked here).
+
+Integration: backward Euler per point solved by Newton's method with the consistent tangent
+(:mod:`slipnet._cyclic_kernels`), inside the spectral Newton–Krylov load stepping of
+:mod:`slipnet._cyclic_solver` (stress or mixed strain control); increments per half cycle are
+adapted to the largest slip increment and cut back when a Newton step fails.
+
+Fatigue indicator (Fatemi & Socie 1988, Fatigue Fract. Eng. Mater. Struct. 11:149, in its
+crystal-plasticity form): ``FIP_α = (Δγ_α/2) (1 + k σ_n,α^max / σ_y)`` with Δγ_α the slip range of
+system α over the last cycle and σ_n,α^max the largest normal stress on its plane during that
+cycle; averaged over slip bands (Castelluccio & McDowell 2014, Mater. Sci. Eng. A 598:34, from
+memory).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import _cyclic_bands as _bands
+from . import _cyclic_kernels as _ck
+from . import _cyclic_solver as _solver
+from ._checks import check_choice, check_positive, check_range, check_vector
+from .errors import ParameterError
+from .maps import OrientationMap
+from .orientation import nearest_equivalent
+from .stress import (
+    SCHEMES,
+    UNINDEXED_MODES,
+    _default_systems,
+    _numba_threads,
+    _prepare,
+    _workers,
+    assumptions_text,
+    from_mandel,
+    to_mandel,
+    voigt_reuss_hill,
+)
+
+__all__ = ["CyclicField", "CyclicMaterial", "cyclic_assumptions", "solve_cyclic", "solve_monotonic",
+           "write_cyclic_outputs"]
+
+#: Taylor factor of an untextured cubic polycrystal for {111}<110> / pencil glide, about 3.06
+#: (Taylor 1938, J. Inst. Met. 62:307; from memory): the default σ_y is this times τ₀.
+RANDOM_TAYLOR_FACTOR = 3.06
+#: Fatemi–Socie normal-stress sensitivity k; 0.5 is the value commonly used in
+#: crystal-plasticity FIP studies (e.g. Castelluccio & McDowell 2014; from memory).
+DEFAULT_FIP_K = 0.5
+
+
+@dataclass(frozen=True)
+class CyclicMaterial:
+    """Slip-system parameters of the cyclic model (MPa, 1/s, dimensionless).
+
+    The defaults are a plausible ferritic steel at room temperature, chosen to give
+    localisation and a stabilised loop within a few cycles, not fitted to a test: set your own.
+
+    Parameters
+    ----------
+    crss_mpa
+        Initial critical resolved shear stress τ₀, MPa, times each system's relative CRSS.
+    rate_exponent
+        Power-law exponent n, in [2, 200].
+    reference_rate
+        Reference slip rate γ̇₀, 1/s.
+    voce_mpa, voce_rate
+        Voce saturation increase Q (MPa) and rate b of the isotropic hardening.
+    linear_hardening_mpa
+        Linear isotropic hardening θ, MPa (per unit slip).
+    latent_ratio
+        Latent hardening ratio q (1: isotropic coupling; 1.0–1.4 common practice).
+    backstress_modulus_mpa, backstress_recovery
+        Armstrong–Frederick c (MPa) and d (–); the backstress saturates at c/d.
+    """
+
+    crss_mpa: float = 90.0
+    rate_exponent: float = 20.0
+    reference_rate: float = 1e-3
+    voce_mpa: float = 30.0
+    voce_rate: float = 30.0
+    linear_hardening_mpa: float = 0.0
+    latent_ratio: float = 1.4
+    backstress_modulus_mpa: float = 15000.0
+    backstress_recovery: float = 300.0
+
+    def __post_init__(self) -> None:
+        check_positive(self.crss_mpa, "crss_mpa")
+        check_range(self.rate_exponent, "rate_exponent", 2.0, 200.0)
+        check_positive(self.reference_rate, "reference_rate")
+        check_positive(self.voce_mpa, "voce_mpa", allow_zero=True)
+        check_positive(self.voce_rate, "voce_rate", allow_zero=True)
+        check_positive(self.linear_hardening_mpa, "linear_hardening_mpa", allow_zero=True)
+        check_positive(self.latent_ratio, "latent_ratio", allow_zero=True)
+        check_positive(self.backstress_modulus_mpa, "backstress_modulus_mpa", allow_zero=True)
+        check_positive(self.backstress_recovery, "backstress_recovery", allow_zero=True)
+
+    def as_dict(self) -> dict:
+        """The parameters as a plain dict."""
+        return {k: float(getattr(self, k)) for k in self.__dataclass_fields__}
+
+
+def cyclic_assumptions(scheme: str = "rotated", compliant_ratio: float = 1e-3, grid: str = "square",
+                       unindexed: str = "auto", crack: bool = False, boundary: bool = False) -> str:
+    """The statement every output of :func:`solve_cyclic` prints."""
+    text = assumptions_text(scheme, compliant_ratio, grid, plastic=True, unindexed=unindexed)
+    text += (" Small strain, no lattice rotation; rate-dependent slip (power law) with Armstrong–Frederick "
+             "backstress and Voce isotropic hardening per system, integrated by backward Euler; only the main "
+             "phase slips (other phases elastic).")
+    if crack:
+        text += " The crack is a traction-free slit one grid cell wide (compliant points); its tip field is " \
+                "mesh dependent (the crack-tip peak does not converge under grid refinement)."
+    if boundary:
+        text += " A boundary layer raises each system's resistance by strength × (1 − best m′ to the grain across)."
+    return text
+
+
+@dataclass(frozen=True, eq=False)
+class CyclicField:
+    """Result of :func:`solve_cyclic` (or :func:`solve_monotonic`).
+
+    Attributes
+    ----------
+    accumulated_slip : (ny, nx) ndarray
+        ``Σ_α ∫|γ̇_α| dt`` over the whole history (dimensionless).
+    slip_range : (ny, nx) ndarray
+        Largest slip range ``max_α Δγ_α`` over the last cycle (over the whole ramp for a monotonic run).
+    fip : (ny, nx) ndarray
+        Largest Fatemi–Socie FIP over the systems per point (0 at compliant points).
+    bands : pandas.DataFrame
+        Ranked slip bands: ``rank``, ``grain``, ``system``, ``label``, ``family``, ``band``, ``n_points``,
+        ``fip_mean``, ``slip_range_mean``, ``x_um``, ``y_um`` (centroid), ``trace_angle_deg``, ``width_um``,
+        ``area_um2``.
+    history : pandas.DataFrame
+        One row per increment: ``increment``, ``cycle`` (0 = first loading), ``segment`` (``ramp``,
+        ``unload``, ``reload``), ``time_s``, ``load``, ``stress_mpa`` and ``strain`` (mean along the load
+        axis: the macroscopic hysteresis loop), ``plastic_strain``, ``max_slip_increment``,
+        ``newton_iterations``, ``cg_iterations``.
+    settings : dict
+        The inputs and solver totals.
+    assumptions : str
+        The modelling assumptions; every output prints them.
+    grain_response : pandas.DataFrame
+        Per grain: ``grain``, ``n_points``, ``accumulated_slip_mean``, ``slip_range_mean``,
+        ``plastic_strain_axial``, ``ratchet_strain_per_cycle``, ``response`` (``elastic shakedown``,
+        ``plastic shakedown`` or ``ratcheting``).
+    slip : (ny, nx, ns) ndarray
+        Signed slip per system at the end.
+    system_slip_range, system_fip, peak_backstress : (ny, nx, ns) ndarray
+        Per system: last-cycle slip range, FIP, and the backstress χ at the final (peak) load, MPa.
+    peak_stress, plastic_strain : (ny, nx, 3, 3) ndarray
+        Stress (MPa) and plastic strain at the final (peak) load, map frame.
+    labels : (ny, nx) int ndarray
+        Grain ids used for the bands (−1: none).
+    compliant, crack_mask : (ny, nx) bool ndarray
+        Compliant points (notch, holes, crack) and the crack slit alone.
+    boundary_partner : (ny, nx) int ndarray
+        The grain across for points in the boundary layer, −1 elsewhere.
+    systems
+        The slip systems (``SlipSystems``).
+    omap : OrientationMap
+        The map solved on (orientations as their cubic equivalents nearest each grain mean).
+    load_axis : (3,) ndarray
+    """
+
+    accumulated_slip: np.ndarray
+    slip_range: np.ndarray
+    fip: np.ndarray
+    bands: pd.DataFrame
+    history: pd.DataFrame
+    settings: dict
+    assumptions: str
+    grain_response: pd.DataFrame
+    slip: np.ndarray
+    system_slip_range: np.ndarray
+    system_fip: np.ndarray
+    peak_backstress: np.ndarray
+    peak_stress: np.ndarray
+    plastic_strain: np.ndarray
+    labels: np.ndarray
+    compliant: np.ndarray
+    crack_mask: np.ndarray
+    boundary_partner: np.ndarray
+    systems: object
+    omap: OrientationMap
+    load_axis: np.ndarray
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """``(ny, nx)``."""
+        return self.fip.shape
+
+    def last_cycle(self) -> pd.DataFrame:
+        """History rows of the last cycle (the stabilised hysteresis loop when shaken down)."""
+        h = self.history
+        return h[h["cycle"] == h["cycle"].max()].reset_index(drop=True)
+
+    def top_fraction(self, values: str = "fip", fraction: float = 0.1) -> np.ndarray:
+        """Boolean ``(ny, nx)`` mask of the solid points in the top ``fraction`` of ``fip``,
+        ``accumulated_slip`` or ``slip_range``."""
+        name = check_choice(values, "values", ("fip", "accumulated_slip", "slip_range"))
+        f = check_range(fraction, "fraction", 0.0, 1.0, inclusive=False)
+        v = getattr(self, name)
+        solid = ~self.compliant
+        cut = np.quantile(v[solid], 1.0 - f)
+        return solid & (v >= cut) & (v > 0)
+
+
+# ---------------------------------------------------------------------------- checks
+def _count(value, name: str, low: int = 1) -> int:
+    if isinstance(value, bool) or not isinstance(value, int | np.integer) or value < low:
+        raise ParameterError(f"{name} should be an integer >= {low}; got {value!r}")
+    return int(value)
+
+
+def _amplitudes(stress_amplitude, strain_amplitude, ratio) -> tuple[str, float, float, float]:
+    if (stress_amplitude is None) == (strain_amplitude is None):
+        raise ParameterError("give exactly one of stress_amplitude (MPa) and strain_amplitude; got "
+                             f"stress_amplitude={stress_amplitude!r}, strain_amplitude={strain_amplitude!r}")
+    control = "stress" if stress_amplitude is not None else "strain"
+    name = "stress_amplitude" if control == "stress" else "strain_amplitude"
+    raw = stress_amplitude if control == "stress" else strain_amplitude
+    try:
+        amp = float(raw)
+    except (TypeError, ValueError) as err:
+        raise ParameterError(f"{name} should be a positive number; got {raw!r}") from err
+    if not (math.isfinite(amp) and amp > 0):
+        raise ParameterError(f"{name} should be a positive number (half the load range); got {raw!r}")
+    try:
+        r = float(ratio)
+    except (TypeError, ValueError) as err:
+        raise ParameterError(f"ratio should be a number < 1 (R = min/max load); got {ratio!r}") from err
+    if not (math.isfinite(r) and r < 1.0):
+        raise ParameterError(f"ratio should be a finite number < 1 (R = min/max load; R >= 1 has no tensile peak "
+                             f"or no range); got {ratio!r}")
+    top = 2.0 * amp / (1.0 - r)
+    return control, amp, top, r * top
+
+
+def _tol(tol) -> float:
+    try:
+        t = float(tol)
+    except (TypeError, ValueError) as err:
+        raise ParameterError(f"tol should be a number in (0, 1); got {tol!r}") from err
+    if not (math.isfinite(t) and 0.0 < t < 1.0):
+        raise ParameterError(f"tol should lie in (0, 1) (a normalised residual, e.g. 1e-5); got {tol!r}")
+    return t
+
+
+# ---------------------------------------------------------------------------- set-up
+def _grains(omap: OrientationMap, grains):
+    if grains is None:
+        from .grains import build_grain_graph
+
+        grains = build_grain_graph(omap)
+    labels = np.asarray(getattr(grains, "labels", None))
+    mq = np.asarray(getattr(grains, "mean_quats", None), dtype=float)
+    if labels.shape != omap.shape or mq.ndim != 2 or mq.shape[1] != 4:
+        raise ParameterError("grains should be a GrainGraph of this map (labels of shape "
+                             f"{omap.shape} and mean_quats (n, 4)); got labels {labels.shape}, mean_quats {mq.shape}")
+    return labels.astype(np.int64), mq
+
+
+def _aligned(omap: OrientationMap, labels: np.ndarray, mq: np.ndarray) -> OrientationMap:
+    """Each point as its cubic equivalent nearest its grain mean (same physics; system indices
+    then mean the same system throughout a grain)."""
+    q = np.array(omap.quats, dtype=float)
+    sel = (labels >= 0) & omap.indexed
+    if sel.any():
+        ref = mq[labels[sel]]
+        ok = np.all(np.isfinite(ref), axis=1)
+        flat = q.reshape(-1, 4)
+        idx = np.flatnonzero(sel.ravel())[ok]
+        flat[idx] = nearest_equivalent(flat[idx], ref[ok])
+    return replace(omap, quats=q)
+
+
+def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unindexed, scheme, nthreads,
+             crack_pts, labels, mq, boundary_width, boundary_strength):
+    c, q, ph, soft, consts = _prepare(omap, constants, ratio_c, unindexed)
+    ny, nx = omap.shape
+    n = ny * nx
+    soft = soft.copy()
+    cmask = np.zeros((ny, nx), bool)
+    if crack_pts is not None:
+        cmask = _bands.crack_mask(crack_pts, omap)
+        main = int(np.bincount(ph[ph >= 0]).argmax()) if (ph >= 0).any() else 0
+        vrh = voigt_reuss_hill(consts[main])
+        lam = vrh["bulk_gpa"] - 2.0 * vrh["shear_hill_gpa"] / 3.0
+        soft_c = np.zeros((6, 6))
+        soft_c[:3, :3] = lam
+        soft_c[np.arange(6), np.arange(6)] += 2.0 * vrh["shear_hill_gpa"]
+        c[cmask.reshape(n)] = ratio_c * soft_c * 1000.0
+        ph = np.where(cmask.reshape(n), -1, ph)
+        soft |= cmask
+        if soft.all():
+            raise ParameterError("the crack leaves no solid point; give a shorter crack")
+    structure = systems.structure
+    plastic_phases = [i for i, p in enumerate(omap.phases) if p.structure == structure]
+    pmap = -np.ones(len(omap.phases), np.int64)
+    for k, i in enumerate(plastic_phases):
+        pmap[i] = k
+    pidx = np.where(ph >= 0, pmap[np.maximum(ph, 0)], -1).astype(np.int64)
+    nrm = np.asarray(systems.normals, float)
+    drc = np.asarray(systems.directions, float)
+    schmid = np.ascontiguousarray(to_mandel(0.5 * (drc[:, :, None] * nrm[:, None, :] + nrm[:, :, None] * drc[:, None, :])))
+    plane_nn = np.ascontiguousarray(to_mandel(nrm[:, :, None] * nrm[:, None, :]))
+    cc = np.stack([consts[i].mandel() * 1000.0 for i in plastic_phases]) if plastic_phases else np.zeros((1, 6, 6))
+    cp = np.ascontiguousarray(np.einsum("kab,sb->ksa", cc, schmid))
+    amat = np.ascontiguousarray(np.einsum("ksa,ta->kst", cp, schmid))
+    ns = len(nrm)
+    hmat = mat.latent_ratio + (1.0 - mat.latent_ratio) * np.eye(ns)
+    rel = np.asarray(systems.crss, float)
+    rev = np.asarray(systems.crss_reverse, float) / rel
+    tau0 = np.repeat((mat.crss_mpa * rel)[None, :], n, axis=0)
+    partner = -np.ones((ny, nx), np.int64)
+    if boundary_width > 0 and boundary_strength > 0:
+        gn, gd = _bands.grain_frames(mq, systems)
+        extra, partner = _bands.boundary_layer(labels, ~soft & omap.indexed, omap, gn, gd, boundary_width,
+                                               boundary_strength)
+        tau0 += extra.reshape(n, ns)
+    qrot = np.empty((n, 6, 6))
+    _ck.rotations(q, qrot)
+    x, y = omap.coordinates()
+    prob = _solver.Problem(
+        shape=(ny, nx), spacing=(omap.row_spacing, omap.step), scheme=scheme, workers=nthreads,
+        c_el=np.ascontiguousarray(c), qrot=qrot, pidx=pidx, cc=np.ascontiguousarray(cc), cp=cp, amat=amat,
+        schmid=schmid, plane_nn=plane_nn, hmat=np.ascontiguousarray(hmat), rev=np.ascontiguousarray(rev),
+        tau0=np.ascontiguousarray(tau0), axis6=to_mandel(np.outer(axis, axis)),
+        xy=np.stack([x.reshape(n), y.reshape(n)], axis=1), labels=labels.reshape(n),
+    )
+    return prob, soft, cmask, partner
+
+
+def _schedule(top: float, bottom: float, cycles: int) -> list:
+    segs = [_solver.Segment(0, "ramp", 0.0, top)]
+    for k in range(1, cycles + 1):
+        segs.append(_solver.Segment(k, "unload", top, bottom))
+        segs.append(_solver.Segment(k, "reload", bottom, top))
+    return segs
+
+
+def _printer(progress, total_cycles: int):
+    if progress is None or progress is False:
+        return None
+    if callable(progress):
+        return progress
+    state = {"key": None}
+
+    def show(row: dict) -> None:
+        key = (row["cycle"], row["segment"])
+        if key != state["key"]:
+            state["key"] = key
+            print(f"cyclic: cycle {row['cycle']}/{total_cycles} {row['segment']}", flush=True)
+        print(f"  increment {row['increment']}: load {row['load']:.4g}, stress {row['stress_mpa']:.1f} MPa, "
+              f"strain {row['strain']:.3e}, {row['newton_iterations']} Newton / {row['cg_iterations']} CG "
+              "iterations", flush=True)
+
+    return show
+
+
+# ---------------------------------------------------------------------------- public solvers
+def solve_cyclic(
+    omap: OrientationMap,
+    load_axis,
+    *,
+    stress_amplitude: float | None = None,
+    strain_amplitude: float | None = None,
+    ratio: float = -1.0,
+    cycles: int = 3,
+    frequency_hz: float = 1.0,
+    crack=None,
+    grains=None,
+    material: CyclicMaterial | None = None,
+    systems=None,
+    boundary_width_um: float = 0.0,
+    boundary_strength_mpa: float = 50.0,
+    fip_k: float = DEFAULT_FIP_K,
+    yield_stress_mpa: float | None = None,
+    band_width_um: float | None = None,
+    band_min_points: int = 3,
+    tol: float = 1e-5,
+    max_iter: int = 3000,
+    max_newton: int = 12,
+    max_local: int = 40,
+    max_slip_increment: float = 1e-3,
+    min_increments: int = 6,
+    max_cutbacks: int = 8,
+    slip_floor: float = 1e-9,
+    constants=None,
+    compliant_ratio: float = 1e-3,
+    unindexed: str = "auto",
+    scheme: str = "rotated",
+    workers: int | None = None,
+    progress: bool | Callable[[dict], None] | None = None,
+    _first_segment_only: bool = False,
+) -> CyclicField:
+    """Cyclic crystal plasticity of a periodic columnar polycrystal under uniaxial load.
+
+    The load rises from zero to its maximum (cycle 0, "first loading"), then each of ``cycles``
+    cycles goes maximum → minimum → maximum (triangular wave of frequency ``frequency_hz``).
+
+    Parameters
+    ----------
+    omap
+        The orientation map (one point = one column of material). Unindexed points and a notch
+        are a compliant phase as in :func:`slipnet.stress.solve_elastic`.
+    load_axis : (3,) array_like
+        Uniaxial load axis, map frame (a 2-vector means in-plane).
+    stress_amplitude
+        Stress amplitude σ_a = (σ_max − σ_min)/2, MPa (stress control). Give this or ``strain_amplitude``.
+    strain_amplitude
+        Amplitude of the mean axial strain (mixed control: the other mean stresses are zero).
+    ratio
+        Load ratio R = min/max, < 1 (−1 fully reversed, 0 pulsating, 0.1 …).
+    cycles
+        Number of full cycles after the first loading, ≥ 1.
+    frequency_hz
+        Loading frequency, Hz (the model is rate dependent).
+    crack : (k, 2) array_like, optional
+        Crack polyline, µm map frame, vertices from the mouth (e.g. the notch root) to the tip (last
+        vertex); cut in as a traction-free slit one cell wide.
+    grains
+        A ``GrainGraph`` of the map (labels and mean orientations, used for bands and the boundary
+        layer); built with a 15° threshold if None.
+    material
+        :class:`CyclicMaterial` (defaults if None).
+    systems
+        Slip systems (default: the catalogue's default for the main phase, BCC {110}+{112}; pass
+        ``slip_systems("bcc", "all")`` for {123} as well).
+    boundary_width_um, boundary_strength_mpa
+        Boundary layer width (µm, 0: none) and the largest resistance rise (MPa, for m′ = 0).
+    fip_k, yield_stress_mpa
+        Fatemi–Socie k (default 0.5) and σ_y, MPa (default 3.06 × τ₀, the random-texture Taylor
+        factor times the CRSS).
+    band_width_um, band_min_points
+        Slip band width (default 3 map steps) and the fewest points a band needs.
+    tol
+        Normalised equilibrium residual of each increment.
+    max_iter, max_newton, max_local
+        Most CG iterations per linear solve, global Newton iterations per increment, local Newton
+        iterations per point.
+    max_slip_increment
+        Target largest slip increment per load increment (steps adapt to it).
+    min_increments
+        Fewest increments per half cycle (and for the first loading).
+    max_cutbacks
+        Most successive cut-backs of one increment before :class:`NumericalError`.
+    slip_floor
+        Slip increments below this are neglected (systems with a smaller rate stay inactive).
+    constants, compliant_ratio, unindexed, scheme, workers
+        As in :func:`slipnet.stress.solve_elastic` (``unindexed`` default ``"auto"``).
+    progress
+        True to print one line per increment, or a callable receiving each history row (dict).
+
+    Returns
+    -------
+    CyclicField
+
+    Raises
+    ------
+    ParameterError
+        Bad arguments (negative amplitude, R ≥ 1, zero cycles, a crack outside the map, …).
+    NumericalError
+        A Newton step that does not converge after ``max_cutbacks`` cut-backs; the message says in
+        which cycle, increment, time and load, and at which point. Nothing is returned or written.
+    """
+    control, amp, top, bottom = _amplitudes(stress_amplitude, strain_amplitude, ratio)
+    n_cycles = _count(cycles, "cycles")
+    freq = check_positive(frequency_hz, "frequency_hz")
+    segments = _schedule(top, bottom, n_cycles)
+    if _first_segment_only:
+        segments = segments[:1]
+    rate = 2.0 * (top - bottom) * freq
+    return _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, grains, material, systems,
+                  boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points,
+                  tol, max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, slip_floor,
+                  constants, compliant_ratio, unindexed, scheme, workers, progress,
+                  {"ratio": float(ratio), "cycles": n_cycles, "frequency_hz": freq})
+
+
+def solve_monotonic(
+    omap: OrientationMap,
+    load_axis,
+    stress: float,
+    *,
+    load_time_s: float = 10.0,
+    control: str = "stress",
+    crack=None,
+    grains=None,
+    material: CyclicMaterial | None = None,
+    systems=None,
+    boundary_width_um: float = 0.0,
+    boundary_strength_mpa: float = 50.0,
+    tol: float = 1e-5,
+    max_iter: int = 3000,
+    max_newton: int = 12,
+    max_local: int = 40,
+    max_slip_increment: float = 1e-3,
+    min_increments: int = 6,
+    max_cutbacks: int = 8,
+    slip_floor: float = 1e-9,
+    constants=None,
+    compliant_ratio: float = 1e-3,
+    unindexed: str = "auto",
+    scheme: str = "rotated",
+    workers: int | None = None,
+    progress: bool | Callable[[dict], None] | None = None,
+) -> CyclicField:
+    """Monotonic special case of :func:`solve_cyclic`: a linear ramp from 0 to ``stress`` in ``load_time_s``.
+
+    ``stress`` is the final uniaxial stress (MPa) with ``control="stress"``, or the final mean axial
+    strain with ``control="strain"``. The slip range and FIP then refer to the ramp. Other
+    parameters as in :func:`solve_cyclic`.
+    """
+    control = check_choice(control, "control", ("stress", "strain"))
+    try:
+        top = float(stress)
+    except (TypeError, ValueError) as err:
+        raise ParameterError(f"stress should be a finite non-zero number; got {stress!r}") from err
+    if not math.isfinite(top) or top == 0.0:
+        raise ParameterError(f"stress should be a finite non-zero number; got {stress!r}")
+    t_load = check_positive(load_time_s, "load_time_s")
+    segments = [_solver.Segment(0, "ramp", 0.0, top)]
+    return _solve(omap, load_axis, control, segments, abs(top) / t_load, abs(top), top, 0.0, crack, grains, material,
+                  systems, boundary_width_um, boundary_strength_mpa, DEFAULT_FIP_K, None, None, 3, tol, max_iter,
+                  max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, slip_floor, constants,
+                  compliant_ratio, unindexed, scheme, workers, progress, {"load_time_s": t_load, "cycles": 0})
+
+
+def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, grains, material, systems,
+           boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points, tol,
+           max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, slip_floor, constants,
+           compliant_ratio, unindexed, scheme, workers, progress, extra) -> CyclicField:
+    if not isinstance(omap, OrientationMap):
+        raise ParameterError(f"omap should be an OrientationMap; got {type(omap).__name__}")
+    axis = check_vector(load_axis, "load_axis")
+    mat = CyclicMaterial() if material is None else material
+    if not isinstance(mat, CyclicMaterial):
+        raise ParameterError(f"material should be a CyclicMaterial; got {type(mat).__name__}")
+    tol = _tol(tol)
+    numer = _solver.Numerics(
+        tol=tol, max_iter=_count(max_iter, "max_iter"), max_newton=_count(max_newton, "max_newton"),
+        max_local=_count(max_local, "max_local"),
+        slip_target=check_range(max_slip_increment, "max_slip_increment", 1e-7, 0.05),
+        min_increments=_count(min_increments, "min_increments"), slip_floor=check_range(slip_floor, "slip_floor",
+                                                                                        1e-16, 1e-5),
+        max_cutbacks=_count(max_cutbacks, "max_cutbacks", 0), nblocks=1)
+    bw = check_positive(boundary_width_um, "boundary_width_um", allow_zero=True)
+    bs = check_positive(boundary_strength_mpa, "boundary_strength_mpa", allow_zero=True)
+    k_fs = check_positive(fip_k, "fip_k", allow_zero=True)
+    sy = RANDOM_TAYLOR_FACTOR * mat.crss_mpa if yield_stress_mpa is None else check_positive(yield_stress_mpa,
+                                                                                             "yield_stress_mpa")
+    wband = 3.0 * omap.step if band_width_um is None else check_positive(band_width_um, "band_width_um")
+    mpts = _count(band_min_points, "band_min_points")
+    ratio_c = check_range(compliant_ratio, "compliant_ratio", 0.0, 1.0)
+    if ratio_c <= 0.0:
+        raise ParameterError(f"compliant_ratio should be > 0 (a zero-stiffness phase is singular); got {compliant_ratio!r}")
+    scheme = check_choice(scheme, "scheme", SCHEMES)
+    unindexed = check_choice(unindexed, "unindexed", UNINDEXED_MODES)
+    crack_pts = None if crack is None else _bands.crack_polyline(crack, omap)
+    systems = _default_systems(omap, systems)
+    labels, mq = _grains(omap, grains)
+    omap_a = _aligned(omap, labels, mq)
+    ny, nx = omap.shape
+    n = ny * nx
+    nthreads = _workers(workers, n)
+    numer.nblocks = max(1, min(n, 64 * nthreads))
+    with _numba_threads(nthreads):
+        prob, soft, cmask, partner = _problem(omap_a, axis, systems, mat, constants, ratio_c, unindexed, scheme,
+                                              nthreads, crack_pts, labels, mq, bw, bs)
+        if control == "stress":
+            scale = max(abs(top), abs(bottom))
+        else:
+            lcl = prob.axis6 @ prob.c_el.mean(axis=0) @ prob.axis6
+            scale = float(lcl) * max(abs(top), abs(bottom))
+        last = max(s.cycle for s in segments)
+        out = _solver.integrate(prob, segments, rate, control, scale, mat.as_dict(), numer, last,
+                                _printer(progress, last))
+    ns = prob.schmid.shape[0]
+    solid_plastic = prob.pidx >= 0
+    if last == 0:  # monotonic: the range is that of the ramp
+        srange = np.abs(out.gam)
+        snmax = np.zeros_like(srange)
+        _ck_normal_max(out.sig, prob, snmax)
+    else:
+        srange = out.gmax - out.gmin
+        snmax = np.where(np.isfinite(out.snmax), out.snmax, 0.0)
+    srange[~solid_plastic] = 0.0
+    fip_sys = 0.5 * srange * (1.0 + k_fs * snmax / sy)
+    fip_sys[~solid_plastic] = 0.0
+    acc = out.v.sum(axis=1)
+    valid = (~soft).reshape(n) & solid_plastic
+    bands = _bands.slip_bands(labels, valid.reshape(ny, nx), omap_a, mq, systems, fip_sys, srange, wband, mpts)
+    resp = _bands.grain_response(labels, valid.reshape(ny, nx), out.cycle_ends, srange.max(axis=1), acc,
+                                 elastic_floor=10.0 * numer.slip_floor * max(1, len(segments)),
+                                 ratchet_fraction=0.1)
+    history = pd.DataFrame(out.rows)
+    settings = {
+        "control": control, "amplitude": amp, "max_load": top, "min_load": bottom, "load_axis": axis.tolist(),
+        **extra, "material": mat.as_dict(), "n_systems": ns, "fip_k": k_fs, "yield_stress_mpa": sy,
+        "band_width_um": wband, "boundary_width_um": bw, "boundary_strength_mpa": bs,
+        "crack_um": None if crack_pts is None else crack_pts.tolist(),
+        "crack_tip_um": None if crack_pts is None else crack_pts[-1].tolist(),
+        "tol": tol, "max_slip_increment": numer.slip_target, "min_increments": numer.min_increments,
+        "scheme": scheme, "unindexed": unindexed, "compliant_ratio": ratio_c,
+        "increments": out.totals["increments"], "newton_iterations": out.totals["newton"],
+        "cg_iterations": out.totals["cg"], "cutbacks": out.totals["cutbacks"],
+    }
+    assumptions = cyclic_assumptions(scheme, ratio_c, omap.grid, unindexed, crack_pts is not None,
+                                     bw > 0 and bs > 0)
+    return CyclicField(
+        accumulated_slip=acc.reshape(ny, nx),
+        slip_range=srange.max(axis=1).reshape(ny, nx),
+        fip=fip_sys.max(axis=1).reshape(ny, nx),
+        bands=bands,
+        history=history,
+        settings=settings,
+        assumptions=assumptions,
+        grain_response=resp,
+        slip=out.gam.reshape(ny, nx, ns),
+        system_slip_range=srange.reshape(ny, nx, ns),
+        system_fip=fip_sys.reshape(ny, nx, ns),
+        peak_backstress=out.x.reshape(ny, nx, ns),
+        peak_stress=from_mandel(out.sig.T.reshape(ny, nx, 6)),
+        plastic_strain=from_mandel(out.ep.T.reshape(ny, nx, 6)),
+        labels=labels,
+        compliant=soft,
+        crack_mask=cmask,
+        boundary_partner=partner,
+        systems=systems,
+        omap=omap_a,
+        load_axis=axis,
+    )
+
+
+def _ck_normal_max(sig: np.ndarray, prob, out: np.ndarray) -> None:
+    """Normal stress on each system's plane at the final state (the monotonic 'maximum')."""
+    sc = np.einsum("pab,bp->pa", prob.qrot, sig)
+    out[:] = sc @ prob.plane_nn.T
+
+
+# ---------------------------------------------------------------------------- outputs
+def write_cyclic_outputs(result: CyclicField, folder: str | os.PathLike, *, figures: bool = True,
+                         top_bands: int = 10) -> list[Path]:
+    """Write tables, fields, pictures and a summary (assumptions and caution) into ``folder``.
+
+    Files: ``bands.csv`` (ranked), ``grain_response.csv``, ``history.csv``, ``fields.npz``
+    (``accumulated_slip``, ``slip_range``, ``fip``, ``labels``, ``compliant``), ``fip_bands.png``,
+    ``hysteresis.png`` and ``summary.md``. Every file goes through a temporary name.
+
+    Returns
+    -------
+    list of Path
+    """
+    from ._files import atomic_path
+    from .report import write_summary, write_table
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    paths = [write_table(result.bands, folder / "bands.csv"),
+             write_table(result.grain_response, folder / "grain_response.csv"),
+             write_table(result.history, folder / "history.csv")]
+    with atomic_path(folder / "fields.npz") as tmp:
+        with open(tmp, "wb") as fh:
+            np.savez_compressed(fh, accumulated_slip=result.accumulated_slip, slip_range=result.slip_range,
+                                fip=result.fip, labels=result.labels, compliant=result.compliant)
+    paths.append(folder / "fields.npz")
+    if figures:
+        from .figures._common import save_figure
+        from .figures.cyclic import plot_fip_bands, plot_hysteresis
+
+        save_figure(plot_fip_bands(result, top=top_bands), folder / "fip_bands.png")
+        save_figure(plot_hysteresis(result), folder / "hysteresis.png")
+        paths += [folder / "fip_bands.png", folder / "hysteresis.png"]
+    s = result.settings
+    solid = ~result.compliant
+    counts = result.grain_response["response"].value_counts().to_dict() if len(result.grain_response) else {}
+    lines = [
+        f"Control: {s['control']}, amplitude {s['amplitude']:g}, load from {s['min_load']:g} to {s['max_load']:g} "
+        f"({'MPa' if s['control'] == 'stress' else 'strain'}), ratio {s.get('ratio', 0.0):g}, "
+        f"{s['cycles']} cycle(s) after the first loading.",
+        f"Solver: {s['increments']} increments, {s['newton_iterations']} Newton and {s['cg_iterations']} CG "
+        f"iterations, {s['cutbacks']} cut-backs (tolerance {s['tol']:g}).",
+        f"Accumulated slip over solid points: mean {result.accumulated_slip[solid].mean():.3e}, "
+        f"max {result.accumulated_slip[solid].max():.3e}.",
+        f"FIP (Fatemi–Socie, k = {s['fip_k']:g}, σ_y = {s['yield_stress_mpa']:g} MPa): max {result.fip.max():.3e}.",
+        f"Grain responses: {', '.join(f'{v} {k}' for k, v in counts.items()) or 'none'}.",
+    ]
+    if s.get("crack_tip_um"):
+        lines.append(f"Crack cut in as a slit, tip at ({s['crack_tip_um'][0]:.1f}, {s['crack_tip_um'][1]:.1f}) µm.")
+    if len(result.bands):
+        lines += ["", f"Top {min(top_bands, len(result.bands))} slip bands by mean FIP:", ""]
+        for _, b in result.bands.head(top_bands).iterrows():
+            lines.append(f"{int(b['rank'])}. grain {int(b['grain'])}, {b['label']} ({b['family']}), band "
+                         f"{int(b['band'])} at ({b['x_um']:.1f}, {b['y_um']:.1f}) µm: FIP {b['fip_mean']:.3e}")
+    lines += ["", "Assumptions: " + result.assumptions]
+    paths.append(write_summary(folder, "Cyclic crystal plasticity", lines))
+    return paths
