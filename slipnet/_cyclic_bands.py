@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
@@ -49,7 +50,7 @@ def crack_mask(pts: np.ndarray, omap) -> np.ndarray:
     x, y = omap.coordinates()
     hx, hy = omap.step, omap.row_spacing
     mask = np.zeros(omap.shape, bool)
-    for p0, p1 in zip(pts[:-1], pts[1:], strict=True):  # over segments (a few), not points
+    for p0, p1 in itertools.pairwise(pts):  # over segments (a few), not points
         d = p1 - p0
         length = float(np.hypot(*d))
         t = d / length
@@ -84,8 +85,8 @@ def boundary_layer(labels: np.ndarray, solid: np.ndarray, omap, gn: np.ndarray, 
     ns = gn.shape[1]
     x, y = omap.coordinates()
     reach = width_um + 0.5 * omap.step
-    ri = int(math.ceil(reach / omap.row_spacing)) + 1
-    rj = int(math.ceil(reach / omap.step)) + 1
+    ri = math.ceil(reach / omap.row_spacing) + 1
+    rj = math.ceil(reach / omap.step) + 1
     out = np.zeros((ny, nx, ns))
     partner = np.empty((ny, nx), np.int64)
     _ck.boundary_resistance(np.ascontiguousarray(labels, dtype=np.int64), np.ascontiguousarray(x, dtype=float),

@@ -111,7 +111,7 @@ def _params(mat: dict, k: float, numer: Numerics) -> np.ndarray:
     p[_ck.THETA] = mat["linear_hardening_mpa"]
     p[_ck.Z_FLOOR] = (numer.slip_floor / k) ** (1.0 / mat["rate_exponent"])
     p[_ck.ATOL] = 1e-3 * numer.slip_floor
-    p[_ck.RTOL] = 1e-6
+    p[_ck.RTOL] = min(1e-6, 0.05 * numer.tol)
     p[_ck.MAX_STEP] = 0.05
     return p
 
@@ -137,6 +137,7 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
     x = np.zeros((n, ns))
     g = np.ascontiguousarray(prob.tau0.copy())
     dg = np.zeros((n, ns))
+    dg_last = np.zeros((n, ns))  # slip increments of the last accepted increment
     gmin = np.zeros((n, ns))
     gmax = np.zeros((n, ns))
     snmax = np.full((n, ns), -np.inf)
@@ -148,7 +149,7 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
     ds_prev = 0.0
     t = 0.0
     inc = 0
-    totals = {"newton": 0, "cg": 0, "cutbacks": 0, "local_max": 0}
+    totals = {"newton": 0, "cg": 0, "cutbacks": 0, "rejected": 0, "local_max": 0}
     tracking = False
 
     def mean_axial(f: np.ndarray) -> float:
@@ -162,14 +163,18 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
         """Global Newton for one increment; returns (eps_new, sig_new, newton its, cg its) or a failure text."""
         prm = _params(mat, mat["reference_rate"] * dt, numer)
         e = eps.copy()
-        if d_prev is not None and ds_prev != 0.0 and ds_signed * ds_prev > 0.0:
+        same = d_prev is not None and ds_prev != 0.0 and ds_signed * ds_prev > 0.0
+        if same:
+            # continue the last increment: its strain change and (as the local Newton's start) its slips
             e += (ds_signed / ds_prev) * d_prev
+            np.multiply(dg_last, ds_signed / ds_prev, out=dg)
+        else:
+            dg.fill(0.0)
         if control == "strain":
             e += L[:, None] * (target - mean_axial(e))
             b = np.zeros((6, n))
         else:
             b = np.repeat((target * L)[:, None], n, axis=1)
-        dg.fill(0.0)
         s_new = np.empty((6, n))
         res_prev = math.inf
         cg_total = 0
@@ -245,6 +250,13 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
                 h = 0.25 * ds
                 continue
             e_new, s_new, nits, cgits = res
+            dgmax = float(np.abs(dg).max()) if ns else 0.0
+            if dgmax > 2.5 * numer.slip_target and ds > hmax / 4096.0:
+                # too coarse for the slip it carries (typically the first plastic step after an elastic
+                # stretch): redo it smaller
+                totals["rejected"] += 1
+                h = ds * max(0.05, 0.8 * numer.slip_target / dgmax)
+                continue
             d_prev = e_new - eps
             ds_prev = direction * ds
             eps[:] = e_new
@@ -252,7 +264,7 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
             _ck.commit(dg, sig, prob.qrot, prob.pidx, prob.schmid, prob.plane_nn, prob.tau0, prob.hmat,
                        _params(mat, 1.0, numer), ep, gam, v, x, g, gmin, gmax, snmax, tracking, numer.nblocks,
                        blkmax)
-            dgmax = float(blkmax.max())
+            dg_last[:] = dg
             t += dt
             s = target
             inc += 1

@@ -34,7 +34,7 @@ from __future__ import annotations
 import math
 import os
 from collections.abc import Callable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -325,7 +325,8 @@ def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unind
     pidx = np.where(ph >= 0, pmap[np.maximum(ph, 0)], -1).astype(np.int64)
     nrm = np.asarray(systems.normals, float)
     drc = np.asarray(systems.directions, float)
-    schmid = np.ascontiguousarray(to_mandel(0.5 * (drc[:, :, None] * nrm[:, None, :] + nrm[:, :, None] * drc[:, None, :])))
+    schmid = np.ascontiguousarray(to_mandel(0.5 * (drc[:, :, None] * nrm[:, None, :]
+                                                   + nrm[:, :, None] * drc[:, None, :])))
     plane_nn = np.ascontiguousarray(to_mandel(nrm[:, :, None] * nrm[:, None, :]))
     cc = np.stack([consts[i].mandel() * 1000.0 for i in plastic_phases]) if plastic_phases else np.zeros((1, 6, 6))
     cp = np.ascontiguousarray(np.einsum("kab,sb->ksa", cc, schmid))
@@ -408,7 +409,7 @@ def solve_cyclic(
     max_slip_increment: float = 1e-3,
     min_increments: int = 6,
     max_cutbacks: int = 8,
-    slip_floor: float = 1e-9,
+    slip_floor: float = 1e-7,
     constants=None,
     compliant_ratio: float = 1e-3,
     unindexed: str = "auto",
@@ -521,7 +522,7 @@ def solve_monotonic(
     max_slip_increment: float = 1e-3,
     min_increments: int = 6,
     max_cutbacks: int = 8,
-    slip_floor: float = 1e-9,
+    slip_floor: float = 1e-7,
     constants=None,
     compliant_ratio: float = 1e-3,
     unindexed: str = "auto",
@@ -577,7 +578,8 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
     mpts = _count(band_min_points, "band_min_points")
     ratio_c = check_range(compliant_ratio, "compliant_ratio", 0.0, 1.0)
     if ratio_c <= 0.0:
-        raise ParameterError(f"compliant_ratio should be > 0 (a zero-stiffness phase is singular); got {compliant_ratio!r}")
+        raise ParameterError("compliant_ratio should be > 0 (a zero-stiffness phase is singular); "
+                             f"got {compliant_ratio!r}")
     scheme = check_choice(scheme, "scheme", SCHEMES)
     unindexed = check_choice(unindexed, "unindexed", UNINDEXED_MODES)
     crack_pts = None if crack is None else _bands.crack_polyline(crack, omap)
