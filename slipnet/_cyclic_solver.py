@@ -13,6 +13,7 @@ stay zero (mixed control). An increment whose local or global Newton fails is cu
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 from dataclasses import dataclass, field
@@ -71,9 +72,10 @@ class Numerics:
     max_local: int
     slip_target: float
     min_increments: int
-    slip_floor: float
+    rate_floor: float  # fraction of the reference rate below which a system is inactive
     max_cutbacks: int
     nblocks: int
+    point_threads: int = 1  # numba threads of the per-point update (it is worth threading on small maps too)
 
 
 @dataclass
@@ -100,6 +102,20 @@ class Outcome:
     totals: dict = field(default_factory=dict)
 
 
+@contextlib.contextmanager
+def _threads(n: int):
+    import numba
+
+    old = numba.get_num_threads()
+    if n != old:
+        numba.set_num_threads(max(1, min(int(n), numba.config.NUMBA_NUM_THREADS)))
+    try:
+        yield
+    finally:
+        if n != old:
+            numba.set_num_threads(old)
+
+
 def _params(mat: dict, k: float, numer: Numerics) -> np.ndarray:
     p = np.zeros(_ck.N_PARAMS)
     p[_ck.K_RATE] = k
@@ -109,8 +125,8 @@ def _params(mat: dict, k: float, numer: Numerics) -> np.ndarray:
     p[_ck.Q_VOCE] = mat["voce_mpa"]
     p[_ck.B_VOCE] = mat["voce_rate"]
     p[_ck.THETA] = mat["linear_hardening_mpa"]
-    p[_ck.Z_FLOOR] = (numer.slip_floor / k) ** (1.0 / mat["rate_exponent"])
-    p[_ck.ATOL] = 1e-3 * numer.slip_floor
+    p[_ck.Z_FLOOR] = numer.rate_floor ** (1.0 / mat["rate_exponent"])
+    p[_ck.ATOL] = 1e-3 * numer.rate_floor * k
     p[_ck.RTOL] = min(1e-6, 0.05 * numer.tol)
     p[_ck.MAX_STEP] = 0.05
     return p
@@ -179,8 +195,9 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
         res_prev = math.inf
         cg_total = 0
         for it in range(numer.max_newton):
-            _ck.return_map(e, ep, prob.qrot, prob.c_el, prob.pidx, prob.cc, prob.cp, prob.amat, prob.hmat, prob.rev,
-                           x, g, v, dg, prm, numer.max_local, s_new, tan, info, numer.nblocks)
+            with _threads(numer.point_threads):
+                _ck.return_map(e, ep, prob.qrot, prob.c_el, prob.pidx, prob.cc, prob.cp, prob.amat, prob.hmat,
+                               prob.rev, x, g, v, dg, prm, numer.max_local, s_new, tan, info, numer.nblocks)
             bad = np.flatnonzero(info < 0)
             if bad.size:
                 if os.environ.get("CYC_DEBUG"):
@@ -204,7 +221,7 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
             res_prev = res
             de = np.zeros((6, n))
             try:
-                its, _ = op.solve(r, de, scale, max(0.3 * numer.tol, 0.05 * res), numer.max_iter)
+                its, _ = op.solve(r, de, scale, max(0.3 * numer.tol, 0.02 * res), numer.max_iter)
             except NumericalError as err:
                 if os.environ.get("CYC_DEBUG"):
                     np.savez("/tmp/cyc/tanfail.npz", tan=tan, e=e, ep=ep, x=x, g=g, v=v, prm=prm, dg=dg, info=info)

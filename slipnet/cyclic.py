@@ -406,10 +406,10 @@ def solve_cyclic(
     max_iter: int = 3000,
     max_newton: int = 12,
     max_local: int = 40,
-    max_slip_increment: float = 1e-3,
+    max_slip_increment: float = 5e-4,
     min_increments: int = 6,
     max_cutbacks: int = 8,
-    slip_floor: float = 1e-7,
+    rate_floor: float = 1e-3,
     constants=None,
     compliant_ratio: float = 1e-3,
     unindexed: str = "auto",
@@ -469,8 +469,9 @@ def solve_cyclic(
         Fewest increments per half cycle (and for the first loading).
     max_cutbacks
         Most successive cut-backs of one increment before :class:`NumericalError`.
-    slip_floor
-        Slip increments below this are neglected (systems with a smaller rate stay inactive).
+    rate_floor
+        Slip rates below this fraction of the reference rate γ̇₀ are neglected (such systems stay
+        inactive; with n = 20 and 1e-3 these are systems below about 0.71 of their flow stress).
     constants, compliant_ratio, unindexed, scheme, workers
         As in :func:`slipnet.stress.solve_elastic` (``unindexed`` default ``"auto"``).
     progress
@@ -497,7 +498,7 @@ def solve_cyclic(
     rate = 2.0 * (top - bottom) * freq
     return _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, grains, material, systems,
                   boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points,
-                  tol, max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, slip_floor,
+                  tol, max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor,
                   constants, compliant_ratio, unindexed, scheme, workers, progress,
                   {"ratio": float(ratio), "cycles": n_cycles, "frequency_hz": freq})
 
@@ -519,10 +520,10 @@ def solve_monotonic(
     max_iter: int = 3000,
     max_newton: int = 12,
     max_local: int = 40,
-    max_slip_increment: float = 1e-3,
+    max_slip_increment: float = 5e-4,
     min_increments: int = 6,
     max_cutbacks: int = 8,
-    slip_floor: float = 1e-7,
+    rate_floor: float = 1e-3,
     constants=None,
     compliant_ratio: float = 1e-3,
     unindexed: str = "auto",
@@ -547,13 +548,13 @@ def solve_monotonic(
     segments = [_solver.Segment(0, "ramp", 0.0, top)]
     return _solve(omap, load_axis, control, segments, abs(top) / t_load, abs(top), top, 0.0, crack, grains, material,
                   systems, boundary_width_um, boundary_strength_mpa, DEFAULT_FIP_K, None, None, 3, tol, max_iter,
-                  max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, slip_floor, constants,
+                  max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor, constants,
                   compliant_ratio, unindexed, scheme, workers, progress, {"load_time_s": t_load, "cycles": 0})
 
 
 def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, grains, material, systems,
            boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points, tol,
-           max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, slip_floor, constants,
+           max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor, constants,
            compliant_ratio, unindexed, scheme, workers, progress, extra) -> CyclicField:
     if not isinstance(omap, OrientationMap):
         raise ParameterError(f"omap should be an OrientationMap; got {type(omap).__name__}")
@@ -566,8 +567,8 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
         tol=tol, max_iter=_count(max_iter, "max_iter"), max_newton=_count(max_newton, "max_newton"),
         max_local=_count(max_local, "max_local"),
         slip_target=check_range(max_slip_increment, "max_slip_increment", 1e-7, 0.05),
-        min_increments=_count(min_increments, "min_increments"), slip_floor=check_range(slip_floor, "slip_floor",
-                                                                                        1e-16, 1e-5),
+        min_increments=_count(min_increments, "min_increments"), rate_floor=check_range(rate_floor, "rate_floor",
+                                                                                        1e-16, 0.1),
         max_cutbacks=_count(max_cutbacks, "max_cutbacks", 0), nblocks=1)
     bw = check_positive(boundary_width_um, "boundary_width_um", allow_zero=True)
     bs = check_positive(boundary_strength_mpa, "boundary_strength_mpa", allow_zero=True)
@@ -589,7 +590,10 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
     ny, nx = omap.shape
     n = ny * nx
     nthreads = _workers(workers, n)
-    numer.nblocks = max(1, min(n, 64 * nthreads))
+    # the per-point update is heavy work per point: threaded from a few thousand points on (the FFTs
+    # and CG keep the elastic solver's policy)
+    numer.point_threads = (max(1, min(os.cpu_count() or 1, 2)) if n >= 4096 else 1) if workers is None else nthreads
+    numer.nblocks = max(1, min(n, 64 * numer.point_threads))
     with _numba_threads(nthreads):
         prob, soft, cmask, partner = _problem(omap_a, axis, systems, mat, constants, ratio_c, unindexed, scheme,
                                               nthreads, crack_pts, labels, mq, bw, bs)
@@ -617,7 +621,8 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
     valid = (~soft).reshape(n) & solid_plastic
     bands = _bands.slip_bands(labels, valid.reshape(ny, nx), omap_a, mq, systems, fip_sys, srange, wband, mpts)
     resp = _bands.grain_response(labels, valid.reshape(ny, nx), out.cycle_ends, srange.max(axis=1), acc,
-                                 elastic_floor=10.0 * numer.slip_floor * max(1, len(segments)),
+                                 elastic_floor=max(1e-12, 10.0 * numer.rate_floor * mat.reference_rate
+                                                   * abs(segments[-1].end - segments[-1].start) / rate),
                                  ratchet_fraction=0.1)
     history = pd.DataFrame(out.rows)
     settings = {

@@ -193,7 +193,7 @@ def test_armstrong_frederick_branch_and_power_law_in_single_slip():
                          backstress_modulus_mpa=c, backstress_recovery=d)
     omap = uniform_map(q)
     res = solve_cyclic(omap, AXIS, stress_amplitude=(tau0 + 20.0) / m, cycles=3, material=mat, systems=sys1,
-                       grains=_OneGrain(omap), max_slip_increment=5e-5, slip_floor=1e-12, tol=1e-7)
+                       grains=_OneGrain(omap), max_slip_increment=5e-5, rate_floor=1e-9, tol=1e-7)
     h = res.last_cycle()
     h = h[h["segment"] == "reload"]
     gamma = h["plastic_strain"].to_numpy() / m
@@ -222,7 +222,7 @@ def test_rate_dependent_flow_stress_follows_power_law():
         mat = CyclicMaterial(crss_mpa=90.0, rate_exponent=10.0, reference_rate=1e-3, voce_mpa=0.0,
                              backstress_modulus_mpa=0.0, backstress_recovery=0.0)
         res = solve_monotonic(omap, AXIS, 0.02, control="strain", load_time_s=t_load, material=mat, systems=sys1,
-                              grains=_OneGrain(omap), max_slip_increment=2e-4, slip_floor=1e-12, tol=1e-8)
+                              grains=_OneGrain(omap), max_slip_increment=2e-4, rate_floor=1e-9, tol=1e-8)
         rate = 0.02 / t_load
         expected = (90.0 / m) * (rate / (m * 1e-3)) ** 0.1
         assert res.history["stress_mpa"].iloc[-1] == pytest.approx(expected, rel=3e-3)
