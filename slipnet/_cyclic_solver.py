@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import contextlib
 import math
-import os
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -200,14 +199,8 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
                                prob.rev, x, g, v, dg, prm, numer.max_local, s_new, tan, info, numer.nblocks)
             bad = np.flatnonzero(info < 0)
             if bad.size:
-                if os.environ.get("CYC_DEBUG"):
-                    np.savez("/tmp/cyc/fail.npz", e=e, ep=ep, x=x, g=g, v=v, prm=prm, bad=bad)
                 return f"the local Newton update did not converge at {where(int(bad[0]))} ({bad.size} points)"
             totals["local_max"] = max(totals["local_max"], int(info.max()))
-            if os.environ.get("CYC_STATS"):
-                act = info > 0
-                print("rm", it, "plastic pts", int(act.sum()), "mean its", float(info[act].mean()) if act.any() else 0,
-                      "active sys", int((dg != 0).sum()))
             r = b - op.project(s_new)
             res = math.sqrt(float(np.einsum("ij,ij->", r, r)) / n) / scale
             if not math.isfinite(res):
@@ -223,8 +216,6 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
             try:
                 its, _ = op.solve(r, de, scale, max(0.3 * numer.tol, 0.02 * res), numer.max_iter)
             except NumericalError as err:
-                if os.environ.get("CYC_DEBUG"):
-                    np.savez("/tmp/cyc/tanfail.npz", tan=tan, e=e, ep=ep, x=x, g=g, v=v, prm=prm, dg=dg, info=info)
                 return f"the linearised solve failed ({err})"
             cg_total += its
             e += de

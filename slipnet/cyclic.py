@@ -66,6 +66,9 @@ __all__ = ["CyclicField", "CyclicMaterial", "cyclic_assumptions", "solve_cyclic"
 #: Taylor factor of an untextured cubic polycrystal for {111}<110> / pencil glide, about 3.06
 #: (Taylor 1938, J. Inst. Met. 62:307; from memory): the default σ_y is this times τ₀.
 RANDOM_TAYLOR_FACTOR = 3.06
+#: Map edges that can be declared free surfaces, and the compliant gap added beyond each (points).
+EDGES = ("left", "right", "top", "bottom")
+EDGE_PAD = 4
 #: Fatemi–Socie normal-stress sensitivity k; 0.5 is the value commonly used in
 #: crystal-plasticity FIP studies (e.g. Castelluccio & McDowell 2014; from memory).
 DEFAULT_FIP_K = 0.5
@@ -123,9 +126,13 @@ class CyclicMaterial:
 
 
 def cyclic_assumptions(scheme: str = "rotated", compliant_ratio: float = 1e-3, grid: str = "square",
-                       unindexed: str = "auto", crack: bool = False, boundary: bool = False) -> str:
+                       unindexed: str = "auto", crack: bool = False, boundary: bool = False,
+                       free_edges: tuple = ()) -> str:
     """The statement every output of :func:`solve_cyclic` prints."""
     text = assumptions_text(scheme, compliant_ratio, grid, plastic=True, unindexed=unindexed)
+    if free_edges:
+        text += (f" The {', '.join(free_edges)} map edge(s) are free surfaces (a compliant gap of {EDGE_PAD} points "
+                 "is added beyond them, so the periodic copy does not touch them).")
     text += (" Small strain, no lattice rotation; rate-dependent slip (power law) with Armstrong–Frederick "
              "backstress and Voce isotropic hardening per system, integrated by backward Euler; only the main "
              "phase slips (other phases elastic).")
@@ -298,7 +305,7 @@ def _aligned(omap: OrientationMap, labels: np.ndarray, mq: np.ndarray) -> Orient
 
 
 def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unindexed, scheme, nthreads,
-             crack_pts, labels, mq, boundary_width, boundary_strength):
+             crack_pts, labels, mq, boundary_width, boundary_strength, pad_mask):
     c, q, ph, soft, consts = _prepare(omap, constants, ratio_c, unindexed)
     ny, nx = omap.shape
     n = ny * nx
@@ -306,15 +313,17 @@ def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unind
     cmask = np.zeros((ny, nx), bool)
     if crack_pts is not None:
         cmask = _bands.crack_mask(crack_pts, omap)
+    forced = cmask | pad_mask
+    if forced.any():
         main = int(np.bincount(ph[ph >= 0]).argmax()) if (ph >= 0).any() else 0
         vrh = voigt_reuss_hill(consts[main])
         lam = vrh["bulk_gpa"] - 2.0 * vrh["shear_hill_gpa"] / 3.0
         soft_c = np.zeros((6, 6))
         soft_c[:3, :3] = lam
         soft_c[np.arange(6), np.arange(6)] += 2.0 * vrh["shear_hill_gpa"]
-        c[cmask.reshape(n)] = ratio_c * soft_c * 1000.0
-        ph = np.where(cmask.reshape(n), -1, ph)
-        soft |= cmask
+        c[forced.reshape(n)] = ratio_c * soft_c * 1000.0
+        ph = np.where(forced.reshape(n), -1, ph)
+        soft |= forced
         if soft.all():
             raise ParameterError("the crack leaves no solid point; give a shorter crack")
     structure = systems.structure
@@ -355,6 +364,57 @@ def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unind
     return prob, soft, cmask, partner
 
 
+def _free_edges(free_edges) -> tuple:
+    if free_edges is None:
+        return ()
+    items = [free_edges] if isinstance(free_edges, str) else list(free_edges)
+    out = []
+    for e in items:
+        e = check_choice(e, "free_edges", EDGES)
+        if e not in out:
+            out.append(e)
+    return tuple(out)
+
+
+def _padded(omap: OrientationMap, labels: np.ndarray, edges: tuple):
+    """The map with :data:`EDGE_PAD` unindexed points beyond each free edge (origin kept in the map frame)."""
+    ny, nx = omap.shape
+    pad = {e: (EDGE_PAD if e in edges else 0) for e in EDGES}
+    if not edges:
+        return omap, labels, np.zeros((ny, nx), bool), (0, 0)
+    widths = ((pad["top"], pad["bottom"]), (pad["left"], pad["right"]))
+    q = np.pad(np.asarray(omap.quats), (*widths, (0, 0)), constant_values=np.nan)
+    ph = np.pad(np.asarray(omap.phase), widths, constant_values=-1)
+    qual = np.pad(np.asarray(omap.quality), widths, constant_values=0.0)
+    ind = np.pad(np.asarray(omap.indexed), widths, constant_values=False)
+    lab = np.pad(labels, widths, constant_values=-1)
+    mask = np.pad(np.zeros((ny, nx), bool), widths, constant_values=True)
+    x0, y0 = omap.origin
+    origin = (x0 - pad["left"] * omap.step, y0 - pad["top"] * omap.row_spacing)
+    big = replace(omap, quats=q, phase=ph, quality=qual, indexed=ind, origin=origin)
+    return big, lab, mask, (pad["top"], pad["left"])
+
+
+def _crop(out, prob, soft, cmask, partner, big: tuple, corner: tuple, shape: tuple):
+    nyp, nxp = big
+    r0, c0 = corner
+    ny, nx = shape
+
+    def rows(a):  # (N, ...) → cropped (n, ...)
+        return np.ascontiguousarray(a.reshape(nyp, nxp, *a.shape[1:])[r0:r0 + ny, c0:c0 + nx]
+                                    .reshape(ny * nx, *a.shape[1:]))
+
+    def cols(a):  # (6, N)
+        return np.ascontiguousarray(rows(a.T).T)
+
+    out = replace(out, eps=cols(out.eps), sig=cols(out.sig), ep=cols(out.ep), gam=rows(out.gam), v=rows(out.v),
+                  x=rows(out.x), gmin=rows(out.gmin), gmax=rows(out.gmax), snmax=rows(out.snmax),
+                  cycle_ends=[{**c, "ep_axial": rows(c["ep_axial"]), "acc": rows(c["acc"])} for c in out.cycle_ends])
+    prob = replace(prob, pidx=rows(prob.pidx), qrot=rows(prob.qrot))
+    sl = (slice(r0, r0 + ny), slice(c0, c0 + nx))
+    return out, prob, soft[sl], cmask[sl], partner[sl]
+
+
 def _schedule(top: float, bottom: float, cycles: int) -> list:
     segs = [_solver.Segment(0, "ramp", 0.0, top)]
     for k in range(1, cycles + 1):
@@ -393,6 +453,7 @@ def solve_cyclic(
     cycles: int = 3,
     frequency_hz: float = 1.0,
     crack=None,
+    free_edges=(),
     grains=None,
     material: CyclicMaterial | None = None,
     systems=None,
@@ -416,7 +477,6 @@ def solve_cyclic(
     scheme: str = "rotated",
     workers: int | None = None,
     progress: bool | Callable[[dict], None] | None = None,
-    _first_segment_only: bool = False,
 ) -> CyclicField:
     """Cyclic crystal plasticity of a periodic columnar polycrystal under uniaxial load.
 
@@ -443,6 +503,11 @@ def solve_cyclic(
     crack : (k, 2) array_like, optional
         Crack polyline, µm map frame, vertices from the mouth (e.g. the notch root) to the tip (last
         vertex); cut in as a traction-free slit one cell wide.
+    free_edges
+        Map edges (``"left"``, ``"right"``, ``"top"``, ``"bottom"``) that are free surfaces of the
+        specimen, e.g. the edge an edge notch is cut into: a compliant gap is added beyond them, so
+        the periodic cell does not join them to the opposite edge (otherwise the notch mouth meets
+        the opposite edge and its corners raise a spurious concentration there).
     grains
         A ``GrainGraph`` of the map (labels and mean orientations, used for bands and the boundary
         layer); built with a 15° threshold if None.
@@ -493,13 +558,11 @@ def solve_cyclic(
     n_cycles = _count(cycles, "cycles")
     freq = check_positive(frequency_hz, "frequency_hz")
     segments = _schedule(top, bottom, n_cycles)
-    if _first_segment_only:
-        segments = segments[:1]
     rate = 2.0 * (top - bottom) * freq
-    return _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, grains, material, systems,
-                  boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points,
-                  tol, max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor,
-                  constants, compliant_ratio, unindexed, scheme, workers, progress,
+    return _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, free_edges, grains, material,
+                  systems, boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um,
+                  band_min_points, tol, max_iter, max_newton, max_local, max_slip_increment, min_increments,
+                  max_cutbacks, rate_floor, constants, compliant_ratio, unindexed, scheme, workers, progress,
                   {"ratio": float(ratio), "cycles": n_cycles, "frequency_hz": freq})
 
 
@@ -511,6 +574,7 @@ def solve_monotonic(
     load_time_s: float = 10.0,
     control: str = "stress",
     crack=None,
+    free_edges=(),
     grains=None,
     material: CyclicMaterial | None = None,
     systems=None,
@@ -546,13 +610,14 @@ def solve_monotonic(
         raise ParameterError(f"stress should be a finite non-zero number; got {stress!r}")
     t_load = check_positive(load_time_s, "load_time_s")
     segments = [_solver.Segment(0, "ramp", 0.0, top)]
-    return _solve(omap, load_axis, control, segments, abs(top) / t_load, abs(top), top, 0.0, crack, grains, material,
+    return _solve(omap, load_axis, control, segments, abs(top) / t_load, abs(top), top, 0.0, crack, free_edges,
+                  grains, material,
                   systems, boundary_width_um, boundary_strength_mpa, DEFAULT_FIP_K, None, None, 3, tol, max_iter,
                   max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor, constants,
                   compliant_ratio, unindexed, scheme, workers, progress, {"load_time_s": t_load, "cycles": 0})
 
 
-def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, grains, material, systems,
+def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, free_edges, grains, material, systems,
            boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points, tol,
            max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor, constants,
            compliant_ratio, unindexed, scheme, workers, progress, extra) -> CyclicField:
@@ -584,19 +649,27 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
     scheme = check_choice(scheme, "scheme", SCHEMES)
     unindexed = check_choice(unindexed, "unindexed", UNINDEXED_MODES)
     crack_pts = None if crack is None else _bands.crack_polyline(crack, omap)
+    edges = _free_edges(free_edges)
+    for e in edges:
+        normal = np.array([1.0, 0.0, 0.0]) if e in ("left", "right") else np.array([0.0, 1.0, 0.0])
+        if abs(float(normal @ axis)) > 0.5:
+            raise ParameterError(f"free_edges should be edges along the load (the load cannot pass a free surface); "
+                                 f"got {e!r} with load axis ({axis[0]:.2f}, {axis[1]:.2f}, {axis[2]:.2f})")
     systems = _default_systems(omap, systems)
     labels, mq = _grains(omap, grains)
     omap_a = _aligned(omap, labels, mq)
     ny, nx = omap.shape
     n = ny * nx
-    nthreads = _workers(workers, n)
+    omap_p, labels_p, pad_mask, (r0, c0) = _padded(omap_a, labels, edges)
+    nyp, nxp = omap_p.shape
+    nthreads = _workers(workers, nyp * nxp)
     # the per-point update is heavy work per point: threaded from a few thousand points on (the FFTs
     # and CG keep the elastic solver's policy)
     numer.point_threads = (max(1, min(os.cpu_count() or 1, 2)) if n >= 4096 else 1) if workers is None else nthreads
-    numer.nblocks = max(1, min(n, 64 * numer.point_threads))
+    numer.nblocks = max(1, min(nyp * nxp, 64 * numer.point_threads))
     with _numba_threads(nthreads):
-        prob, soft, cmask, partner = _problem(omap_a, axis, systems, mat, constants, ratio_c, unindexed, scheme,
-                                              nthreads, crack_pts, labels, mq, bw, bs)
+        prob, soft, cmask, partner = _problem(omap_p, axis, systems, mat, constants, ratio_c, unindexed, scheme,
+                                              nthreads, crack_pts, labels_p, mq, bw, bs, pad_mask)
         if control == "stress":
             scale = max(abs(top), abs(bottom))
         else:
@@ -605,6 +678,8 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
         last = max(s.cycle for s in segments)
         out = _solver.integrate(prob, segments, rate, control, scale, mat.as_dict(), numer, last,
                                 _printer(progress, last))
+    if edges:  # back to the map's own points
+        out, prob, soft, cmask, partner = _crop(out, prob, soft, cmask, partner, (nyp, nxp), (r0, c0), (ny, nx))
     ns = prob.schmid.shape[0]
     solid_plastic = prob.pidx >= 0
     if last == 0:  # monotonic: the range is that of the ramp
@@ -629,6 +704,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
         "control": control, "amplitude": amp, "max_load": top, "min_load": bottom, "load_axis": axis.tolist(),
         **extra, "material": mat.as_dict(), "n_systems": ns, "fip_k": k_fs, "yield_stress_mpa": sy,
         "band_width_um": wband, "boundary_width_um": bw, "boundary_strength_mpa": bs,
+        "free_edges": list(edges),
         "crack_um": None if crack_pts is None else crack_pts.tolist(),
         "crack_tip_um": None if crack_pts is None else crack_pts[-1].tolist(),
         "tol": tol, "max_slip_increment": numer.slip_target, "min_increments": numer.min_increments,
@@ -637,7 +713,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, gr
         "cg_iterations": out.totals["cg"], "cutbacks": out.totals["cutbacks"],
     }
     assumptions = cyclic_assumptions(scheme, ratio_c, omap.grid, unindexed, crack_pts is not None,
-                                     bw > 0 and bs > 0)
+                                     bw > 0 and bs > 0, edges)
     return CyclicField(
         accumulated_slip=acc.reshape(ny, nx),
         slip_range=srange.max(axis=1).reshape(ny, nx),
