@@ -20,7 +20,7 @@ import argparse
 import numpy as np
 from _timing import best_time  # benchmarks/ is the script's folder, so on sys.path
 
-from slipnet.orientation import disorientation_angle, random_quats
+from slipnet.crystal import disorientation_angle, random_quats
 
 
 class DisorientationBench:

@@ -26,10 +26,10 @@ import time
 
 import numpy as np
 
-from slipnet._forecast_core import _GEOMETRY_CACHE
+from slipnet.crystal import effective_schmid, schmid_factors, slip_systems
 from slipnet.forecast import forecast_crack
+from slipnet.forecast._core import _GEOMETRY_CACHE
 from slipnet.grains import build_grain_graph
-from slipnet.slip import effective_schmid, schmid_factors, slip_systems
 from slipnet.synthetic import make_specimen
 
 

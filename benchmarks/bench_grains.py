@@ -32,9 +32,10 @@ import tracemalloc
 
 import numpy as np
 
-from slipnet.grains import _neighbour_pairs, build_grain_graph
+from slipnet.crystal import quat_from_axis_angle, quat_multiply, random_quats
+from slipnet.grains import build_grain_graph
+from slipnet.grains._steps import _neighbour_pairs
 from slipnet.maps import OrientationMap
-from slipnet.orientation import quat_from_axis_angle, quat_multiply, random_quats
 
 GIB = 1024**3
 

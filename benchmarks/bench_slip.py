@@ -25,9 +25,15 @@ import argparse
 import numpy as np
 from _timing import best_time  # benchmarks/ is the script's folder, so on sys.path
 
-from slipnet.orientation import matrix_from_quat, random_quats
-from slipnet.slip import effective_schmid, schmid_factors, schmid_summary, slip_systems
-from slipnet.transmission import transmission_summaries
+from slipnet.crystal import (
+    effective_schmid,
+    matrix_from_quat,
+    random_quats,
+    schmid_factors,
+    schmid_summary,
+    slip_systems,
+    transmission_summaries,
+)
 
 
 def matmul_peak(n: int = 3000) -> float:

@@ -29,8 +29,9 @@ import numpy as np
 import scipy.fft
 from _timing import best_time  # benchmarks/ is the script's folder, so on sys.path
 
-from slipnet import _stress_kernels as _k
-from slipnet.stress import _numba_threads, _prepare, _Spectral, solve_elastic, to_mandel
+from slipnet.stress import _kernels as _k
+from slipnet.stress import solve_elastic, to_mandel
+from slipnet.stress.elastic import _numba_threads, _prepare, _Spectral
 from slipnet.synthetic import make_specimen
 
 

@@ -25,7 +25,8 @@ import time
 import numpy as np
 from scipy.spatial import cKDTree
 
-from slipnet.synthetic import _grid_xy, _power_cells, make_specimen
+from slipnet.synthetic import make_specimen
+from slipnet.synthetic.specimen import _grid_xy, _power_cells
 
 
 def peak_mib() -> float:

@@ -4,8 +4,8 @@ from orientation maps of polycrystalline metals.
 Submodules are imported on demand (``import slipnet.grains``), so importing the package is cheap.
 """
 
-from .cautions import CAUTION
-from .errors import InputFileError, NumericalError, ParameterError, SlipnetError
+from slipnet.cautions import CAUTION
+from slipnet.errors import InputFileError, NumericalError, ParameterError, SlipnetError
 
 __version__ = "0.1.0"
 

@@ -7,7 +7,7 @@ from collections.abc import Iterable
 
 import numpy as np
 
-from .errors import ParameterError
+from slipnet.errors import ParameterError
 
 
 def check_positive(value: float, name: str, *, allow_zero: bool = False) -> float:

@@ -27,7 +27,7 @@ def atomic_path(path: str | os.PathLike, *, overwrite: bool = True) -> Iterator[
     """
     target = Path(path)
     if target.exists() and not overwrite:
-        from .errors import ParameterError
+        from slipnet.errors import ParameterError
 
         raise ParameterError(f"output {target} exists; choose another name or allow overwriting")
     target.parent.mkdir(parents=True, exist_ok=True)

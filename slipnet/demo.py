@@ -11,11 +11,11 @@ import time
 from collections.abc import Callable
 from pathlib import Path
 
-from .report import write_summary
+from slipnet.reports.writer import write_summary
 
 
 def _step_specimen(ctx: dict) -> None:
-    from .synthetic import demo_specimen
+    from slipnet.synthetic import demo_specimen
 
     spec = demo_specimen(seed=ctx["seed"], quick=ctx["quick"])
     ctx["specimen"] = spec
@@ -29,29 +29,23 @@ def _step_specimen(ctx: dict) -> None:
 
 
 def _step_files(ctx: dict) -> None:
-    from .figures._common import save_figure
-    from .figures.maps import plot_ipf_map
-    from .io import write_map
+    from slipnet.reports.maps import write_map_files
 
     spec, out = ctx["specimen"], ctx["out"]
-    files = [write_map(spec.omap, out / "specimen.txt"), write_map(spec.omap, out / "specimen.npz")]
-    ax = plot_ipf_map(spec.omap, direction=(0.0, 0.0, 1.0), title=f"{spec.name}: IPF colouring, normal direction z")
-    if spec.notch_root is not None:
-        ax.plot(*spec.notch_root, marker="o", ms=7, mfc="white", mec="black", ls="none", label="notch root")
-        ax.legend(loc="lower right", fontsize=8, framealpha=0.8)
-    save_figure(ax.figure, out / "ipf_map.png")
-    files.append(out / "ipf_map.png")
+    files = list(write_map_files(spec.omap, out, notch_root=spec.notch_root,
+                                 title=f"{spec.name}: IPF colouring, normal direction z").values())
     ctx["files"] = files
     ctx.setdefault("notes", []).append("Map files: " + ", ".join(p.name for p in files) + ".")
 
 
 def _step_grains(ctx: dict) -> None:
     """Rebuild the demo grains and boundaries; tables, graph, labels and pictures under grains/."""
-    from .grains import build_grain_graph, write_grain_outputs
+    from slipnet.grains import build_grain_graph
+    from slipnet.reports.grains import write_grains
 
     gg = build_grain_graph(ctx["omap"], 15.0, subgrain_deg=2.0, min_grain_size=4)
     ctx["grain_graph"] = gg
-    write_grain_outputs(gg, Path(ctx["out"]) / "grains")
+    write_grains(gg, Path(ctx["out"]) / "grains")
     cls = gg.boundaries["boundary_class"]
     ctx.setdefault("notes", []).append(
         f"Grains: {gg.n_grains} grains, {len(gg.boundaries)} boundaries ({int(cls.str.startswith('sigma').sum())} "
@@ -60,16 +54,18 @@ def _step_grains(ctx: dict) -> None:
 
 def _step_slip(ctx: dict) -> None:
     """Schmid factors, slip traces, Taylor factors and slip transmission for the demo grains."""
-    from .slip import write_slip_outputs
+    from slipnet.reports.slip import write_slip
+    from slipnet.slip import slip_activity
 
     gg = ctx.get("grain_graph")
     if gg is None:
         ctx.setdefault("notes", []).append("Slip: skipped (needs the grains step).")
         return
-    res = write_slip_outputs(gg, ctx["specimen"].load_axis, Path(ctx["out"]) / "slip", title="Slip activity (demo)")
-    ctx["systems"] = res["systems"]
-    ctx["slip"] = res
-    gt, tt = res["grain_table"], res["transmission_table"]
+    act = slip_activity(gg, ctx["specimen"].load_axis)
+    write_slip(act, gg, Path(ctx["out"]) / "slip", title="Slip activity (demo)")
+    ctx["systems"] = act.systems
+    ctx["slip"] = act
+    gt, tt = act.grains, act.transmission
     ctx.setdefault("notes", []).append(
         f"Slip: {int(gt['schmid_max'].notna().sum())} grains, mean largest Schmid factor "
         f"{gt['schmid_max'].mean():.3f}, mean Taylor factor {gt['taylor_factor'].mean():.2f}; "
@@ -78,7 +74,8 @@ def _step_slip(ctx: dict) -> None:
 
 def _step_stress(ctx: dict) -> None:
     """Full-field elastic stress on the demo map: local Schmid factors, notch-root concentration."""
-    from .stress import solve_elastic, write_stress_outputs
+    from slipnet.reports.stress import write_stress
+    from slipnet.stress import solve_elastic, stress_concentration
 
     omap, spec = ctx.get("omap"), ctx.get("specimen")
     if omap is None or spec is None:
@@ -88,10 +85,10 @@ def _step_stress(ctx: dict) -> None:
     # the notch stays a compliant hole; specks of bad indexing take the nearest orientation
     field = solve_elastic(omap, load, stress=200.0, tol=1e-5, unindexed="auto")
     ctx["stress_field"] = field
-    res = write_stress_outputs(field, Path(ctx["out"]) / "stress", ctx.get("grain_graph"), ctx.get("systems"),
-                               title="Local stresses (demo)", notch_root=getattr(spec, "notch_root", None),
-                               radius_um=6.0 * omap.step)
-    conc = res["concentration"]
+    root = getattr(spec, "notch_root", None)
+    write_stress(field, Path(ctx["out"]) / "stress", ctx.get("grain_graph"), ctx.get("systems"),
+                 title="Local stresses (demo)", notch_root=root, radius_um=6.0 * omap.step)
+    conc = None if root is None else stress_concentration(field, root[0], root[1], 6.0 * omap.step)
     ctx.setdefault("notes", []).append(
         f"Stress: full-field elastic solve in {field.iterations} iterations (residual {field.residual:.1e}), "
         f"apparent modulus {field.apparent_modulus:.0f} GPa"
@@ -102,7 +99,8 @@ def _step_stress(ctx: dict) -> None:
 
 def _step_forecast(ctx: dict) -> None:
     """Forecast the crack path from the demo notch root: barriers, sites, a modest Monte Carlo."""
-    from .forecast import forecast_crack, write_forecast
+    from slipnet.forecast import forecast_crack
+    from slipnet.reports.forecast import write_forecast
 
     gg = ctx.get("grain_graph")
     spec = ctx.get("specimen")
@@ -125,7 +123,8 @@ def _step_forecast(ctx: dict) -> None:
 
 
 def _step_growth(ctx: dict) -> None:
-    from .growth import simulate_growth, write_growth
+    from slipnet.growth import simulate_growth
+    from slipnet.reports.growth import write_growth
 
     fc = ctx.get("forecast")
     if fc is None or len(getattr(fc, "path", ())) == 0:
@@ -145,8 +144,8 @@ def _step_growth(ctx: dict) -> None:
 
 def _step_notch(ctx: dict) -> None:
     """Where else could the notch go? Rank positions along the uncut right edge of the coupon."""
-    from .notch import plan_notch
-    from .notch_sweep import write_plan
+    from slipnet.notch import plan_notch
+    from slipnet.reports.notch import write_plan
 
     gg = ctx.get("grain_graph")
     spec = ctx["specimen"]
@@ -160,9 +159,9 @@ def _step_notch(ctx: dict) -> None:
                       samples=3 if quick else 8, seed=ctx["seed"], scheduler="synchronous")
     write_plan(plan, gg, Path(ctx["out"]) / "notch")
     ctx["notch_plan"] = plan
-    best = plan.iloc[0]
+    best = plan.table.iloc[0]
     ctx.setdefault("notes", []).append(
-        f"Notch plan: {len(plan)} candidate positions along the right edge; best root at "
+        f"Notch plan: {len(plan.table)} candidate positions along the right edge; best root at "
         f"({best['x']:.0f}, {best['y']:.0f}) µm, score {best['score']:.2f} (notch/).")
 
 
@@ -170,10 +169,10 @@ def _step_compare(ctx: dict) -> None:
     """Score the forecast against SYNTHETIC measurements the demo invents from its own scenario."""
     import pandas as pd
 
-    from .compare import compare_forecast, fit_transform, write_comparison
-    from .report import write_table
-    from .strainmaps import write_strain
-    from .synthetic_measurements import demo_measurement
+    from slipnet.compare import compare_forecast, demo_measurement, fit_transform
+    from slipnet.io import write_strain
+    from slipnet.reports.compare import write_comparison
+    from slipnet.reports.writer import write_table
 
     if ctx.get("grain_graph") is None or ctx.get("forecast") is None:
         ctx.setdefault("notes", []).append("Compare: skipped (needs the grains and forecast steps).")
@@ -193,7 +192,7 @@ def _step_compare(ctx: dict) -> None:
                 folder / "control_points_synthetic.csv")
     write_table(meas.growth_record, folder / "growth_record_synthetic.csv")
     transform = fit_transform(sm.strain_points, sm.map_points, "affine")
-    comp = compare_forecast(sm.series, forecast=ctx["forecast"], grain_graph=ctx["grain_graph"],
+    comp = compare_forecast(sm.series, forecast=ctx["forecast"], gg=ctx["grain_graph"],
                             transform=transform, window=5, peak_distance_um=4.0 * ctx["omap"].step,
                             site_tol_um=3.0 * ctx["omap"].step, path_tol_um=3.0 * ctx["omap"].step,
                             measured_path=meas.measured_path, load_axis=load_axis,

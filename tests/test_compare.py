@@ -32,22 +32,19 @@ from slipnet.compare import (
     match_points,
     predicted_dips_from_growth,
     rank_agreement,
-    read_control_points,
     resample_to_map,
     score_band_directions,
     score_path,
     score_sites,
     sites_from_forecast,
-    write_comparison,
-)
-from slipnet.errors import InputFileError, ParameterError
-from slipnet.maps import OrientationMap
-from slipnet.strainmaps import write_strain
-from slipnet.synthetic_measurements import (
     synthetic_crack_path,
     synthetic_growth_record,
     synthetic_strain_series,
 )
+from slipnet.errors import InputFileError, ParameterError
+from slipnet.io import read_control_points, write_strain
+from slipnet.maps import OrientationMap
+from slipnet.reports import write_comparison
 
 # ===================================================================================== registration
 AFFINE = np.array([[1.03, 0.06, 12.0], [-0.04, 0.97, -7.5], [0.0, 0.0, 1.0]])
@@ -470,7 +467,7 @@ def test_compare_forecast_on_a_synthetic_measurement(tmp_path):
     assert tr.rms < 0.5
     mpath = synthetic_crack_path(forecast.path, deviation_um=0.5, seed=2)
     rec = synthetic_growth_record(None, n_readings=80, noise_um=0.0, dips_um=(40.0,), seed=0)
-    comp = compare_forecast(sm.series, forecast=forecast, grain_graph=gg, transform=tr, window=5,
+    comp = compare_forecast(sm.series, forecast=forecast, gg=gg, transform=tr, window=5,
                             peak_threshold=0.008, peak_distance_um=5.0, site_tol_um=3.0, measured_path=mpath,
                             growth_record=rec, growth=pd.DataFrame({"crack_length": [40.5], "depth": [0.3]}))
     sc = comp.scores
@@ -489,7 +486,7 @@ def test_compare_forecast_on_a_synthetic_measurement(tmp_path):
     written = write_comparison(comp, tmp_path / "cmp")
     text = (tmp_path / "cmp" / "summary.md").read_text()
     assert CAUTION in text and "SYNTHETIC" in text
-    assert (tmp_path / "cmp" / "scores.csv").exists() and any(p.suffix == ".png" for p in written)
+    assert (tmp_path / "cmp" / "scores.csv").exists() and any(p.suffix == ".png" for p in written.values())
 
 
 def test_cli_compare(tmp_path, capsys):
@@ -504,7 +501,7 @@ def test_cli_compare(tmp_path, capsys):
     forecast.path.to_csv(tmp_path / "path.csv", index=False)
     rec = synthetic_growth_record(None, n_readings=40, seed=0)
     rec.to_csv(tmp_path / "record.csv", index=False)
-    rc = main(["compare", str(tmp_path / "strain.npz"), "--points", str(tmp_path / "cp.csv"),
+    rc = main(["compare", str(tmp_path / "strain.npz"), "--control-points", str(tmp_path / "cp.csv"),
                "--sites", str(tmp_path / "sites.csv"), "--path", str(tmp_path / "path.csv"),
                "--record", str(tmp_path / "record.csv"), "--window", "5", "--out", str(tmp_path / "out")])
     assert rc == 0
@@ -540,7 +537,7 @@ def test_demo_step_skips_without_forecast(tmp_path):
 def test_documented_text_example_parses(tmp_path):
     from pathlib import Path
 
-    from slipnet.strainmaps import read_strain
+    from slipnet.io import read_strain
 
     doc = (Path(__file__).resolve().parents[1] / "docs" / "strain-format.md").read_text(encoding="utf-8")
     block = doc.split("```\n# slipnet-strain/1")[1].split("```")[0]
@@ -564,8 +561,8 @@ def test_example_script_runs(capsys):
 
 def test_cli_compare_with_a_map(tmp_path, capsys):
     from slipnet.cli import main
+    from slipnet.crystal import quat_from_euler
     from slipnet.io import write_map
-    from slipnet.orientation import quat_from_euler
 
     # a two-grain map: 40° apart about z, split at x = 40 µm
     q = np.where((np.arange(80) < 40)[None, :, None], quat_from_euler([0.0, 0.0, 0.0])[None, None, :],
@@ -579,8 +576,9 @@ def test_cli_compare_with_a_map(tmp_path, capsys):
     pd.DataFrame({"strain_x_um": sm.strain_points[:, 0], "strain_y_um": sm.strain_points[:, 1],
                   "map_x_um": sm.map_points[:, 0], "map_y_um": sm.map_points[:, 1]}).to_csv(tmp_path / "cp.csv",
                                                                                            index=False)
-    rc = main(["compare", str(tmp_path / "strain.txt"), "--points", str(tmp_path / "cp.csv"), "--kind", "similarity",
-               "--map", str(tmp_path / "map.npz"), "--sites", str(tmp_path / "sites.csv"), "--window", "5",
+    rc = main(["compare", str(tmp_path / "strain.txt"), "--control-points", str(tmp_path / "cp.csv"),
+               "--kind", "similarity", "--map", str(tmp_path / "map.npz"), "--sites", str(tmp_path / "sites.csv"),
+               "--window", "5",
                "--load-axis", "1", "0", "0", "--no-figures", "--out", str(tmp_path / "out")])
     assert rc == 0
     grains = pd.read_csv(tmp_path / "out" / "grain_strain.csv")

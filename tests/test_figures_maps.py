@@ -8,11 +8,11 @@ from scipy.spatial.transform import Rotation
 
 from slipnet import demo
 from slipnet.cautions import CAUTION
+from slipnet.crystal import CUBIC_OPERATORS, quat_multiply, random_quats
 from slipnet.errors import ParameterError
 from slipnet.figures._common import save_figure
 from slipnet.figures.maps import UNINDEXED_COLOR, ipf_colors, ipf_direction, plot_ipf_map, plot_scalar_map
 from slipnet.maps import OrientationMap
-from slipnet.orientation import CUBIC_OPERATORS, quat_multiply, random_quats
 from slipnet.synthetic import make_specimen
 
 

@@ -9,8 +9,16 @@ import networkx as nx
 import numpy as np
 import pytest
 
-from slipnet import _forecast_kernels as K
 from slipnet.cautions import CAUTION
+from slipnet.crystal import (
+    effective_schmid,
+    m_prime,
+    quat_from_axis_angle,
+    quat_rotate,
+    random_quats,
+    schmid_factors,
+    slip_systems,
+)
 from slipnet.errors import ParameterError
 from slipnet.forecast import (
     CLASS_FACTORS,
@@ -20,13 +28,11 @@ from slipnet.forecast import (
     crack_plane_angles,
     forecast_crack,
     rank_barriers,
-    write_forecast,
 )
+from slipnet.forecast import _kernels as K
 from slipnet.grains import build_grain_graph
 from slipnet.maps import OrientationMap, apply_frame_rotation
-from slipnet.orientation import quat_from_axis_angle, quat_rotate, random_quats
-from slipnet.slip import effective_schmid, schmid_factors, slip_systems
-from slipnet.transmission import m_prime
+from slipnet.reports import write_forecast
 
 # The hand-built bicrystal: left grain at the identity orientation, right grain rotated 180°
 # about the load axis l = (n + d)/|n + d| with n = (011)/√2, d = [11-1]/√3. The system (011)[11-1]
@@ -105,9 +111,10 @@ def test_crack_plane_angles_hand_cases():
     tw, ti = crack_plane_angles([0, 1, 1], [0, 1, 0], 90.0)
     assert float(tw) == pytest.approx(45.0)
     assert float(ti) == pytest.approx(0.0, abs=1e-9)
-    # inclined boundary: 45° about its trace (y): n_gb = cos45 (-1,0,0) + sin45 (0,0,1) = (-1,0,1)/√2.
+    # inclined boundary: 45° to the surface about its trace (y):
+    # n_gb = sin45 (-1,0,0) + cos45 (0,0,1) = (-1,0,1)/√2.
     # n_in = (100): n×n_gb ∝ (0,-1,0); n_out = (001): n×n_gb ∝ (0,-1,0) → twist 0 (both contain y).
-    tw, _ = crack_plane_angles([1, 0, 0], [0, 0, 1], 90.0, inclination_deg=45.0)
+    tw, _ = crack_plane_angles([1, 0, 0], [0, 0, 1], 90.0, boundary_inclination_deg=45.0)
     assert float(tw) == pytest.approx(0.0, abs=1e-9)
     # vertical boundary, n_in = (010): n×n_gb = (0,0,1); n_out = (001): n×n_gb = (0,-1,0) → twist 90°
     tw, _ = crack_plane_angles([0, 1, 0], [0, 0, 1], 90.0)
@@ -445,9 +452,9 @@ def test_write_forecast_outputs_and_caution(tmp_path, bicrystal_gg):
 
 
 def test_private_numpy_rotations_match_the_orientation_module():
-    from slipnet._forecast_core import _matrices
-    from slipnet.forecast_mc import _qmul
-    from slipnet.orientation import matrix_from_quat, quat_multiply
+    from slipnet.crystal import matrix_from_quat, quat_multiply
+    from slipnet.forecast._core import _matrices
+    from slipnet.forecast.monte_carlo import _qmul
 
     a, b = random_quats(20, seed=1), random_quats(20, seed=2)
     assert _matrices(a) == pytest.approx(matrix_from_quat(a), abs=1e-12)
@@ -476,21 +483,48 @@ def test_forecast_command_line(tmp_path):
     out = tmp_path / "out"
     args = ["forecast", str(src), "--tip", "5", "20", "--direction", "1", "0", "--load-axis",
             *map(str, L_HAND), "--horizon", "60", "--samples", "2", "--out", str(out),
-            "--save-graph", str(tmp_path / "graph.pickle")]
+            "--save-graph", str(tmp_path / "graph.npz")]
     assert main(args) == 0
     assert (out / "forecast_barriers.csv").exists() and (out / "forecast_map.png").exists()
     assert CAUTION in (out / "summary.md").read_text(encoding="utf-8")
     # the saved graph gives the same forecast without rebuilding the grains
     out2 = tmp_path / "out2"
-    assert main(["forecast", "--graph", str(tmp_path / "graph.pickle"), "--tip", "5", "20", "--direction", "1",
-                 "0", "--load-axis", *map(str, L_HAND), "--horizon", "60", "--out", str(out2)]) == 0
+    assert main(["forecast", "--graph", str(tmp_path / "graph.npz"), "--tip", "5", "20", "--direction", "1",
+                 "0", "--load-axis", *map(str, L_HAND), "--horizon", "60", "--samples", "2", "--out", str(out2)]) == 0
     import pandas as pd
 
-    a = pd.read_csv(out / "forecast_path.csv")
-    b = pd.read_csv(out2 / "forecast_path.csv")
-    assert a[["x0", "y0", "x1", "y1"]].to_numpy() == pytest.approx(b[["x0", "y0", "x1", "y1"]].to_numpy())
+    for table in ("path", "crossings", "barriers", "sites"):
+        pd.testing.assert_frame_equal(pd.read_csv(out / f"forecast_{table}.csv"),
+                                      pd.read_csv(out2 / f"forecast_{table}.csv"))
     # a clear error (exit code 2) without a tip
-    assert main(["forecast", str(src), "--out", str(tmp_path / "x")]) == 2
+    assert main(["forecast", str(src), "--load-axis", *map(str, L_HAND), "--out", str(tmp_path / "x")]) == 2
+
+
+def test_forecast_refuses_a_crafted_pickle_as_graph(tmp_path, capsys):
+    import pickle
+
+    from slipnet.cli import main
+
+    class Payload:
+        def __reduce__(self):  # would run code on unpickling
+            return (print, ("code ran",))
+
+    bad = tmp_path / "graph.npz"
+    bad.write_bytes(pickle.dumps(Payload()))
+    code = main(["forecast", "--graph", str(bad), "--tip", "5", "20", "--direction", "1", "0", "--load-axis",
+                 *map(str, L_HAND), "--out", str(tmp_path / "o")])
+    captured = capsys.readouterr()
+    assert code == 2 and "code ran" not in captured.out
+    assert "saved grain graph" in captured.err and str(bad) in captured.err
+    assert not (tmp_path / "o").exists()
+    # an npz archive holding a pickled object array is refused too
+    import numpy as np
+
+    np.savez(tmp_path / "objects.npz", graph_meta=np.array([Payload()], dtype=object))
+    code = main(["forecast", "--graph", str(tmp_path / "objects.npz"), "--tip", "5", "20", "--direction", "1", "0",
+                 "--load-axis", *map(str, L_HAND), "--out", str(tmp_path / "o")])
+    captured = capsys.readouterr()
+    assert code == 2 and "code ran" not in captured.out and "pickled" in captured.err
 
 
 def test_demo_step_stores_a_forecast(tmp_path):
@@ -545,7 +579,7 @@ def test_rank_barriers_of_nothing_is_an_empty_table():
 
 
 def test_geometry_is_cached_per_graph(bicrystal_gg, poly_gg):
-    from slipnet._forecast_core import geometry_of
+    from slipnet.forecast._core import geometry_of
 
     a = geometry_of(bicrystal_gg)
     assert geometry_of(bicrystal_gg) is a

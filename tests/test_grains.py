@@ -13,21 +13,13 @@ from scipy.optimize import linear_sum_assignment
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-from slipnet import _grain_kernels as gk
-from slipnet.errors import ParameterError
-from slipnet.grains import (
+from slipnet.crystal import (
     BOUNDARY_CLASSES,
     CSL_TABLE,
-    _neighbour_pairs,
-    build_grain_graph,
-    csl_rotations,
-    mackenzie_cdf,
-    write_grain_outputs,
-)
-from slipnet.maps import OrientationMap, Phase
-from slipnet.orientation import (
     CUBIC_OPERATORS,
+    csl_rotations,
     disorientation_angle,
+    mackenzie_cdf,
     matrix_from_quat,
     nearest_equivalent,
     quat_from_axis_angle,
@@ -35,6 +27,12 @@ from slipnet.orientation import (
     quat_multiply,
     random_quats,
 )
+from slipnet.errors import ParameterError
+from slipnet.grains import _kernels as gk
+from slipnet.grains import build_grain_graph
+from slipnet.grains._steps import _neighbour_pairs
+from slipnet.maps import OrientationMap, Phase
+from slipnet.reports.grains import write_grains
 
 SQ3 = math.sqrt(3.0)
 
@@ -623,7 +621,7 @@ def test_chain_kernel_py_func_agrees():
             gaps = np.hypot(*np.diff(line, axis=0).T)
             assert np.all(np.isclose(gaps, 1.0) | np.isclose(gaps, 1 / math.sqrt(2)) | np.isclose(gaps, 0.5))
     # compiled and pure-Python chaining give the same polylines on a tiny case
-    from slipnet.grains import _edge_geometry
+    from slipnet.grains._steps import _edge_geometry
 
     a, b = _pairs(om)
     lab = gg.labels.ravel()
@@ -687,16 +685,15 @@ def test_graph_attributes_and_exports(tmp_path):
     for _, _, attrs in g.edges(data=True):
         assert all(isinstance(v, (int, float, str)) for v in attrs.values())
         assert 0 <= attrs["trace_angle_deg"] < 180
-    path = gg.write_graphml(tmp_path / "g.graphml")
-    back = nx.read_graphml(path, node_type=int)
+    files = write_grains(gg, tmp_path, figures=False)
+    back = nx.read_graphml(files["graph"], node_type=int)
     assert back.number_of_edges() == g.number_of_edges()
     e = next(iter(g.edges))
     assert back.edges[e]["boundary_class"] == g.edges[e]["boundary_class"]
     assert back.edges[e]["length_um"] == pytest.approx(g.edges[e]["length_um"])
-    paths = gg.write_tables(tmp_path)
-    tab = pd.read_csv(paths["boundaries"])
+    tab = pd.read_csv(files["boundaries"])
     assert (tab["grain_a"] < tab["grain_b"]).all() and len(tab) == len(gg.boundaries)
-    assert np.array_equal(np.load(gg.write_labels(tmp_path / "labels.npy")), gg.labels)
+    assert np.array_equal(np.load(files["labels"]), gg.labels)
     assert gg.labels.dtype == np.int64
 
 
@@ -705,8 +702,8 @@ def test_write_outputs_with_pictures_and_caution(tmp_path):
 
     om, _, _ = voronoi_map(40, 40, 10, grid="hex", seed=2)
     gg = build_grain_graph(om, 15.0)
-    paths = write_grain_outputs(gg, tmp_path)
-    names = {p.name for p in paths}
+    paths = write_grains(gg, tmp_path)
+    names = {p.name for p in paths.values()}
     assert {"grains.csv", "boundaries.csv", "grain_graph.graphml", "grain_labels.npy", "grain_map.png",
             "misorientation_histogram.png", "summary.md"} <= names
     assert CAUTION in (tmp_path / "summary.md").read_text(encoding="utf-8")

@@ -465,7 +465,7 @@ def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
                   "twist_deg": [0.0, 30.0, 5.0]}).to_csv(bars, index=False)
     out = tmp_path / "out"
     assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(out),
-                 "--points", "300", "--samples", "5"]) == 0
+                 "--profile-points", "300", "--samples", "5"]) == 0
     prof = pd.read_csv(out / "growth_profile.csv")
     assert prof["crack_length"].iloc[-1] == pytest.approx(105.0)
     assert (out / "growth_bands.csv").exists()
@@ -480,7 +480,7 @@ def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
     assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(out2),
                  "--record", str(rec), "--coefficient", "0.1", "--no-figures"]) == 0
     assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(tmp_path / "life"),
-                 "--life", "1e5", "--points", "300", "--no-figures"]) == 0
+                 "--life", "1e5", "--profile-points", "300", "--no-figures"]) == 0
     assert "life of 100000 cycles" in (tmp_path / "life" / "summary.md").read_text(encoding="utf-8")
     cal = pd.read_csv(out2 / "growth_calibration.csv").set_index("parameter")
     assert cal.loc["coefficient", "value"] == pytest.approx(0.05, rel=0.05)
@@ -521,10 +521,11 @@ def test_example_script_runs(capsys):
 
 def test_growth_along_a_real_forecast_on_a_three_grain_map(tmp_path):
     from slipnet.cli import main as cli_main
-    from slipnet.forecast import forecast_crack, write_forecast
+    from slipnet.forecast import forecast_crack
     from slipnet.grains import build_grain_graph
     from slipnet.growth import path_from_forecast
     from slipnet.maps import OrientationMap
+    from slipnet.reports import write_forecast
 
     eul = np.zeros((24, 72, 3))
     eul[:, 24:48] = [45.0, 30.0, 10.0]
@@ -544,8 +545,8 @@ def test_growth_along_a_real_forecast_on_a_three_grain_map(tmp_path):
     assert set(res.profile["grain"]) <= set(fc.path["grain"])
     # the same through the command line, from the forecast's saved tables
     write_forecast(fc, tmp_path / "fc", figures=False)
-    assert cli_main(["growth", "--forecast", str(tmp_path / "fc"), "--out", str(tmp_path / "g"), "--points", "300",
-                     "--no-figures"]) == 0
+    assert cli_main(["growth", "--forecast", str(tmp_path / "fc"), "--out", str(tmp_path / "g"),
+                     "--profile-points", "300", "--no-figures"]) == 0
     saved = pd.read_csv(tmp_path / "g" / "growth_barriers.csv")
     np.testing.assert_allclose(saved["position_um"], path.barrier_positions_um, rtol=1e-9)
     np.testing.assert_allclose(saved["m_prime"], path.m_prime, rtol=1e-9)
@@ -567,15 +568,15 @@ def test_life_amplitude_hits_the_target_life_and_falls_back_to_the_fatigue_limit
 
 
 def test_local_stress_field_factors_replace_the_forecast_schmid(monkeypatch):
-    import slipnet.stress
+    import slipnet.stress.local
     from slipnet.growth import path_from_forecast
 
     local = np.zeros((10, 4))
     local[4, 0] = -0.25  # grain 4 follows system 0
     local[9, 3] = 0.40  # grain 9 follows system 3
-    monkeypatch.setattr(slipnet.stress, "grain_schmid_factors", lambda field, gg, systems=None: local)
+    monkeypatch.setattr(slipnet.stress.local, "grain_schmid_factors", lambda field, gg, systems=None: local)
     fc = _fake_forecast()
-    path = path_from_forecast(fc, stress_field=object(), grain_graph=object())
+    path = path_from_forecast(fc, stress_field=object(), gg=object())
     np.testing.assert_allclose(path.grain_factors, [0.25, 0.40])
-    with pytest.raises(ParameterError, match="grain_graph"):
+    with pytest.raises(ParameterError, match="gg should be given"):
         path_from_forecast(fc, stress_field=object())

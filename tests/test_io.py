@@ -9,10 +9,11 @@ import time
 import numpy as np
 import pytest
 
+from slipnet.crystal import quat_rotate
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io import from_orix, map_summary, parse_frame_rotation, read_map, to_orix, write_map
-from slipnet.maps import AUSTENITE, FERRITE, OrientationMap
-from slipnet.orientation import quat_rotate
+from slipnet.maps import OrientationMap
+from slipnet.maps.orientation_map import AUSTENITE, FERRITE
 
 orix = pytest.importorskip("orix")
 from orix.quaternion import Orientation, Rotation  # noqa: E402

@@ -15,22 +15,21 @@ import pandas as pd
 import pytest
 
 from slipnet.cli import main
+from slipnet.crystal import effective_schmid, schmid_factors, slip_systems
 from slipnet.errors import ParameterError
 from slipnet.grains import build_grain_graph
 from slipnet.io import write_map
 from slipnet.maps import OrientationMap
+from slipnet.reports.slip import write_slip
 from slipnet.slip import (
     LOCAL_SOURCE,
-    effective_schmid,
     grain_schmid_table,
     local_grain_factors,
-    schmid_factors,
-    slip_systems,
+    slip_activity,
     slip_trace_table,
-    write_slip_outputs,
+    transmission_table,
 )
 from slipnet.stress import grain_schmid_factors, solve_elastic
-from slipnet.transmission import annotate_transmission
 
 LOAD = np.array([1.0, 0.0, 0.0])
 
@@ -86,9 +85,9 @@ def test_local_factors_differ_from_uniform_where_anisotropy_matters(poly):
 def test_transmission_with_stress_field_equals_given_factors(poly):
     gg, field, sy = poly
     local = grain_schmid_factors(field, gg, sy)
-    a = annotate_transmission(gg, LOAD, sy, stress_field=field)
-    b = annotate_transmission(gg, LOAD, sy, factors=local)
-    u = annotate_transmission(gg, LOAD, sy)
+    a = transmission_table(gg, LOAD, sy, stress_field=field)
+    b = transmission_table(gg, LOAD, sy, factors=local)
+    u = transmission_table(gg, LOAD, sy)
     assert (a["factor_source"] == LOCAL_SOURCE).all() and "factor_source" not in u.columns
     pd.testing.assert_frame_equal(a.drop(columns="factor_source"), b)
     assert not np.allclose(a["transmission_score"], u["transmission_score"], equal_nan=True)
@@ -118,20 +117,21 @@ def test_errors_name_the_parameter(poly):
     with pytest.raises(ParameterError, match=r"load_axis .* should be the load axis the stress field"):
         slip_trace_table(gg, (0.0, 1.0, 0.0), sy, stress_field=field)
     with pytest.raises(ParameterError, match=r"stress_field should be a slipnet\.stress\.StressField"):
-        annotate_transmission(gg, LOAD, sy, stress_field=object())
+        transmission_table(gg, LOAD, sy, stress_field=object())
     # reversing a uniaxial load axis gives the same factors: accepted
     np.testing.assert_array_equal(local_grain_factors(gg, -LOAD, sy, field), grain_schmid_factors(field, gg, sy))
 
 
 def test_write_slip_outputs_states_local_factors(poly, tmp_path):
     gg, field, sy = poly
-    res = write_slip_outputs(gg, LOAD, tmp_path / "loc", systems=sy, taylor=False, stress_field=field)
+    act = slip_activity(gg, LOAD, sy, taylor=False, stress_field=field)
+    write_slip(act, gg, tmp_path / "loc")
     text = (tmp_path / "loc" / "summary.md").read_text(encoding="utf-8")
     assert "LOCAL Schmid factors" in text and field.assumptions in text
     saved = pd.read_csv(tmp_path / "loc" / "grains_slip.csv")
     assert (saved["factor_source"] == LOCAL_SOURCE).all()
-    assert (res["transmission_table"]["factor_source"] == LOCAL_SOURCE).all()
-    write_slip_outputs(gg, LOAD, tmp_path / "uni", systems=sy, taylor=False)
+    assert (act.transmission["factor_source"] == LOCAL_SOURCE).all()
+    write_slip(slip_activity(gg, LOAD, sy, taylor=False), gg, tmp_path / "uni")
     text = (tmp_path / "uni" / "summary.md").read_text(encoding="utf-8")
     assert "uniform uniaxial" in text and "LOCAL" not in text
 
@@ -142,13 +142,13 @@ def test_cli_local_stress_flags_end_to_end(tmp_path, capsys):
     assumptions = solve_elastic(omap, (0.0, 1.0, 0.0), 200.0).assumptions
 
     assert main(["slip", str(path), "--out", str(tmp_path / "slip"), "--no-taylor", "--load-axis", "0", "1", "0",
-                 "--local-stress", "--stress-tol", "1e-7"]) == 0
+                 "--local-stress", "--local-stress-mpa", "200", "--stress-tol", "1e-7"]) == 0
     text = (tmp_path / "slip" / "summary.md").read_text(encoding="utf-8")
     assert "LOCAL Schmid factors" in text and assumptions in text
     assert (pd.read_csv(tmp_path / "slip" / "slip_traces.csv")["factor_source"] == LOCAL_SOURCE).all()
 
     fc_args = ["forecast", str(path), "--tip", "0.5", "8.0", "--direction", "1", "0", "--horizon", "20",
-               "--stress", "200"]
+               "--stress", "200", "--load-axis", "0", "1", "0"]
     assert main([*fc_args, "--out", str(tmp_path / "fc"), "--local-stress"]) == 0
     settings = json.loads((tmp_path / "fc" / "forecast_settings.json").read_text(encoding="utf-8"))
     assert settings["stress_field"] is True and settings["stress_assumptions"] == assumptions
@@ -165,7 +165,7 @@ def test_cli_local_stress_flags_end_to_end(tmp_path, capsys):
     np.testing.assert_allclose(st1["schmid"], eff[st1["grain"], st1["system"]], rtol=1e-9)
 
     assert main(["growth", "--forecast", str(tmp_path / "fc"), "--out", str(tmp_path / "gr"), "--no-figures",
-                 "--points", "200", "--local-stress"]) == 0
+                 "--profile-points", "200", "--local-stress"]) == 0
     assert assumptions in (tmp_path / "gr" / "summary.md").read_text(encoding="utf-8")
     capsys.readouterr()
     # a forecast made with uniform factors is refused, naming the flag

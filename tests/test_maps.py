@@ -7,9 +7,9 @@ import pytest
 from orix.quaternion import Orientation, Rotation
 from orix.vector import Vector3d
 
+from slipnet.crystal import quat_from_axis_angle, quat_rotate, random_quats
 from slipnet.errors import ParameterError
 from slipnet.maps import OrientationMap, Phase, apply_frame_rotation
-from slipnet.orientation import quat_from_axis_angle, quat_rotate, random_quats
 
 
 def _map(ny=4, nx=5, grid="square", step=0.5):

@@ -6,21 +6,28 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from slipnet.crystal import (
+    effective_schmid,
+    quat_from_axis_angle,
+    quat_from_matrix,
+    quat_multiply,
+    schmid_factors,
+    slip_systems,
+)
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.grains import build_grain_graph
-from slipnet.maps import OrientationMap
+from slipnet.io import read_study
+from slipnet.maps import NotchShape, OrientationMap
 from slipnet.notch import (
-    NotchShape,
     candidate_positions,
     notch_stress_factor,
     pareto_ranks,
     peterson_kt,
     plan_notch,
     rank_candidates,
+    run_study,
 )
-from slipnet.notch_sweep import read_study, run_study
-from slipnet.orientation import quat_from_axis_angle, quat_from_matrix, quat_multiply
-from slipnet.slip import effective_schmid, schmid_factors, slip_systems
+from slipnet.reports.notch import write_plan
 
 
 def _orientation_with_x_along(l_crystal, spin_deg=0.0):
@@ -72,15 +79,16 @@ def test_position_facing_the_favourable_grain_ranks_first(bands):
     gg, _ = bands
     plan = plan_notch(gg, "top", (1, 0, 0), spacing_um=10.0, depth_um=10.0, root_radius_um=4.0,
                       window_um=80.0, crack_sizes_um=(5.0,), objectives={"initiation_drive": 1.0})
-    best = plan.iloc[0]
+    best = plan.table.iloc[0]
     assert best["rank"] == 1 and best["valid"]
     # the root sits in the middle band (x 66–130 µm) or within one root radius of it
     assert 66.0 - 4.0 <= best["x"] <= 130.0 + 4.0
     assert best["root_schmid"] == pytest.approx(0.5, abs=1e-6)
     # no boundary ahead along the band: no strong barrier in the window (a weak first barrier)
     assert math.isinf(best["first_barrier_um"])
-    assert list(plan.columns[:4]) == ["x", "y", "rank", "score"]
-    assert plan["rank"].is_monotonic_increasing
+    assert list(plan.table.columns[:4]) == ["x", "y", "rank", "score"]
+    assert plan.table["rank"].is_monotonic_increasing
+    assert plan.settings.load_axis == (1.0, 0.0, 0.0) and plan.method == "weighted"
 
 
 def test_peterson_kt_against_chart_values_and_inglis():
@@ -145,10 +153,10 @@ def test_same_seed_same_table_on_every_local_scheduler(bands):
               samples=2, seed=5)
     a = plan_notch(gg, "top", (1, 0, 0), scheduler="synchronous", **kw)
     b = plan_notch(gg, "top", (1, 0, 0), scheduler="threads", workers=2, **kw)
-    pd.testing.assert_frame_equal(a, b)
-    assert "initiation_drive_p05" in a and "p_top_k" in a
+    pd.testing.assert_frame_equal(a.table, b.table)
+    assert "initiation_drive_p05" in a.table and "p_top_k" in a.table
     c = plan_notch(gg, "top", (1, 0, 0), scheduler="synchronous", **{**kw, "seed": 6})
-    assert not np.allclose(a["initiation_drive_p50"], c["initiation_drive_p50"])
+    assert not np.allclose(a.table["initiation_drive_p50"], c.table["initiation_drive_p50"])
 
 
 @pytest.mark.slow
@@ -161,7 +169,7 @@ def test_same_seed_same_table_on_a_local_distributed_cluster(bands):
     a = plan_notch(gg, "top", (1, 0, 0), scheduler="threads", workers=2, **kw)
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
         b = plan_notch(gg, "top", (1, 0, 0), scheduler=cluster.scheduler_address, **kw)
-    pd.testing.assert_frame_equal(a, b)
+    pd.testing.assert_frame_equal(a.table, b.table)
 
 
 def test_bad_inputs_give_clear_errors(bands):
@@ -216,13 +224,15 @@ def test_study_file_runs_and_writes_outputs(tmp_path):
     write_map(omap, tmp_path / "bands.npz")
     study = tmp_path / "study.toml"
     study.write_text(STUDY)
-    plan = run_study(study, tmp_path / "out")
-    assert 66.0 - 4.0 <= plan.iloc[0]["x"] <= 130.0 + 4.0
+    plan = run_study(study)
+    write_plan(plan, build_grain_graph(omap), tmp_path / "out")
+    assert plan.source["study"] == str(study)
+    assert 66.0 - 4.0 <= plan.table.iloc[0]["x"] <= 130.0 + 4.0
     for name in ("notch_plan.csv", "notch_plan.json", "settings.json", "notch_plan_map.png", "summary.md"):
         assert (tmp_path / "out" / name).is_file()
     assert "support, never replace" in (tmp_path / "out" / "summary.md").read_text()
     again = pd.read_csv(tmp_path / "out" / "notch_plan.csv")
-    np.testing.assert_allclose(again["score"], plan["score"])
+    np.testing.assert_allclose(again["score"], plan.table["score"])
 
 
 def test_bad_study_files(tmp_path):
@@ -245,17 +255,20 @@ def test_cli_refuses_bad_input_and_writes_nothing(tmp_path, capsys):
     omap, _ = _band_specimen()
     write_map(omap, tmp_path / "bands.npz")
     out = tmp_path / "plan"
-    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "top", "--spacing", "-1", "--out", str(out)])
+    code = main(["notch", str(tmp_path / "bands.npz"), "--side", "top", "--spacing", "-1", "--load-axis", "1", "0", "0",
+                 "--out", str(out)])
     assert code == 2 and "spacing_um" in capsys.readouterr().err
     assert not out.exists()
     code = main(["notch", str(tmp_path / "bands.npz"), "--side", "top", "--spacing", "30", "--depth", "10",
-                 "--radius", "4", "--window", "60", "--crack-sizes", "5", "--out", str(out)])
+                 "--root-radius", "4", "--window", "60", "--crack-sizes", "5", "--load-axis", "1", "0", "0",
+                 "--out", str(out)])
     assert code == 0 and (out / "notch_plan.csv").is_file()
 
 
 def test_batch_runs_one_study_over_a_folder_of_maps(tmp_path):
     from slipnet.io import write_map
-    from slipnet.notch_sweep import run_batch
+    from slipnet.notch import iter_batch
+    from slipnet.reports.notch import write_batch
 
     omap, _ = _band_specimen()
     folder = tmp_path / "maps"
@@ -264,20 +277,21 @@ def test_batch_runs_one_study_over_a_folder_of_maps(tmp_path):
     write_map(omap.crop(0.0, 150.0, 0.0, 118.0), folder / "coupon_b.txt")
     study = tmp_path / "study.toml"
     study.write_text(STUDY.replace('map = "bands.npz"\n', ""))
-    table = run_batch(folder, study, tmp_path / "out")
+    files = write_batch(iter_batch(folder, study), tmp_path / "out")
+    table = pd.read_csv(files["batch_best"])
     assert set(table["specimen"]) == {"coupon_a.npz", "coupon_b.txt"}
-    for stem in ("coupon_a", "coupon_b"):
-        assert (tmp_path / "out" / stem / "notch_plan.csv").is_file()
+    for name in ("coupon_a.npz", "coupon_b.txt"):  # one folder per map file: no two maps share one
+        assert (tmp_path / "out" / name / "notch_plan.csv").is_file()
     assert (tmp_path / "out" / "batch_best.csv").is_file()
     # a folder with a bad map fails before any plan is written
     (folder / "broken.txt").write_text("not a map\n")
     with pytest.raises(InputFileError):
-        run_batch(folder, study, tmp_path / "out2")
+        write_batch(iter_batch(folder, study), tmp_path / "out2")
     assert not (tmp_path / "out2").exists()
 
 
 def test_full_field_kt_of_an_edge_notch_near_the_chart_value():
-    from slipnet.orientation import quat_from_euler
+    from slipnet.crystal import quat_from_euler
 
     # A cube-oriented single crystal loaded along [100], 240 µm square, 40 µm deep U notch with a
     # 10 µm root radius from the top edge: the full-field K_t (free edge from the compliant margin)
@@ -289,10 +303,10 @@ def test_full_field_kt_of_an_edge_notch_near_the_chart_value():
     gg = build_grain_graph(omap)
     plan = plan_notch(gg, "top", (1, 0, 0), spacing_um=300.0, depth_um=40.0, root_radius_um=10.0,
                       window_um=60.0, crack_sizes_um=(5.0,), concentration="full_field")
-    row = plan.iloc[0]
+    row = plan.table.iloc[0]
     assert row["kt_chart"] == pytest.approx(peterson_kt(40.0, 10.0))
     assert 0.85 < row["kt"] / row["kt_chart"] < 1.15
-    assert any("full-field" in n for n in plan.attrs["settings"]["notes"])
+    assert any("full-field" in n for n in plan.notes)
     with pytest.raises(ParameterError, match="concentration should be"):
         plan_notch(gg, "top", (1, 0, 0), concentration="guess", depth_um=40.0, root_radius_um=10.0,
                    window_um=60.0, crack_sizes_um=(5.0,))

@@ -9,9 +9,7 @@ from orix.quaternion.symmetry import Oh
 from orix.vector import Vector3d
 from scipy.spatial.transform import Rotation
 
-from slipnet import _orientation_kernels as K
-from slipnet.errors import ParameterError
-from slipnet.orientation import (
+from slipnet.crystal import (
     CUBIC_OPERATORS,
     disorientation,
     disorientation_angle,
@@ -28,6 +26,8 @@ from slipnet.orientation import (
     random_quats,
     reduce_cubic,
 )
+from slipnet.crystal import orientation_kernels as K
+from slipnet.errors import ParameterError
 
 
 def _random_euler(n, seed):

@@ -9,22 +9,23 @@ import pandas as pd
 import pytest
 from _stubs import bicrystal_graph_stub
 
-from slipnet import _slip_kernels as K
-from slipnet.errors import ParameterError
-from slipnet.maps import OrientationMap, Phase
-from slipnet.orientation import matrix_from_quat, quat_from_axis_angle, random_quats
-from slipnet.slip import (
+from slipnet.crystal import _slip_kernels as K
+from slipnet.crystal import (
     effective_schmid,
-    grain_schmid_table,
+    matrix_from_quat,
     plane_inclinations,
+    quat_from_axis_angle,
+    random_quats,
     resolved_shear,
     schmid_factors,
     schmid_summary,
     slip_systems,
     slip_trace_angles,
-    slip_trace_table,
     taylor_factor,
 )
+from slipnet.errors import ParameterError
+from slipnet.maps import OrientationMap, Phase
+from slipnet.slip import grain_schmid_table, slip_trace_table
 
 IDENTITY = np.array([1.0, 0.0, 0.0, 0.0])
 
@@ -229,7 +230,7 @@ def test_schmid_kernel_py_func_matches_compiled():
     nt, dt = np.ascontiguousarray(s.normals.T), np.ascontiguousarray(s.directions.T)
     K.schmid_rows(q, load, nt, dt, a)
     K.schmid_rows.py_func(q, load, nt, dt, b)
-    from slipnet.orientation import quat_rotate
+    from slipnet.crystal import quat_rotate
 
     lc = quat_rotate(q, load)
     np.testing.assert_allclose(a, (lc @ s.normals.T) * (lc @ s.directions.T), equal_nan=True, atol=1e-12)
@@ -372,22 +373,32 @@ def test_grains_of_other_structure_are_skipped():
 @pytest.mark.slow  # ~25 s on a cold numba cache (compiles the transmission kernel and loads matplotlib)
 def test_write_slip_outputs_writes_tables_pictures_and_caution(tmp_path):
     from slipnet.cautions import CAUTION
-    from slipnet.slip import write_slip_outputs
+    from slipnet.reports.slip import write_slip
+    from slipnet.slip import slip_activity, with_slip_annotations
 
     gg = _two_grain_graph()
-    res = write_slip_outputs(gg, [1, 0, 0], tmp_path / "slip", systems=slip_systems("bcc", "all"))
+    act = slip_activity(gg, [1, 0, 0], slip_systems("bcc", "all"))
+    files = write_slip(act, gg, tmp_path / "slip")
+    assert set(files) >= {"grains", "traces", "transmission", "systems", "summary"}
     for name in ("grains_slip.csv", "slip_traces.csv", "transmission.csv", "systems.csv", "schmid_map.png",
                  "transmission_map.png", "slip_traces.png", "summary.md"):
         assert (tmp_path / "slip" / name).stat().st_size > 0
     text = (tmp_path / "slip" / "summary.md").read_text(encoding="utf-8")
     assert CAUTION in text and "ASSUMED" in text
     back = pd.read_csv(tmp_path / "slip" / "grains_slip.csv")
-    np.testing.assert_allclose(back["schmid_max"], res["grain_table"]["schmid_max"])
-    assert "schmid_max" in gg.graph.nodes[0] and "transmission_ab" in gg.graph.edges[0, 1]
+    np.testing.assert_allclose(back["schmid_max"], act.grains["schmid_max"])
+    from slipnet.grains import build_grain_graph
+
+    real = build_grain_graph(gg.omap)  # a real (frozen) GrainGraph of the same bicrystal
+    gg = real
+    act = slip_activity(real, [1, 0, 0], slip_systems("bcc", "all"))
+    annotated = with_slip_annotations(real, act)
+    assert "schmid_max" in annotated.graph.nodes[0] and "transmission_ab" in annotated.graph.edges[0, 1]
+    assert "schmid_max" not in gg.graph.nodes[0]  # the caller's graph is left as it was
 
 
 def test_point_schmid_maps_mask_unindexed_and_other_phases():
-    from slipnet.slip import point_schmid_maps
+    from slipnet.crystal import point_schmid_maps
 
     euler = np.zeros((3, 4, 3))
     euler[:, 2:] = [45.0, 30.0, 0.0]

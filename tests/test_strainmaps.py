@@ -10,16 +10,10 @@ import tifffile
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from slipnet.compare import strain_from_displacement
 from slipnet.errors import InputFileError, ParameterError
-from slipnet.strainmaps import (
-    StrainSeries,
-    displacement_gradient,
-    equivalent_strain,
-    max_shear_strain,
-    read_strain,
-    write_strain,
-)
+from slipnet.io import read_strain, write_strain
+from slipnet.maps import StrainSeries, equivalent_strain, max_shear_strain, strain_from_displacement
+from slipnet.maps.strain import displacement_gradient
 
 STEP = 0.5
 

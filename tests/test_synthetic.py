@@ -11,9 +11,10 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial.transform import Rotation
 
+from slipnet.crystal import CUBIC_OPERATORS, disorientation_angle, quat_multiply, quat_rotate
 from slipnet.errors import ParameterError
-from slipnet.orientation import CUBIC_OPERATORS, disorientation_angle, quat_multiply, quat_rotate
-from slipnet.synthetic import Notch, demo_specimen, make_specimen
+from slipnet.maps import NotchShape
+from slipnet.synthetic import demo_specimen, make_specimen
 
 # ------------------------------------------------------------------------------------------ helpers
 
@@ -97,7 +98,8 @@ def test_grains_are_connected_on_both_grids():
 
 
 def test_labels_and_orientations_reproducible_per_seed():
-    kw = dict(grain_size_um=15.0, second_phase_fraction=0.05, notch={"side": "bottom", "depth_um": 30.0})
+    kw = dict(grain_size_um=15.0, second_phase_fraction=0.05, notch={"depth_um": 30.0, "opening_deg": 45.0},
+              notch_side="bottom")
     s1 = make_specimen((120, 140), 1.0, seed=5, **kw)
     s2 = make_specimen((120, 140), 1.0, seed=5, **kw)
     s3 = make_specimen((120, 140), 1.0, seed=6, **kw)
@@ -121,7 +123,8 @@ def test_chunk_size_does_not_change_the_result():
 
 def test_truth_labels_match_the_map_mask_and_ids_are_compact():
     spec = make_specimen((100, 120), 1.0, grain_size_um=12.0, unindexed_fraction=0.05,
-                         second_phase_fraction=0.1, notch=Notch(side="right", depth_um=30.0), seed=3)
+                         second_phase_fraction=0.1, notch=NotchShape(depth_um=30.0, opening_deg=45.0),
+                         notch_side="right", seed=3)
     lab = spec.truth_labels
     assert np.array_equal(lab < 0, ~spec.omap.indexed)
     assert set(np.unique(lab[lab >= 0])) == set(range(spec.n_grains))
@@ -281,9 +284,9 @@ def _notch_area(depth, rho, opening_deg):
 @pytest.mark.parametrize("grid", ["square", "hex"])
 @pytest.mark.parametrize(("side", "opening"), [("left", 45.0), ("top", 60.0), ("right", 0.0), ("bottom", 90.0)])
 def test_notch_points_unindexed_and_root_at_the_tip(grid, side, opening):
-    notch = Notch(side=side, depth_um=40.0, root_radius_um=8.0, opening_deg=opening)
+    notch = NotchShape(depth_um=40.0, root_radius_um=8.0, opening_deg=opening)
     spec = make_specimen((160, 180), 0.5, grid=grid, grain_size_um=15.0, unindexed_fraction=0.0, notch=notch,
-                         seed=1)
+                         notch_side=side, seed=1)
     om = spec.omap
     x0, x1, y0, y1 = om.extent
     rx, ry = spec.notch_root
@@ -307,7 +310,8 @@ def test_notch_points_unindexed_and_root_at_the_tip(grid, side, opening):
 
 
 def test_notch_accepts_a_dict_and_position():
-    spec = make_specimen((100, 100), 1.0, grain_size_um=15.0, notch={"side": "left", "position_um": 30.0}, seed=0)
+    spec = make_specimen((100, 100), 1.0, grain_size_um=15.0, notch={"depth_um": 60.0},
+                         notch_side="left", notch_position_um=30.0, seed=0)
     assert spec.notch_root == (60.0, 30.0)
 
 
@@ -323,17 +327,18 @@ def test_parameter_errors_name_the_parameter():
     with pytest.raises(ParameterError, match="unindexed_fraction"):
         make_specimen((20, 20), unindexed_fraction=0.9)
     with pytest.raises(ParameterError, match="depth_um"):
-        make_specimen((20, 20), notch={"side": "left", "depth_um": 50.0, "root_radius_um": 2.0})
+        make_specimen((20, 20), notch={"depth_um": 50.0, "root_radius_um": 2.0}, notch_side="left")
     with pytest.raises(ParameterError, match="notch should be"):
         make_specimen((20, 20), notch={"edge": "left"})
     with pytest.raises(ParameterError, match="position_um"):
-        make_specimen((20, 20), notch={"side": "top", "depth_um": 5.0, "root_radius_um": 1.0, "position_um": 99.0})
+        make_specimen((20, 20), notch={"depth_um": 5.0, "root_radius_um": 1.0}, notch_side="top",
+                      notch_position_um=99.0)
     with pytest.raises(ParameterError, match="fibre_axis"):
         make_specimen((20, 20), texture="fibre", fibre_axis=(0, 0, 0))
-    with pytest.raises(ParameterError, match="side"):
-        Notch(side="middle")
+    with pytest.raises(ParameterError, match="notch_side"):
+        make_specimen((20, 20), notch={"depth_um": 5.0, "root_radius_um": 1.0}, notch_side="middle")
     with pytest.raises(ParameterError, match="root_radius_um"):
-        Notch(depth_um=5.0, root_radius_um=10.0)
+        NotchShape(depth_um=5.0, root_radius_um=10.0)
 
 
 # ------------------------------------------------------------------------------------------ demo
@@ -393,8 +398,8 @@ def test_specimen_example_runs(tmp_path, capsys):
 def test_power_cell_kernel_matches_a_lifted_nearest_neighbour_query(grid):
     from scipy.spatial import cKDTree
 
-    from slipnet import _synthetic_kernels
-    from slipnet.synthetic import _grid_xy, _power_cells
+    from slipnet.synthetic import _kernels as _synthetic_kernels
+    from slipnet.synthetic.specimen import _grid_xy, _power_cells
 
     rng = np.random.default_rng(0)
     lo, hi = np.array([-30.0, -30.0]), np.array([160.0, 130.0])

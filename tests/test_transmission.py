@@ -7,19 +7,23 @@ import pandas as pd
 import pytest
 from _stubs import bicrystal_graph_stub
 
-from slipnet import _slip_kernels as K
-from slipnet.errors import ParameterError
-from slipnet.orientation import CUBIC_OPERATORS, quat_from_axis_angle, quat_multiply, random_quats
-from slipnet.slip import effective_schmid, schmid_factors, slip_systems
-from slipnet.transmission import (
-    EDGE_KEYS,
-    annotate_transmission,
+from slipnet.crystal import (
+    CUBIC_OPERATORS,
     boundary_plane_normals,
+    effective_schmid,
     m_prime,
+    quat_from_axis_angle,
+    quat_multiply,
+    random_quats,
     residual_burgers,
+    schmid_factors,
     shen_factor,
+    slip_systems,
     transmission_summaries,
 )
+from slipnet.crystal import _slip_kernels as K
+from slipnet.errors import ParameterError
+from slipnet.slip import SLIP_EDGE_KEYS, slip_activity, transmission_table, with_slip_annotations
 
 SYS = slip_systems("bcc", "all")
 
@@ -98,7 +102,7 @@ def test_summaries_match_the_full_matrices_and_py_func():
     ga, gb = np.arange(29), np.arange(1, 30)
     th = np.linspace(0, 175, 29)
     f = schmid_factors(q, [1, 0, 0], SYS)
-    r = transmission_summaries(q, ga, gb, SYS, factors=f, trace_angle_deg=th, inclination_deg=60.0)
+    r = transmission_summaries(q, ga, gb, SYS, factors=f, trace_angle_deg=th, boundary_inclination_deg=60.0)
     eff = effective_schmid(f, SYS)
     for k in range(29):
         a, b = ga[k], gb[k]
@@ -112,7 +116,7 @@ def test_summaries_match_the_full_matrices_and_py_func():
             assert r["score"][k, c] == pytest.approx((mat[i] * eff[dst]).max() / 0.5)
             rb = residual_burgers(q[src], q[dst], SYS)
             assert r["residual_burgers"][k, c] == pytest.approx(rb[i, j])
-            sh = shen_factor(q[src], q[dst], SYS, th[k], inclination_deg=60.0)
+            sh = shen_factor(q[src], q[dst], SYS, th[k], boundary_inclination_deg=60.0)
             assert r["shen"][k, c] == pytest.approx(sh[i, j])
     assert np.all((r["score"] >= 0) & (r["score"] <= 1))
     # the compiled kernel and its Python source agree
@@ -144,12 +148,18 @@ def test_summaries_directional_and_nan_grains():
 _bicrystal = bicrystal_graph_stub
 
 
-def test_annotate_transmission_on_a_bicrystal():
+def test_transmission_table_on_a_bicrystal_and_annotated_graph():
     gg = _bicrystal()
-    t = annotate_transmission(gg, [1, 0, 0], SYS, inclination_deg=90.0)
+    t = transmission_table(gg, [1, 0, 0], SYS, boundary_inclination_deg=90.0)
     assert len(t) == 2 and set(t["grain_in"]) == {0, 1}
-    e = gg.graph.edges[0, 1]
-    for key in EDGE_KEYS:
+    from slipnet.grains import build_grain_graph
+
+    gg = build_grain_graph(gg.omap)  # the real (frozen) graph of the same bicrystal
+    t = transmission_table(gg, [1, 0, 0], SYS, boundary_inclination_deg=90.0)
+    annotated = with_slip_annotations(gg, slip_activity(gg, [1, 0, 0], SYS, taylor=False))
+    assert "m_prime_ab" not in gg.graph.edges[0, 1]  # the caller's graph is not changed
+    e = annotated.graph.edges[0, 1]
+    for key in SLIP_EDGE_KEYS:
         assert key in e
         assert isinstance(e[key], (int, float))
     mm = m_prime(gg.mean_quats[0], gg.mean_quats[1], SYS)
@@ -161,8 +171,8 @@ def test_annotate_transmission_on_a_bicrystal():
     rb = residual_burgers(gg.mean_quats[0], gg.mean_quats[1], SYS, lattice_parameter_nm=0.2866)
     assert row["residual_burgers_nm"] == pytest.approx(rb[row["system_in"], row["system_out"]])
     assert e["transmission_max"] == pytest.approx(t["transmission_score"].max())
-    with pytest.raises(ParameterError, match="inclination_deg"):
-        annotate_transmission(gg, [1, 0, 0], SYS, inclination_deg=120.0)
+    with pytest.raises(ParameterError, match="boundary_inclination_deg"):
+        transmission_table(gg, [1, 0, 0], SYS, boundary_inclination_deg=180.0)
 
 
 def test_bad_quaternion_inputs():
@@ -183,14 +193,15 @@ def test_slip_cli_writes_outputs(tmp_path, capsys):
     path = write_map(spec.omap, tmp_path / "map.npz")
     out = tmp_path / "slip"
     rc = main(["slip", str(path), "--out", str(out), "--load-axis", "0", "1", "0", "--families", "all",
-               "--crss", "{112}<111>=1.1", "--inclination", "80", "--no-taylor"])
+               "--relative-crss", "{112}<111>=1.1", "--boundary-inclination", "80",
+               "--no-taylor"])
     assert rc == 0
     assert "outputs written" in capsys.readouterr().out
     t = pd.read_csv(out / "transmission.csv")
     assert (t["boundary_inclination_deg"] == 80).all()
     s = pd.read_csv(out / "systems.csv")
     assert len(s) == 48 and (s.loc[s["family"] == "{112}<111>", "crss_relative"] == 1.1).all()
-    assert main(["slip", str(path), "--out", str(out), "--crss", "oops"]) == 2
+    assert main(["slip", str(path), "--out", str(out), "--load-axis", "0", "1", "0", "--relative-crss", "oops"]) == 2
     assert "FAMILY=VALUE" in capsys.readouterr().err
 
 

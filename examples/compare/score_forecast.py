@@ -17,11 +17,11 @@ from __future__ import annotations
 
 import tempfile
 
-from slipnet.compare import compare_forecast, fit_transform, write_comparison
+from slipnet.compare import compare_forecast, demo_measurement, fit_transform
 from slipnet.forecast import forecast_crack
 from slipnet.grains import build_grain_graph
+from slipnet.reports import write_comparison
 from slipnet.synthetic import demo_specimen
-from slipnet.synthetic_measurements import demo_measurement
 
 
 def main() -> None:
@@ -36,7 +36,7 @@ def main() -> None:
     print(f"registration: RMS {transform.rms:.2f} µm; residuals (µm): {transform.residuals.round(2).tolist()}")
 
     step = spec.omap.step
-    comp = compare_forecast(sm.series, forecast=forecast, grain_graph=gg, transform=transform, window=5,
+    comp = compare_forecast(sm.series, forecast=forecast, gg=gg, transform=transform, window=5,
                             peak_distance_um=4 * step, site_tol_um=3 * step, path_tol_um=3 * step,
                             measured_path=meas.measured_path, load_axis=spec.load_axis,
                             growth_record=meas.growth_record, dip_prominence=0.05, dip_tol_um=3 * step,

@@ -15,8 +15,9 @@ from __future__ import annotations
 
 import tempfile
 
-from slipnet.forecast import forecast_crack, write_forecast
+from slipnet.forecast import forecast_crack
 from slipnet.grains import build_grain_graph
+from slipnet.reports import write_forecast
 from slipnet.synthetic import demo_specimen
 
 

@@ -16,7 +16,8 @@ import tempfile
 
 import numpy as np
 
-from slipnet.grains import build_grain_graph, write_grain_outputs
+from slipnet.grains import build_grain_graph
+from slipnet.reports import write_grains
 from slipnet.synthetic import demo_specimen
 
 
@@ -48,8 +49,8 @@ def main() -> None:
     print(f"grains within 30 µm of the root: {gg.grains_within(x0, y0, 30.0)}")
 
     with tempfile.TemporaryDirectory() as tmp:
-        paths = write_grain_outputs(gg, tmp)
-        print("wrote " + ", ".join(p.name for p in paths))
+        files = write_grains(gg, tmp)
+        print("wrote " + ", ".join(p.name for p in files.values()))
 
 
 if __name__ == "__main__":

@@ -17,7 +17,8 @@ import tempfile
 
 import numpy as np
 
-from slipnet.growth import GrowthParameters, GrowthPath, calibrate, simulate_growth, write_growth
+from slipnet.growth import GrowthParameters, GrowthPath, calibrate, simulate_growth
+from slipnet.reports import write_growth
 
 
 def main() -> None:

@@ -16,8 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
+from slipnet.crystal import disorientation_angle
 from slipnet.io import from_orix, map_summary, read_map, to_orix, write_map
-from slipnet.orientation import disorientation_angle
 from slipnet.synthetic import make_specimen
 
 

@@ -19,7 +19,7 @@ from pathlib import Path
 
 from slipnet.grains import build_grain_graph
 from slipnet.notch import plan_notch
-from slipnet.notch_sweep import write_plan
+from slipnet.reports import write_plan
 from slipnet.synthetic import make_specimen
 
 
@@ -30,7 +30,7 @@ def main(out: Path) -> None:
                       window_um=150.0, crack_sizes_um=(5.0, 20.0), samples=5, seed=2)
     cols = ["rank", "x", "y", "score", "initiation_drive", "barrier_strength_in_window",
             "initiation_drive_p05", "initiation_drive_p95", "p_top_k"]
-    print(plan[cols].round(3).to_string(index=False))
+    print(plan.table[cols].round(3).to_string(index=False))
     written = write_plan(plan, gg, out)
     print("written:", ", ".join(p.name for p in written.values()))
 

@@ -17,11 +17,11 @@ from pathlib import Path
 
 import numpy as np
 
+from slipnet.crystal import m_prime, quat_from_euler, schmid_factors, slip_systems
 from slipnet.grains import build_grain_graph
-from slipnet.orientation import quat_from_euler
-from slipnet.slip import schmid_factors, slip_systems, write_slip_outputs
+from slipnet.reports import write_slip
+from slipnet.slip import slip_activity
 from slipnet.synthetic import make_specimen
-from slipnet.transmission import m_prime
 
 
 def main() -> None:
@@ -44,9 +44,10 @@ def main() -> None:
     spec = make_specimen((120, 160), step=2.0, grain_size_um=40.0, seed=3)
     gg = build_grain_graph(spec.omap, threshold_deg=15.0)
     with tempfile.TemporaryDirectory() as tmp:
-        res = write_slip_outputs(gg, spec.load_axis, Path(tmp) / "slip", systems=systems)
-        print(f"{len(res['grain_table'])} grains; files: {', '.join(p.name for p in res['files'])}")
-    t = res["transmission_table"].sort_values("transmission_score", ascending=False).head(5)
+        act = slip_activity(gg, spec.load_axis, systems)
+        files = write_slip(act, gg, Path(tmp) / "slip")
+        print(f"{len(act.grains)} grains; files: {', '.join(p.name for p in files.values())}")
+    t = act.transmission.sort_values("transmission_score", ascending=False).head(5)
     print(t[["boundary_id", "grain_in", "grain_out", "label_in", "label_out", "m_prime", "transmission_score",
              "residual_burgers_nm"]].round(3).to_string(index=False))
 

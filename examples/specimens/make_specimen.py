@@ -20,10 +20,10 @@ from pathlib import Path
 
 import numpy as np
 
-from slipnet.figures._common import save_figure
+from slipnet.crystal import quat_rotate
 from slipnet.figures.maps import plot_ipf_map
-from slipnet.orientation import quat_rotate
-from slipnet.synthetic import Notch, make_specimen
+from slipnet.maps import NotchShape
+from slipnet.synthetic import make_specimen
 
 
 def main(out: str | Path | None = None) -> list[Path]:
@@ -31,7 +31,8 @@ def main(out: str | Path | None = None) -> list[Path]:
     spec = make_specimen(
         (240, 320), 1.0, grid="hex", grain_size_um=25.0, texture="fibre", fibre_axis=(0, 0, 1),
         fibre_hkl=(1, 1, 1), fibre_spread_deg=12.0, gradient_deg=3.0, noise_deg=0.5,
-        unindexed_fraction=0.02, notch=Notch(side="top", depth_um=50.0, root_radius_um=6.0, opening_deg=60.0),
+        unindexed_fraction=0.02, notch=NotchShape(depth_um=50.0, root_radius_um=6.0, opening_deg=60.0),
+        notch_side="top",
         seed=4, name="fibre-textured example",
     )
     om, lab = spec.omap, spec.truth_labels
@@ -50,7 +51,7 @@ def main(out: str | Path | None = None) -> list[Path]:
     for name, direction in (("ipf_normal.png", (0, 0, 1)), ("ipf_x.png", (1, 0, 0))):
         ax = plot_ipf_map(om, direction=direction, labels=lab)
         ax.plot(*spec.notch_root, marker="o", mfc="white", mec="black", ls="none")
-        save_figure(ax.figure, folder / name)
+        ax.figure.savefig(folder / name, dpi=150, bbox_inches="tight")
         written.append(folder / name)
     print("pictures:", ", ".join(str(p) for p in written))
     return written

@@ -18,8 +18,8 @@ import tempfile
 import numpy as np
 
 from slipnet.grains import build_grain_graph
-from slipnet.plasticity import solve_plastic
-from slipnet.stress import grain_stress_table, solve_elastic, stress_concentration, write_stress_outputs
+from slipnet.reports import write_stress
+from slipnet.stress import grain_stress_table, solve_elastic, solve_plastic, stress_concentration
 from slipnet.synthetic import demo_specimen
 
 
@@ -59,7 +59,7 @@ def main() -> None:
           .to_string(index=False))
 
     out = tempfile.mkdtemp(prefix="slipnet-stress-")
-    write_stress_outputs(field, out, gg, notch_root=spec.notch_root, title="Local stresses (example)")
+    write_stress(field, out, gg, notch_root=spec.notch_root, title="Local stresses (example)")
     print(f"pictures, grain table and summary written to {out}")
 
 

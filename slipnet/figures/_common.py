@@ -12,7 +12,7 @@ import matplotlib.pyplot as plt
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
-from .._files import atomic_path
+from slipnet._files import atomic_path
 
 #: Colour maps for scalar data: perceptually uniform and colour-blind safe.
 SCALAR_CMAP = "viridis"
@@ -24,11 +24,7 @@ def map_extent(omap) -> tuple[float, float, float, float]:
 
     y grows downwards (row index), as in the map frame; use with ``origin="upper"``.
     """
-    x0, x1, y0, y1 = omap.extent
-    nx = omap.shape[1]
-    dx = (x1 - x0) / max(nx - 1, 1) if nx > 1 else omap.step
-    dy = omap.row_spacing
-    return (x0 - 0.5 * dx, x1 + 0.5 * dx, y1 + 0.5 * dy, y0 - 0.5 * dy)
+    return omap.pixel_extent()
 
 
 def nice_length(span: float) -> float:

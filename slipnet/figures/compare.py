@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
-import os
-from pathlib import Path
-
 import matplotlib.pyplot as plt
 import numpy as np
 import pandas as pd
 from matplotlib.axes import Axes
 
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, save_figure
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes
 
-__all__ = ["plot_growth_rates", "plot_score_summary", "plot_shear_map", "write_figures"]
+__all__ = [
+    "comparison_figures",
+    "plot_growth_rates",
+    "plot_score_summary",
+    "plot_shear_map",
+]
 
 
 def plot_shear_map(ax: Axes, shear_pct: np.ndarray, extent, *, sites_xy=None, path: pd.DataFrame | None = None,
@@ -136,10 +138,9 @@ def plot_growth_rates(ax: Axes, rates: pd.DataFrame, *, predicted: pd.DataFrame 
     ax.legend(fontsize=7)
 
 
-def write_figures(comp, folder: str | os.PathLike) -> list[Path]:
-    """Write the comparison figures of a :class:`~slipnet.compare.Comparison` into ``folder`` (PNG)."""
-    folder = Path(folder)
-    written = []
+def comparison_figures(comp) -> dict:
+    """The comparison figures of a :class:`~slipnet.compare.Comparison`: ``{file name: Figure}``."""
+    figs = {}
     synthetic = " (SYNTHETIC)" if comp.settings.get("synthetic") else ""
     peaks = comp.peaks[["x_um", "y_um"]].to_numpy() if len(comp.peaks) else None
     fig, ax = plt.subplots(figsize=(8, 6))
@@ -155,17 +156,13 @@ def write_figures(comp, folder: str | os.PathLike) -> list[Path]:
         plot_shear_map(ax, 100.0 * comp.shear, (x0 - h, x1 + h, y1 + h, y0 - h), sites_xy=comp.predicted_sites,
                        path=comp.predicted_path, peaks_xy=peaks, measured_path=comp.measured_path,
                        title=f"Measured maximum shear strain{synthetic}")
-    written.append(folder / "measured_shear.png")
-    save_figure(fig, written[-1])
+    figs["measured_shear.png"] = fig
     fig, ax = plt.subplots(figsize=(7, 4.5))
     plot_score_summary(ax, comp.scores, title=f"Forecast scores{synthetic}")
-    written.append(folder / "scores.png")
-    save_figure(fig, written[-1])
+    figs["scores.png"] = fig
     if comp.growth_rates is not None:
         fig, ax = plt.subplots(figsize=(7, 4.5))
         plot_growth_rates(ax, comp.growth_rates, predicted=comp.predicted_profile, dips=comp.dips,
                           title=f"Crack growth rate, measured{synthetic} and predicted")
-        written.append(folder / "growth_rates.png")
-        save_figure(fig, written[-1])
-    return written
-
+        figs["growth_rates.png"] = fig
+    return figs

@@ -8,7 +8,7 @@ from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
 __all__ = ["plot_forecast_map", "plot_score_terms"]
 

@@ -13,9 +13,9 @@ from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
-from .._checks import check_choice
-from ..errors import ParameterError
-from ._common import add_scale_bar, label_map_axes, map_extent
+from slipnet._checks import check_choice
+from slipnet.errors import ParameterError
+from slipnet.figures._common import add_scale_bar, label_map_axes, map_extent
 
 __all__ = ["BOUNDARY_STYLE", "grain_colours", "plot_grain_map", "plot_misorientation_histogram"]
 
@@ -54,7 +54,7 @@ def grain_colours(gg, colour_by: str = "ipf") -> np.ndarray:
     colour_by = check_choice(colour_by, "colour_by", ("ipf", "qualitative"))
     if colour_by == "ipf":
         try:
-            from .maps import ipf_colors
+            from slipnet.figures.maps import ipf_colors
         except ImportError:  # pragma: no cover - the IPF module is part of the package
             colour_by = "qualitative"
         else:
@@ -68,7 +68,7 @@ def grain_colours(gg, colour_by: str = "ipf") -> np.ndarray:
 
 def _raster(omap, values):
     try:
-        from .maps import _display_raster
+        from slipnet.figures.maps import _display_raster
 
         return _display_raster(omap, values)
     except ImportError:  # pragma: no cover
@@ -159,7 +159,7 @@ def plot_misorientation_histogram(gg, ax: Axes | None = None, *, weight: str = "
     """
     import matplotlib.pyplot as plt
 
-    from ..grains import mackenzie_density
+    from slipnet.crystal.csl import mackenzie_density
 
     weight = check_choice(weight, "weight", ("length", "number"))
     if not 0.1 <= float(bin_deg) <= 15.0:

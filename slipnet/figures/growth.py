@@ -3,9 +3,6 @@ and the rate along the path drawn on the grain map."""
 
 from __future__ import annotations
 
-import os
-from pathlib import Path
-
 import matplotlib.pyplot as plt
 import numpy as np
 from matplotlib.axes import Axes
@@ -13,10 +10,14 @@ from matplotlib.collections import LineCollection
 from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 
-from ..errors import ParameterError
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent, save_figure
+from slipnet.errors import ParameterError
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
-__all__ = ["plot_crack_length", "plot_growth_on_map", "plot_growth_rate", "save_growth_figures"]
+__all__ = [
+    "plot_crack_length",
+    "plot_growth_on_map",
+    "plot_growth_rate",
+]
 
 _BARRIER_COLOUR = "0.45"
 _ARREST_COLOUR = "#b2182b"  # kept apart from the viridis/cividis range and marked by shape too
@@ -182,17 +183,3 @@ def plot_growth_on_map(result, gg=None, ax: Axes | None = None) -> Figure:
     ax.legend(fontsize=8, loc="upper right")
     ax.set_title("Predicted growth rate along the forecast path")
     return fig
-
-
-def save_growth_figures(result, folder: str | os.PathLike, gg=None) -> dict[str, Path]:
-    """Write ``growth_rate.png``, ``growth_cycles.png`` and (with map coordinates) ``growth_map.png``."""
-    folder = Path(folder)
-    out = {}
-    out["growth_rate"] = folder / "growth_rate.png"
-    save_figure(plot_growth_rate(result), out["growth_rate"])
-    out["growth_cycles"] = folder / "growth_cycles.png"
-    save_figure(plot_crack_length(result), out["growth_cycles"])
-    if result.path.polyline is not None:
-        out["growth_map"] = folder / "growth_map.png"
-        save_figure(plot_growth_on_map(result, gg), out["growth_map"])
-    return out

@@ -21,10 +21,10 @@ from matplotlib.axes import Axes
 from matplotlib.collections import LineCollection
 from matplotlib.patches import Patch
 
-from .._checks import check_positive
-from ..errors import ParameterError
-from ..orientation import quat_rotate
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
+from slipnet._checks import check_positive
+from slipnet.crystal.orientation import quat_rotate
+from slipnet.errors import ParameterError
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
 __all__ = ["add_ipf_key", "ipf_colors", "ipf_direction", "plot_ipf_map", "plot_scalar_map"]
 

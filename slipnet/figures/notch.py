@@ -2,28 +2,24 @@
 
 from __future__ import annotations
 
-import os
-from pathlib import Path
-
 import matplotlib.pyplot as plt
 import numpy as np
 import pandas as pd
 from matplotlib.lines import Line2D
 
-from ..cautions import CAUTION
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, save_figure
-from .maps import _display_raster, _label_edges
+from slipnet.cautions import CAUTION
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes
+from slipnet.figures.maps import _display_raster, _label_edges
 
 __all__ = ["plot_plan_map", "plot_plan_terms"]
 
 _BEST = "#D55E00"  # Okabe–Ito vermilion for the best candidates
 
 
-def plot_plan_map(plan: pd.DataFrame, gg, path: str | os.PathLike | None = None, *, n_best: int = 3):
+def plot_plan_map(plan: pd.DataFrame, gg, *, n_best: int = 3):
     """Grain map (boundaries in grey) with each candidate notch drawn edge → root, coloured by score.
 
-    The best ``n_best`` candidates are numbered by rank. Returns the path written (or the figure
-    when ``path`` is None).
+    The best ``n_best`` candidates are numbered by rank.
     """
     om = gg.omap
     labels = np.asarray(gg.labels)
@@ -57,23 +53,21 @@ def plot_plan_map(plan: pd.DataFrame, gg, path: str | os.PathLike | None = None,
     add_scale_bar(ax)
     ax.set_title("Notch candidates ranked by score")
     fig.text(0.01, 0.005, CAUTION, fontsize=5.5, wrap=True, va="bottom")
-    if path is None:
-        return fig
-    save_figure(fig, path)
-    return Path(path)
+    return fig
 
 
-def plot_plan_terms(plan: pd.DataFrame, path: str | os.PathLike | None = None):
+def plot_plan_terms(plan: pd.DataFrame, weights=None):
     """Score terms (normalised objectives, 1 = best) against position along the edge, with bands.
 
     Where the plan has Monte Carlo bands (``<objective>_p05`` / ``_p95``), each objective is also
-    drawn in its own units in a lower panel with its 5–95 % band.
+    drawn in its own units in a lower panel with its 5–95 % band (only the weighted objectives when
+    ``weights`` is given).
     """
     t = plan.copy()
     along = np.hypot(t["edge_x"] - t["edge_x"].min(), t["edge_y"] - t["edge_y"].min())
     t = t.assign(_s=along).sort_values("_s")
     terms = [c for c in t.columns if c.startswith("term_")]
-    weights = plan.attrs.get("settings", {}).get("weights") or {}
+    weights = dict(weights or {})
     banded = [c[:-4] for c in t.columns if c.endswith("_p05") and f"{c[:-4]}_p95" in t
               and (not weights or c[:-4] in weights) and np.isfinite(t[c].to_numpy(float)).any()]
     n_lower = len(banded)
@@ -98,7 +92,4 @@ def plot_plan_terms(plan: pd.DataFrame, path: str | os.PathLike | None = None):
         a.set_ylabel(f"{name.replace('_', ' ')} ({unit})", fontsize=8)
         a.legend(fontsize=7)
     axes[-1, 0].set_xlabel("position along the edge (µm)")
-    if path is None:
-        return fig
-    save_figure(fig, path)
-    return Path(path)
+    return fig

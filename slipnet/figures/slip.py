@@ -1,12 +1,9 @@
 """Pictures of slip activity: per-grain Schmid factor map, boundaries coloured by transmission score,
-surface slip-trace overlay. Plotting only; the numbers come from :mod:`slipnet.slip` and
-:mod:`slipnet.transmission`.
+surface slip-trace overlay. Plotting only (each function returns a Figure); the numbers come from
+:mod:`slipnet.slip`, the files are written by :mod:`slipnet.reports.slip`.
 """
 
 from __future__ import annotations
-
-import os
-from pathlib import Path
 
 import matplotlib.pyplot as plt
 import numpy as np
@@ -14,7 +11,7 @@ import pandas as pd
 from matplotlib.collections import LineCollection
 from matplotlib.lines import Line2D
 
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent, save_figure
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
 __all__ = ["grain_image", "plot_schmid_map", "plot_slip_traces", "plot_transmission"]
 
@@ -26,13 +23,10 @@ def grain_image(gg, values) -> np.ndarray:
     return v[np.where(labels >= 0, labels, len(v) - 1)]
 
 
-def _finish(fig, ax, gg, path):
+def _finish(fig, ax):
     label_map_axes(ax)
     add_scale_bar(ax)
-    if path is None:
-        return fig
-    save_figure(fig, path)
-    return Path(path)
+    return fig
 
 
 def _new_axes(gg):
@@ -41,7 +35,7 @@ def _new_axes(gg):
     return plt.subplots(figsize=(7.0, max(2.5, min(9.0, 6.0 * aspect + 0.8))))
 
 
-def plot_schmid_map(gg, values, path: str | os.PathLike | None = None, *, label: str = "Schmid factor (–)",
+def plot_schmid_map(gg, values, *, label: str = "Schmid factor (–)",
                     title: str = "Largest Schmid factor per grain", vmax: float | None = 0.5):
     """Per-grain map of a Schmid factor (viridis) with a colour bar and a scale bar.
 
@@ -51,8 +45,6 @@ def plot_schmid_map(gg, values, path: str | os.PathLike | None = None, *, label:
         Grain graph (``labels``, ``omap``).
     values : (n_grains,) array_like
         One value per grain (e.g. ``grain_schmid_table(...)["schmid_max"]``).
-    path
-        Output image; if None the figure is returned instead of the path.
     """
     fig, ax = _new_axes(gg)
     img = grain_image(gg, values)
@@ -60,7 +52,7 @@ def plot_schmid_map(gg, values, path: str | os.PathLike | None = None, *, label:
                    interpolation="nearest")
     fig.colorbar(im, ax=ax, label=label, shrink=0.85)
     ax.set_title(title)
-    return _finish(fig, ax, gg, path)
+    return _finish(fig, ax)
 
 
 def _boundary_segments(gg, boundary_ids):
@@ -74,14 +66,14 @@ def _boundary_segments(gg, boundary_ids):
     return segs, np.array(owner, dtype=np.int64)
 
 
-def plot_transmission(gg, table: pd.DataFrame, path: str | os.PathLike | None = None, *,
+def plot_transmission(gg, table: pd.DataFrame, *,
                       title: str = "Slip transmission score (larger of the two directions)"):
     """Boundaries coloured by their transmission score (cividis) over a grey grain map.
 
     Parameters
     ----------
     table
-        From :func:`slipnet.transmission.annotate_transmission` (two rows per boundary); the
+        From :func:`slipnet.slip.transmission_table` (two rows per boundary); the
         larger of the two directional scores is drawn.
     """
     fig, ax = _new_axes(gg)
@@ -98,10 +90,10 @@ def plot_transmission(gg, table: pd.DataFrame, path: str | os.PathLike | None = 
         ax.add_collection(lc)
         fig.colorbar(lc, ax=ax, label="transmission score (–)", shrink=0.85)
     ax.set_title(title)
-    return _finish(fig, ax, gg, path)
+    return _finish(fig, ax)
 
 
-def plot_slip_traces(gg, traces: pd.DataFrame, path: str | os.PathLike | None = None, *, background=None,
+def plot_slip_traces(gg, traces: pd.DataFrame, *, background=None,
                      title: str = "Surface traces of the most-stressed slip planes"):
     """Short line segments at grain centroids along the surface traces of the top slip planes.
 
@@ -141,4 +133,4 @@ def plot_slip_traces(gg, traces: pd.DataFrame, path: str | os.PathLike | None = 
     if handles:
         ax.legend(handles=handles, loc="upper right", fontsize=8, framealpha=0.8)
     ax.set_title(title)
-    return _finish(fig, ax, gg, path)
+    return _finish(fig, ax)

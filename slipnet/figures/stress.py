@@ -3,22 +3,19 @@ and its difference from the uniform-stress estimate. Every picture carries the m
 
 from __future__ import annotations
 
-import os
 import textwrap
-from pathlib import Path
 
 import matplotlib.pyplot as plt
 import numpy as np
 from matplotlib.colors import TwoSlopeNorm
 
-from ._common import DIVERGING_CMAP, SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent, save_figure
+from slipnet.figures._common import DIVERGING_CMAP, SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
 __all__ = [
     "plot_accumulated_slip",
     "plot_max_local_schmid",
     "plot_schmid_difference",
     "plot_stress_component",
-    "write_stress_figures",
 ]
 
 _NAMES = "xyz"
@@ -94,7 +91,7 @@ def plot_stress_component(field, component="load", ax=None):
 
 def plot_max_local_schmid(field, systems=None, ax=None):
     """Map the largest local Schmid factor ``max_α |τ_α| / σ_applied`` (viridis, no unit)."""
-    from ..stress import local_schmid_factors
+    from slipnet.stress.local import local_schmid_factors
 
     fig, ax = _map_axes(field, ax)
     vals = np.nanmax(np.abs(local_schmid_factors(field, systems=systems)), axis=-1, initial=-np.inf)
@@ -107,9 +104,9 @@ def plot_max_local_schmid(field, systems=None, ax=None):
 
 def plot_schmid_difference(field, systems=None, ax=None):
     """Map the largest local Schmid factor minus the largest uniform-stress Schmid factor (diverging)."""
-    from ..stress import _default_systems, local_schmid_factors, uniform_schmid_factors
+    from slipnet.stress.local import default_systems, local_schmid_factors, uniform_schmid_factors
 
-    systems = _default_systems(field.omap, systems)
+    systems = default_systems(field.omap, systems)
     fig, ax = _map_axes(field, ax)
     loc = np.abs(local_schmid_factors(field, systems=systems))
     q = field.omap.quats.reshape(-1, 4)
@@ -141,13 +138,3 @@ def plot_accumulated_slip(plastic, ax=None):
     return fig
 
 
-def write_stress_figures(field, folder: str | os.PathLike, systems=None) -> list[Path]:
-    """Write the three stress pictures as PNG into ``folder``; returns their paths."""
-    folder = Path(folder)
-    out = []
-    for name, fig in (("stress_load_axis.png", plot_stress_component(field)),
-                      ("local_schmid_max.png", plot_max_local_schmid(field, systems)),
-                      ("local_schmid_minus_uniform.png", plot_schmid_difference(field, systems))):
-        save_figure(fig, folder / name)
-        out.append(folder / name)
-    return out

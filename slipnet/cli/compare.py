@@ -1,0 +1,69 @@
+"""``slipnet compare``: score a forecast against measured strain maps and a crack-growth record."""
+
+from __future__ import annotations
+
+from slipnet.cli._common import grain_graph_from_args, out_folder
+
+
+def add(sub, parents) -> None:
+    p = sub.add_parser("compare", parents=[parents.map, parents.cleanup, parents.output],
+                       help="score a forecast against measured strain maps and a crack-growth record",
+                       description="Register a measured displacement/strain series (our text, npz or TIFF "
+                       "format; see docs/strain-format.md) to the orientation map by control points, measure "
+                       "strain localisation and score the forecast sites, path, barriers and growth-rate dips.")
+    p.add_argument("strain", help="measured displacement or strain file (text table, .npz or .tif)")
+    p.add_argument("--control-points", metavar="CSV",
+                   help="control points CSV: strain_x_um, strain_y_um, map_x_um, map_y_um")
+    p.add_argument("--kind", default="affine", choices=("similarity", "affine", "projective"),
+                   help="registration transform (default affine)")
+    p.add_argument("--map", dest="map_path", help="orientation map file (for grain and boundary statistics)")
+    p.add_argument("--forecast", help="folder written by 'slipnet forecast' (forecast_sites/path/barriers.csv)")
+    p.add_argument("--sites", help="predicted sites CSV (x, y in µm, score)")
+    p.add_argument("--path", help="predicted path CSV (x0, y0, x1, y1 in µm)")
+    p.add_argument("--barriers", help="ranked barriers CSV (boundary_id, score)")
+    p.add_argument("--measured-path", help="measured crack path CSV (x_um, y_um polyline or x0, y0, x1, y1)")
+    p.add_argument("--record", help="crack-growth record CSV (cycles, crack_length_um)")
+    p.add_argument("--growth", help="folder written by 'slipnet growth' (growth_dips.csv, growth_profile.csv)")
+    p.add_argument("--load-axis", type=float, nargs=3, metavar=("X", "Y", "Z"),
+                   help="load axis in the map frame, for the predicted slip traces of each grain")
+    p.add_argument("--load-step", type=int, default=None,
+                   help="index of the load step of the strain series to analyse (default the last)")
+    p.add_argument("--method", default="small", choices=("small", "green-lagrange"), help="strain measure")
+    p.add_argument("--window", type=int, default=None,
+                   help="odd window (points) of a least-squares plane fit; default central differences")
+    p.add_argument("--peak-threshold", type=float, default=None,
+                   help="smallest shear strain peak, %% (default the 95th percentile of the field)")
+    p.add_argument("--peak-distance", type=float, default=5.0, help="minimum peak separation, µm (default 5)")
+    p.add_argument("--site-tol", type=float, default=5.0, help="site matching tolerance, µm (default 5)")
+    p.add_argument("--path-tol", type=float, default=5.0, help="path distance tolerance, µm (default 5)")
+    p.add_argument("--band-tol", type=float, default=10.0, help="band direction tolerance, degrees (default 10)")
+    p.add_argument("--dip-tol", type=float, default=5.0, help="dip matching tolerance, µm of crack (default 5)")
+    p.add_argument("--max-sites", type=int, default=None, help="score only the N highest-scored predicted sites")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from slipnet.compare import compare_files
+    from slipnet.reports.compare import write_comparison
+
+    gg = grain_graph_from_args(args, args.map_path) if (args.map_path or args.graph) else None
+    comp = compare_files(
+        args.strain, points=args.control_points, kind=args.kind, gg=gg,
+        forecast_folder=args.forecast, sites=args.sites, path=args.path, barriers=args.barriers,
+        measured_path=args.measured_path, record=args.record, growth_folder=args.growth, load_axis=args.load_axis,
+        step=args.load_step, strain_method=args.method, window=args.window,
+        peak_threshold=None if args.peak_threshold is None else args.peak_threshold / 100.0,
+        peak_distance_um=args.peak_distance, site_tol_um=args.site_tol, path_tol_um=args.path_tol,
+        band_tol_deg=args.band_tol, dip_tol_um=args.dip_tol, max_sites=args.max_sites)
+    out = out_folder(args)
+    write_comparison(comp, out, figures=not args.no_figures)
+    if comp.transform is not None:
+        print(f"compare: registration {comp.transform.kind}, RMS residual {comp.transform.rms:.3g} µm "
+              f"over {len(comp.transform.residuals)} control points")
+    else:
+        print("compare: no control points given; strain and map frames taken as identical")
+    for key in ("n_measured_peaks", "sites_f1", "grains_roc_auc", "path_mean_distance_um", "dips_hits"):
+        if key in comp.scores:
+            print(f"  {key}: {comp.scores[key]:.4g}")
+    print(f"outputs written to {out}")
+    return 0

@@ -1,0 +1,51 @@
+"""One deterministic forecast pass from prepared inputs (shared by the forecast and its Monte Carlo)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from slipnet.forecast._core import (
+    _Crystal,
+    _distance_to_segments,
+    _field,
+    _Opts,
+    _sites,
+    _trace_all,
+)
+from slipnet.forecast.barriers import rank_barriers
+
+
+def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts, *, amplitude, decay, bw, cf,
+          want_field: bool, sigma_um: float, site_radius: float | None = None) -> dict:
+    cry = _Crystal(quats, load, planes, schmid)
+    states, alt_cross = _trace_all(geo, cry, planes, float(tip[0]), float(tip[1]), grain0, opts)
+    main = states[0]
+    seg_cols = ["grain", "x0", "y0", "x1", "y1", "length_um", "s_start_um", "system", "plane", "schmid", "stage",
+                "direction_deg", "leg", "end", "branch"]
+    path = pd.DataFrame(main.segments, columns=seg_cols).drop(columns="branch")
+    alts = pd.DataFrame([s for st in states[1:] for s in st.segments], columns=seg_cols)
+    crossings = pd.DataFrame(main.crossings + alt_cross)
+    barriers = rank_barriers(crossings, bw, decay_length_um=decay, class_factors=cf)
+    on = set(path["grain"].tolist()) | set(alts["grain"].tolist())
+    near = set(on)
+    for g in path["grain"].tolist():
+        near.update(geo.neigh.get(int(g), []))
+    cand = np.array(sorted(near), dtype=np.int64)
+    if cand.size:
+        dist = np.hypot(geo.cx[cand] - tip[0], geo.cy[cand] - tip[1])
+        cand = cand[(dist <= opts.horizon + 0.5 * geo.ecd[cand]) | np.isin(cand, list(on))]
+    sites, bands = _sites(geo, cry, planes, cand, amplitude, want_bands=want_field,
+                          max_gap=min(opts.max_gap, 3.0 * geo.step))
+    segs = pd.concat([path[["x0", "y0", "x1", "y1"]], alts[["x0", "y0", "x1", "y1"]]]).to_numpy(float)
+    if len(sites) and len(segs):
+        dpath = _distance_to_segments(sites["x"].to_numpy(float), sites["y"].to_numpy(float), segs)
+        radius = site_radius if site_radius is not None else float(np.median(geo.ecd[path["grain"].to_numpy()]))
+        sites = sites.assign(path_distance_um=dpath)[dpath <= radius].reset_index(drop=True)
+        sites["rank"] = np.arange(1, len(sites) + 1)
+    else:
+        sites = sites.assign(path_distance_um=np.full(len(sites), np.nan))
+    sites["on_path_grain"] = sites["grain"].isin(path["grain"]) if len(sites) else pd.Series(dtype=bool)
+    fld = _field(geo, bands, sigma_um) if want_field else None
+    return {"path": path, "alternatives": alts, "crossings": crossings, "barriers": barriers, "sites": sites,
+            "field": fld, "stop": main.stop}

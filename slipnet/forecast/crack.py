@@ -1,0 +1,275 @@
+"""Crack forecast: the stage-I path ahead of a tip, ranked arrest barriers and localisation sites.
+
+Given a grain graph (:class:`slipnet.grains.GrainGraph`), the load and a crack tip, this module
+says where a microstructurally short crack will run, which boundaries should slow or stop it, and
+where shear should pile up ahead of it, and shows every term of every ranking.
+
+Notation (sample/map frame unless stated): g orientation (``v_c = g v_s``), n slip-plane normal,
+d slip direction, l unit load axis, z = (0, 0, 1) the surface normal (into the specimen),
+t = n × z the surface trace of a plane, b the surface trace of a boundary, n_gb its plane normal.
+
+The path (stage I)
+------------------
+Inside a grain the crack follows the surface trace of the slip plane whose best system carries
+the highest effective Schmid factor ``|m| / τ_c`` (``τ_c`` the relative critical resolved shear
+stress of its family), in the sense with a positive projection on the macroscopic growth
+direction (the direction given at the tip). Where another plane's effective factor is within
+``zigzag_tol`` (relative to the larger of the two) of the plane being followed, the crack
+alternates between the two traces (zig-zag) in legs of ``zigzag_step_fraction`` × the grain's
+equivalent circle diameter (at least two map steps). The march samples the label image every
+quarter step along the trace (numba) and bisects the exit point to 1/64 of that. At a boundary
+the outgoing plane is the one with the highest choice score (see :class:`PathWeights`); the
+boundary plane is taken perpendicular to the surface through the fitted boundary trace
+(``trace_angle_deg`` of the graph edge) unless an inclination is given. Stage II (growth
+perpendicular to the in-plane projection of the load axis) starts past ``stage2_after_um`` or in
+a grain whose best effective factor is below ``stage2_min_schmid``. The path stops at the
+horizon, the map edge, a run of unindexed points longer than ``unindexed_gap_um``, or where the
+chosen trace leads straight back into the grain it came from ("blocked": the crack would have
+to run along the boundary).
+
+Alternatives, barriers, sites
+-----------------------------
+Every other outgoing plane whose choice score is within ``branch_tol`` of the best starts an
+alternative path (breadth first, at most ``max_branches``). Every boundary met by the main path
+or an alternative is ranked by :func:`rank_barriers`. Localisation sites: in the grains on and
+next to the paths, the band of the most stressed system runs along its surface trace through
+the grain; where it ends on a boundary its score is τ × band length × (1 − transmission), with
+τ = m_eff × stress amplitude (MPa) and the transmission the best |m′| to a system of the next
+grain weighted by that system's relative effective factor. The bands, weighted by their sites'
+scores, drawn on the grid and blurred with a Gaussian of ``field_sigma_um`` give the predicted
+localisation field (maximum 1). Monte Carlo: :mod:`slipnet.forecast.monte_carlo`.
+
+References
+----------
+Zhai, T., Wilkinson, A. J. & Martin, J. W. (2000). A crystallographic mechanism for fatigue crack
+propagation through grain boundaries. Acta Materialia 48, 4917–4927.
+Luster, J. & Morris, M. A. (1995). Compatibility of deformation in two-phase Ti-Al alloys.
+Metallurgical and Materials Transactions A 26, 1745–1756.
+Navarro, A. & de los Rios, E. R. (1988). Short and long fatigue crack growth: a unified model.
+Philosophical Magazine A 57, 15–36.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import fields
+
+import numpy as np
+
+from slipnet._checks import check_positive, check_vector
+from slipnet.crystal.slip_systems import slip_systems
+from slipnet.errors import ParameterError
+from slipnet.forecast._core import (
+    _make_opts,
+    _parse_tip,
+    _Planes,
+    _start_grain,
+    crack_plane_angles,
+    geometry_of,
+)
+from slipnet.forecast._run import run_forecast_pass
+from slipnet.forecast.barriers import _check_decay
+from slipnet.forecast.monte_carlo import monte_carlo
+from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights, CrackForecast, MonteCarloNoise, PathWeights
+from slipnet.stress.local import grain_schmid_factors
+
+__all__ = ["crack_plane_angles", "forecast_crack"]
+
+
+
+
+
+
+
+
+
+
+
+
+
+# ---------------------------------------------------------------------------------------------
+# barrier ranking
+
+
+
+
+
+
+def forecast_crack(
+    gg,
+    tip,
+    direction=None,
+    load_axis=(0.0, 1.0, 0.0),
+    horizon: float = 200.0,
+    *,
+    stress_amplitude: float = 200.0,
+    stress_ratio: float = -1.0,
+    systems=None,
+    stress_field=None,
+    samples: int = 0,
+    seed: int = 0,
+    noise: MonteCarloNoise | None = None,
+    top_k: int = 3,
+    path_weights: PathWeights | None = None,
+    barrier_weights: BarrierWeights | None = None,
+    class_factors: dict[str, float] | None = None,
+    decay_length_um: float | None = None,
+    zigzag_tol: float = 0.05,
+    zigzag_step_fraction: float = 0.25,
+    branch_tol: float = 0.05,
+    max_branches: int = 4,
+    stage2_after_um: float | None = None,
+    stage2_min_schmid: float | None = None,
+    boundary_inclination_deg: float = 90.0,
+    unindexed: str = "stop",
+    unindexed_gap_um: float | None = None,
+    field_sigma_um: float | None = None,
+    site_radius_um: float | None = None,
+) -> CrackForecast:
+    """Forecast the short-crack path ahead of a tip, rank barriers and localisation sites.
+
+    Parameters
+    ----------
+    gg : GrainGraph
+        Grains and boundaries (:func:`slipnet.grains.build_grain_graph`).
+    tip : (2,) or (k, 2) array_like
+        Crack tip ``(x, y)`` in µm, or a crack polyline (tip = last point; if ``direction`` is
+        None, direction = last segment). A notch root is given as a tip with the notch direction.
+    direction : (2,) array_like or None
+        Macroscopic growth direction (map frame, need not be unit). The crack always takes the
+        sense of a trace that has a positive projection on it.
+    load_axis : (3,) array_like
+        Uniaxial load axis in the map frame.
+    horizon
+        Path length to forecast ahead of the tip, µm (> 0).
+    stress_amplitude
+        Applied stress amplitude, MPa (resolved shear of the sites = m_eff × amplitude).
+    stress_ratio
+        R = σ_min/σ_max (< 1); recorded in the settings for the growth model.
+    systems
+        Slip-system catalogue (default ``slipnet.slip.slip_systems`` of the map's first phase).
+    stress_field
+        A :class:`slipnet.stress.StressField`: grain-mean local Schmid factors replace the
+        uniform-load ones (and load misalignment is then not sampled).
+    samples, seed, noise, top_k
+        Monte Carlo samples (0: none), their seed, perturbation sizes and the k of "top k".
+    path_weights, barrier_weights, class_factors
+        Score weights (:class:`PathWeights`, :class:`BarrierWeights`, :data:`CLASS_FACTORS`).
+    decay_length_um
+        Barrier relevance decay length, µm; default the horizon (a barrier at the horizon
+        counts e⁻¹ ≈ 0.37 of one at the tip).
+    zigzag_tol, zigzag_step_fraction
+        Relative tolerance on the effective Schmid factor under which two planes alternate, and
+        the leg length as a fraction of the grain's equivalent circle diameter (≥ 2 steps).
+    branch_tol, max_branches
+        Alternative outgoing planes within ``branch_tol`` of the best choice score start an
+        alternative path, at most ``max_branches`` in all (breadth first).
+    stage2_after_um, stage2_min_schmid
+        Switch to stage II past this path length, or in a grain whose best effective Schmid
+        factor is below this threshold (None: never).
+    boundary_inclination_deg
+        Assumed angle between each boundary plane and the surface, about its trace, degrees in
+        [1, 179] (90: perpendicular to the surface, the default; as in :mod:`slipnet.slip`).
+    unindexed, unindexed_gap_um
+        ``"stop"``: the path ends where it meets a run of unindexed points longer than
+        ``unindexed_gap_um`` (default 5 steps: isolated bad points and small clusters are walked
+        through, a notch or a large unindexed region stops it); ``"cross"``: walk through any unindexed run to the
+        next grain (the crossing is recorded where that grain begins).
+    field_sigma_um
+        Gaussian width of the localisation field, µm (default 2 steps).
+    site_radius_um
+        Keep localisation sites within this distance of the main or an alternative path, µm
+        (default: the median equivalent circle diameter of the grains on the main path, so a
+        site lies at most about one grain away from where the crack is expected).
+
+    Returns
+    -------
+    CrackForecast
+
+    Raises
+    ------
+    ParameterError
+        Tip outside the map or on an unindexed point, zero/negative horizon, zero vectors,
+        stage II requested with a load along the surface normal (no in-plane component).
+
+    Notes
+    -----
+    A tip lying on a boundary starts in the grain half a step ahead along ``direction``. A load
+    along the surface normal is valid for stage I (Schmid factors are defined) but has no stage II
+    direction: every in-plane direction is normal to it, so stage II options are refused.
+    Cost: one march per segment (numba), O(grains ahead × systems) for scores; a forecast takes
+    milliseconds once the graph exists (``benchmarks/bench_forecast.py``).
+    """
+    geo = geometry_of(gg)
+    horizon = check_positive(horizon, "horizon")
+    tip_xy, d, crack_len = _parse_tip(geo, tip, direction)
+    load = check_vector(load_axis, "load_axis", 3)
+    amplitude = check_positive(stress_amplitude, "stress_amplitude")
+    ratio = float(stress_ratio)
+    if not (math.isfinite(ratio) and ratio < 1.0):
+        raise ParameterError(f"stress_ratio should be a finite number < 1; got {stress_ratio!r}")
+    pw = path_weights or PathWeights()
+    bw = barrier_weights or BarrierWeights()
+    for wobj in (pw, bw):
+        if any(getattr(wobj, f.name) < 0 for f in fields(wobj)):
+            raise ParameterError(f"score weights should be >= 0; got {wobj}")
+    decay = horizon if decay_length_um is None else _check_decay(decay_length_um)
+    sigma_um = 2.0 * geo.step if field_sigma_um is None else check_positive(field_sigma_um, "field_sigma_um")
+    site_r = None if site_radius_um is None else check_positive(site_radius_um, "site_radius_um")
+    gap = 5.0 * geo.step if unindexed_gap_um is None else check_positive(
+        unindexed_gap_um, "unindexed_gap_um",
+                                                                           allow_zero=True)
+    opts = _make_opts(horizon, d, load, stage2_after_um=stage2_after_um, stage2_min_schmid=stage2_min_schmid,
+                      zigzag_tol=zigzag_tol, zigzag_step_fraction=zigzag_step_fraction, branch_tol=branch_tol,
+                      max_branches=max_branches, boundary_inclination_deg=boundary_inclination_deg, unindexed=unindexed,
+                      unindexed_gap_um=gap, path_weights=pw)
+    if opts.d_stage2 is None and (stage2_after_um is not None or stage2_min_schmid is not None):
+        raise ParameterError(
+            f"load_axis {tuple(np.round(load, 3))} is (nearly) along the surface normal, so stage II "
+            "(growth normal to the in-plane load) has no direction; give stage2_after_um=None and "
+            "stage2_min_schmid=None, or a load axis with an in-plane component"
+        )
+    grain0 = _start_grain(geo, tip_xy, d)
+    if systems is None:
+        systems = slip_systems(geo.structure)
+    planes = _Planes(systems)
+    quats = np.asarray(gg.mean_quats, dtype=float)
+    schmid = None
+    if stress_field is not None:
+        local = np.asarray(grain_schmid_factors(stress_field, gg, systems), dtype=float)
+        schmid = np.zeros((quats.shape[0], local.shape[1]))
+        schmid[: local.shape[0]] = np.nan_to_num(local[: quats.shape[0]])
+    res = run_forecast_pass(geo, planes, quats, load, schmid, tip_xy, grain0, opts, amplitude=amplitude, decay=decay,
+                            bw=bw, cf=class_factors, want_field=True, sigma_um=sigma_um, site_radius=site_r)
+    noise = noise or MonteCarloNoise()
+    settings = {
+        "tip_um": [float(v) for v in tip_xy], "direction": [float(v) for v in d],
+        "load_axis": [float(v) for v in load], "horizon_um": horizon, "stress_amplitude_mpa": amplitude,
+        "stress_ratio": ratio, "initial_crack_um": crack_len, "start_grain": int(grain0),
+        "samples": int(samples), "seed": int(seed), "top_k": int(top_k),
+        "noise": {f.name: getattr(noise, f.name) for f in fields(noise)},
+        "path_weights": {f.name: getattr(pw, f.name) for f in fields(pw)},
+        "barrier_weights": {f.name: getattr(bw, f.name) for f in fields(bw)},
+        "class_factors": dict(CLASS_FACTORS if class_factors is None else class_factors),
+        "decay_length_um": decay, "zigzag_tol": opts.zigzag_tol, "zigzag_step_fraction": opts.zigzag_fraction,
+        "branch_tol": opts.branch_tol, "max_branches": opts.max_branches,
+        "stage2_after_um": stage2_after_um, "stage2_min_schmid": stage2_min_schmid,
+        "boundary_inclination_deg": opts.inclination, "boundary_plane": "perpendicular to the surface through the "
+        "fitted boundary trace" if opts.inclination == 90 else f"inclined {opts.inclination:g}° to the surface "
+        "about the fitted boundary trace",
+        "unindexed": unindexed, "unindexed_gap_um": gap, "field_sigma_um": sigma_um, "site_radius_um": site_r,
+        "stress_field": stress_field is not None,
+        # outputs made from local factors must print the stress model's assumptions
+        "stress_assumptions": getattr(stress_field, "assumptions", None),
+        "systems": sorted(set(map(str, getattr(systems, "families", [])))),
+    }
+    fc = CrackForecast(path=res["path"], crossings=res["crossings"], barriers=res["barriers"], sites=res["sites"],
+                       alternatives=res["alternatives"], field=res["field"], samples=None, settings=settings,
+                       stop_reason=res["stop"])
+    if int(samples) > 0:
+        fc = monte_carlo(fc, geo, planes, quats, load, schmid, tip_xy, opts, samples=int(samples), seed=int(seed),
+                         noise=noise, top_k=int(top_k), amplitude=amplitude, decay=decay, bw=bw, cf=class_factors,
+                         site_radius=site_r)
+    return fc
+
+

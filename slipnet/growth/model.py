@@ -1,0 +1,732 @@
+"""Short-crack growth along a forecast path: where the rate should dip, stall or arrest.
+
+The model is the strip-yield crack with a plastic zone of Bilby, Cottrell & Swinden (1963), blocked
+at grain boundaries as in Navarro & de los Rios (1988): the zone ahead of the tip stops at the next
+barrier until the stress it concentrates on a source beyond that barrier reaches a critical value,
+then jumps on. The growth rate is a power law of the crack tip sliding displacement (CTSD). Every
+equation, its source and each added assumption is written out in ``docs/growth-model.md``.
+
+Lengths are µm measured along the path from its start (the notch root or crack origin), stresses
+are MPa, rates are µm per cycle.
+
+Public entries
+--------------
+plastic_zone_ratio, sliding_displacement, GrowthPath, GrowthParameters, path_from_forecast,
+path_from_tables, barrier_strengths, crossing_lengths, threshold_amplitudes, zone_state,
+simulate_growth, growth_profile, predicted_dips, life_amplitude, calibrate.
+
+This module holds the model itself; the path and its construction from a forecast live in
+:mod:`slipnet.growth.path`, calibration and the finite-life amplitude in
+:mod:`slipnet.growth.calibration`, file output in :mod:`slipnet.reports.growth`. Every name above
+is importable from :mod:`slipnet.growth`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import integrate
+
+from slipnet._checks import check_positive, check_range
+from slipnet.errors import NumericalError, ParameterError
+from slipnet.growth.path import GrowthPath, path_from_forecast, path_from_tables
+
+__all__ = [
+    "GrowthParameters",
+    "GrowthResult",
+    "barrier_strengths",
+    "crossing_lengths",
+    "growth_profile",
+    "plastic_zone_ratio",
+    "predicted_dips",
+    "simulate_growth",
+    "sliding_displacement",
+    "threshold_amplitudes",
+    "zone_state",
+]
+
+#: Zone states written in the ``zone_state`` column.
+BLOCKED = "blocked"
+SPREADING = "spreading"
+ARRESTED = "arrested"
+
+
+# --------------------------------------------------------------------------------------------
+# Strip-yield pieces
+# --------------------------------------------------------------------------------------------
+
+
+def _as_stress(stress, name: str = "stress") -> np.ndarray:
+    try:
+        s = np.asarray(stress, dtype=float)
+    except (TypeError, ValueError) as err:
+        raise ParameterError(f"{name} should be a number or array of numbers (MPa); got {stress!r}") from err
+    if not np.all(np.isfinite(s)):
+        raise ParameterError(f"{name} should be finite (MPa); got {stress!r}")
+    if np.any(s < 0):
+        raise ParameterError(f"{name} should be >= 0 MPa (an amplitude); got a negative value {s.min():g}")
+    return s
+
+
+def plastic_zone_ratio(stress, friction_stress: float) -> np.ndarray | float:
+    """Unblocked strip-yield ratio n = a/c = cos(πσ / (2σ_f)).
+
+    Bilby, Cottrell & Swinden (1963), Proc. R. Soc. A 272:304: a crack of half-length ``a`` with a
+    slip band (plastic zone) to ``c`` resisting slip with friction stress σ_f is in equilibrium
+    under the applied stress σ when the stress singularity at ``c`` vanishes.
+
+    Parameters
+    ----------
+    stress
+        Applied stress σ (MPa), scalar or array of any shape, 0 ≤ σ < σ_f.
+    friction_stress
+        Friction stress σ_f (MPa), > 0.
+
+    Returns
+    -------
+    float or ndarray
+        n in (0, 1], same shape as ``stress``.
+
+    Raises
+    ------
+    ParameterError
+        Negative stress, or σ ≥ σ_f (the zone would grow without bound: general yield).
+    """
+    sf = check_positive(friction_stress, "friction_stress")
+    s = _as_stress(stress)
+    if np.any(s >= sf):
+        raise ParameterError(
+            f"stress should be below friction_stress={sf:g} MPa (n = cos(πσ/2σ_f) is undefined at general "
+            f"yield); got {s.max():g} MPa"
+        )
+    n = np.cos(0.5 * np.pi * s / sf)
+    return float(n) if n.ndim == 0 else n
+
+
+def sliding_displacement(
+    crack_length,
+    zone_end,
+    stress,
+    friction_stress: float,
+    *,
+    shear_modulus: float = 82.0,
+    poisson_ratio: float = 0.29,
+) -> np.ndarray:
+    """Crack tip sliding displacement φ (µm) of a strip-yield crack whose zone ends at ``zone_end``.
+
+    φ = (2(1−ν)/G) · c · [ (2σ_f/π) n ln(1/n) + (σ − (2σ_f/π) arccos n) √(1 − n²) ],  n = a/c.
+
+    The first term is the Bilby–Cottrell–Swinden (1963) / Dugdale tip displacement of a zone in
+    equilibrium; the second adds the slip of the unbalanced stress σ − (2σ_f/π) arccos n carried by
+    a zone blocked at a barrier (Navarro & de los Rios 1988 structure). The constant was derived
+    here by superposing the two solutions (see ``docs/growth-model.md``), edge dislocations assumed.
+
+    Parameters
+    ----------
+    crack_length, zone_end
+        a and c (µm), broadcastable arrays, 0 < a ≤ c.
+    stress
+        Applied stress amplitude σ (MPa).
+    friction_stress
+        σ_f (MPa).
+    shear_modulus
+        G (GPa).
+    poisson_ratio
+        ν.
+
+    Returns
+    -------
+    ndarray
+        φ (µm), broadcast shape of the inputs; 0 where a = c.
+    """
+    a = np.asarray(crack_length, dtype=float)
+    c = np.asarray(zone_end, dtype=float)
+    s = _as_stress(stress)
+    sf = check_positive(friction_stress, "friction_stress")
+    g = check_positive(shear_modulus, "shear_modulus") * 1e3  # GPa → MPa
+    nu = check_range(poisson_ratio, "poisson_ratio", -1.0, 0.5, inclusive=False)
+    if np.any(a <= 0) or np.any(c < a):
+        raise ParameterError("crack_length should be > 0 µm and zone_end >= crack_length")
+    n = np.clip(a / c, 1e-300, 1.0)
+    unbalanced = s - (2.0 * sf / np.pi) * np.arccos(n)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        nlog = np.where(n < 1.0, -n * np.log(n), 0.0)
+    phi = (2.0 * (1.0 - nu) / g) * c * ((2.0 * sf / np.pi) * nlog + unbalanced * np.sqrt(np.clip(1.0 - n * n, 0, None)))
+    return np.clip(phi, 0.0, None)
+
+
+# --------------------------------------------------------------------------------------------
+# The parameters
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class GrowthParameters:
+    """Constants of the growth model (defaults are illustrative, for a ferritic steel; calibrate them).
+
+    Attributes
+    ----------
+    friction_stress
+        σ_f, friction stress of the strip-yield zone (MPa, in applied-stress-amplitude units).
+    coefficient
+        C in da/dN = C φ^m (µm/cycle per µm^m).
+    exponent
+        m in da/dN = C φ^m.
+    barrier_stress
+        S_c, stress on a source beyond a neutral barrier (|m′| = 1, no twist, equal orientation factors)
+        needed to start slip there (MPa).
+    source_distance
+        r₀, distance of that source beyond the barrier (µm).
+    shear_modulus
+        G (GPa); α-iron about 82 GPa (from memory).
+    poisson_ratio
+        ν; iron about 0.29 (from memory).
+    transmission_weight
+        k_m: critical stress multiplied by 1 + k_m(1 − |m′|) + k_α sin(twist) (our coupling).
+    twist_weight
+        k_α of the same coupling.
+    """
+
+    friction_stress: float = 400.0
+    coefficient: float = 0.05
+    exponent: float = 1.5
+    barrier_stress: float = 500.0
+    source_distance: float = 1.0
+    shear_modulus: float = 82.0
+    poisson_ratio: float = 0.29
+    transmission_weight: float = 0.5
+    twist_weight: float = 0.5
+
+    def __post_init__(self) -> None:
+        for name in ("friction_stress", "coefficient", "exponent", "barrier_stress", "source_distance",
+                     "shear_modulus"):
+            object.__setattr__(self, name, check_positive(getattr(self, name), name))
+        for name in ("transmission_weight", "twist_weight"):
+            object.__setattr__(self, name, check_positive(getattr(self, name), name, allow_zero=True))
+        object.__setattr__(self, "poisson_ratio",
+                           check_range(self.poisson_ratio, "poisson_ratio", -1.0, 0.5, inclusive=False))
+
+
+def _params(params: GrowthParameters | None, **overrides) -> GrowthParameters:
+    base = params if params is not None else GrowthParameters()
+    given = {k: v for k, v in overrides.items() if v is not None}
+    return replace(base, **given) if given else base
+
+
+def _check_amplitude(stress_amplitude: float, p: GrowthParameters) -> float:
+    s = _as_stress(stress_amplitude, "stress_amplitude")
+    if s.ndim != 0:
+        raise ParameterError("stress_amplitude should be a single number (MPa)")
+    s = float(s)
+    if s <= 0:
+        raise ParameterError(f"stress_amplitude should be > 0 MPa; got {s:g}")
+    if s >= p.friction_stress:
+        raise ParameterError(
+            f"stress_amplitude should be below friction_stress={p.friction_stress:g} MPa (the strip-yield "
+            f"zone is unbounded at σ ≥ σ_f); got {s:g} MPa"
+        )
+    return s
+
+
+# --------------------------------------------------------------------------------------------
+# Barriers
+# --------------------------------------------------------------------------------------------
+
+
+def barrier_strengths(path: GrowthPath, params: GrowthParameters | None = None) -> np.ndarray:
+    """Critical stress S_c,k (MPa) on the source beyond each barrier.
+
+    S_c,k = S_c · (f₀ / f_{k+1}) · (1 + k_m (1 − |m′_k|) + k_α sin α_k) · scale_k
+
+    with f the grain orientation factors (Schmid-type; the ratio follows the m_i/m_1 weighting of
+    Navarro & de los Rios 1988, written for Schmid rather than Taylor-type factors), |m′| of
+    Luster & Morris (1995) and the twist α of Zhai, Wilkinson & Martin (2000). The linear coupling to
+    |m′| and sin α is our own assumption.
+
+    Returns
+    -------
+    ndarray
+        (k,) MPa.
+    """
+    p = _params(params)
+    f = path.grain_factors
+    weight = 1.0 + p.transmission_weight * (1.0 - path.m_prime) + p.twist_weight * np.abs(
+        np.sin(np.radians(path.twist_deg)))
+    return p.barrier_stress * (f[0] / f[1:]) * weight * path.strength_scale
+
+
+def threshold_amplitudes(path: GrowthPath, params: GrowthParameters | None = None) -> np.ndarray:
+    """Stress amplitude (MPa) below which a crack that reaches barrier k arrests there.
+
+    With the zone blocked at c = d_k, the stress on the source at r₀ beyond it is, to leading order,
+    S = (σ − (2σ_f/π) arccos n) √(c / 2r₀) (Navarro & de los Rios 1988). It is largest as the tip
+    reaches the barrier (n → 1, arccos n → 0), so slip can cross only if σ √(d_k/2r₀) ≥ S_c,k:
+
+        σ_th,k = S_c,k √(2 r₀ / d_k)
+
+    (for equal barriers, the 1/√i fall with grain number i of Navarro & de los Rios 1988). The
+    condition is linear in σ, so no numerical root-finding is needed. The amplitude that lets a crack
+    pass barriers 0..k is ``np.maximum.accumulate`` of this.
+
+    Returns
+    -------
+    ndarray
+        (k,) MPa.
+    """
+    p = _params(params)
+    return barrier_strengths(path, p) * np.sqrt(2.0 * p.source_distance / path.barrier_positions_um)
+
+
+def crossing_lengths(path: GrowthPath, stress_amplitude: float, params: GrowthParameters | None = None) -> np.ndarray:
+    """Crack length (µm) at which slip crosses each barrier; ``inf`` where the crack arrests first.
+
+    Blocked at d_k, slip crosses when σ − (2σ_f/π) arccos(a/d_k) ≥ σ_th,k, i.e. at
+    a_k = d_k cos(π(σ − σ_th,k)/(2σ_f)). A barrier can only be reached once the earlier ones are
+    crossed, so the crossing lengths are the running maximum; after the first arrest all are ``inf``.
+
+    Returns
+    -------
+    ndarray
+        (k,) µm, nondecreasing.
+    """
+    p = _params(params)
+    s = _check_amplitude(stress_amplitude, p)
+    d = path.barrier_positions_um
+    sth = threshold_amplitudes(path, p)
+    with np.errstate(invalid="ignore"):
+        root = d * np.cos(0.5 * np.pi * (s - sth) / p.friction_stress)
+    root = np.where(s >= sth, root, np.inf)
+    return np.maximum.accumulate(root) if root.size else root
+
+
+def zone_state(
+    path: GrowthPath,
+    crack_length,
+    stress_amplitude: float,
+    params: GrowthParameters | None = None,
+    *,
+    crossings: np.ndarray | None = None,
+) -> dict[str, np.ndarray]:
+    """Where the plastic zone ends for each crack length, and the resulting CTSD and rate.
+
+    Parameters
+    ----------
+    path
+        The path.
+    crack_length
+        (p,) crack lengths a along the path (µm), > 0.
+    stress_amplitude
+        σ (MPa).
+    params
+        Model constants.
+    crossings
+        Precomputed :func:`crossing_lengths` (optional).
+
+    Returns
+    -------
+    dict
+        ``zone_end`` (p,) µm, ``n_ratio`` (p,), ``blocked`` (p,) bool, ``barrier`` (p,) int index of
+        the blocking barrier (−1 when spreading), ``grain_index`` (p,) index of the grain holding the tip,
+        ``ctsd`` (p,) µm, ``dadn`` (p,) µm/cycle, ``arrested`` (p,) bool (tip at or past an arrest barrier).
+    """
+    p = _params(params)
+    s = _check_amplitude(stress_amplitude, p)
+    a = np.asarray(crack_length, dtype=float).reshape(-1)
+    if a.size == 0 or np.any(~np.isfinite(a)) or np.any(a <= 0):
+        raise ParameterError("crack_length should be finite and > 0 µm")
+    d = path.barrier_positions_um
+    x = crossing_lengths(path, s, p) if crossings is None else crossings
+    c_eq = a / plastic_zone_ratio(s, p.friction_stress)
+    # first barrier the free zone would not reach, and first barrier not yet crossed: both indices are
+    # ≥ the grain holding the tip because every barrier behind the tip is at < a < c_eq and crossed.
+    k_free = np.searchsorted(d, c_eq, side="left")
+    k_block = np.searchsorted(x, a, side="right")
+    blocked = k_block < k_free
+    kb = np.minimum(k_block, max(d.size - 1, 0))
+    zone_end = np.where(blocked, d[kb] if d.size else c_eq, c_eq)
+    arrest_at = np.flatnonzero(~np.isfinite(x))
+    arrested = a >= d[arrest_at[0]] if arrest_at.size else np.zeros(a.shape, bool)
+    zone_end = np.where(arrested, a, np.maximum(zone_end, a))
+    ctsd = sliding_displacement(a, zone_end, s, p.friction_stress, shear_modulus=p.shear_modulus,
+                                poisson_ratio=p.poisson_ratio)
+    ctsd = np.where(arrested, 0.0, ctsd)
+    return {
+        "zone_end": zone_end,
+        "n_ratio": a / zone_end,
+        "blocked": blocked | arrested,
+        "barrier": np.where(blocked | arrested, np.where(arrested, arrest_at[0] if arrest_at.size else -1, k_block),
+                            -1),
+        "grain_index": np.searchsorted(d, a, side="right"),
+        "ctsd": ctsd,
+        "dadn": p.coefficient * ctsd**p.exponent,
+        "arrested": arrested,
+    }
+
+
+# --------------------------------------------------------------------------------------------
+# Profiles
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class GrowthResult:
+    """Everything :func:`simulate_growth` computed.
+
+    Attributes
+    ----------
+    profile
+        DataFrame, one row per crack length: ``crack_length`` (µm along the path), ``cycles`` (inf
+        after arrest), ``dadn`` (µm/cycle), ``ctsd_um``, ``zone_end_um``, ``n_ratio``, ``zone_state``
+        ("spreading" | "blocked" | "arrested"), ``barrier`` (index of the blocking barrier or −1),
+        ``grain`` (grain id, or the grain index along the path when ids are unknown), ``arrested``.
+    barriers
+        DataFrame per barrier: ``barrier``, ``position_um``, ``critical_stress_mpa``,
+        ``threshold_amplitude_mpa``, ``pass_amplitude_mpa`` (needed to pass it and all before),
+        ``crossing_length_um`` (inf where arrested), ``dip_length_um``, ``dip_depth``, ``arrest`` and
+        the path factors.
+    dips
+        :func:`predicted_dips` of the profile.
+    bands
+        DataFrame of Monte Carlo bands on the same crack lengths (``cycles_p05``, ``cycles_p50``,
+        ``cycles_p95``, ``dadn_p05``, ``dadn_p50``, ``dadn_p95``) or None.
+    path
+        The :class:`GrowthPath` used.
+    params
+        The :class:`GrowthParameters` used.
+    stress_amplitude
+        σ (MPa).
+    arrest_length_um
+        Crack length where the crack arrests (inf when it reaches ``final_length``).
+    """
+
+    profile: pd.DataFrame
+    barriers: pd.DataFrame
+    dips: pd.DataFrame
+    bands: pd.DataFrame | None
+    path: GrowthPath
+    params: GrowthParameters
+    stress_amplitude: float
+    arrest_length_um: float
+    notes: tuple[str, ...] = ()
+
+
+def _grid(path: GrowthPath, a0: float, a1: float, n_points: int, x: np.ndarray) -> np.ndarray:
+    # even spacing, plus geometric spacing for short cracks, where 1/(da/dN) ∝ a^(-m) is steep
+    base = np.concatenate([np.linspace(a0, a1, n_points), np.geomspace(a0, a1, max(n_points // 4, 10))])
+    d = path.barrier_positions_um
+    xf = x[np.isfinite(x)]
+    # the crossing is a jump in zone size: put a point on each side so the jump is sharp
+    extra = [xf, xf * (1 - 1e-9), d * (1 - 1e-6), d * (1 + 1e-6)]
+    # a blocked tip close to its barrier slows as √(1 − a/c): 1/(da/dN) peaks sharply just before the
+    # crossing (or the arrest barrier), so cluster points geometrically towards those ends
+    ends = np.concatenate([xf, d[~np.isfinite(x)][:1]])
+    if ends.size:
+        prev = np.concatenate([[a0], d])[np.searchsorted(d, ends, side="left")]
+        span = np.maximum(ends - prev, 0.0)
+        frac = np.geomspace(1e-7, 1.0, 48)
+        extra.append((ends[:, None] - span[:, None] * frac[None, :]).ravel())
+    extra = np.concatenate(extra)
+    extra = extra[(extra > a0) & (extra < a1)]
+    return np.unique(np.concatenate([base, extra]))
+
+
+def _integrate_cycles(a: np.ndarray, dadn: np.ndarray) -> np.ndarray:
+    with np.errstate(divide="ignore"):
+        inv = np.where(dadn > 0, 1.0 / dadn, np.inf)
+    finite = np.isfinite(inv)
+    n = np.full(a.shape, np.inf)
+    # integrate only up to the first point where the rate vanishes: beyond it the crack never goes
+    stop = int(np.argmin(finite)) if not finite.all() else a.size
+    if stop > 0:
+        n[:stop] = integrate.cumulative_trapezoid(inv[:stop], a[:stop], initial=0.0)
+    return n
+
+
+def _profile_frame(path: GrowthPath, a: np.ndarray, st: dict, cycles: np.ndarray) -> pd.DataFrame:
+    gidx = np.where(st["arrested"], np.maximum(st["barrier"], 0), st["grain_index"])
+    grain = np.where(path.grains[gidx] >= 0, path.grains[gidx], gidx)
+    state = np.where(st["arrested"], ARRESTED, np.where(st["blocked"], BLOCKED, SPREADING))
+    return pd.DataFrame({
+        "crack_length": a,
+        "cycles": cycles,
+        "dadn": st["dadn"],
+        "ctsd_um": st["ctsd"],
+        "zone_end_um": st["zone_end"],
+        "n_ratio": st["n_ratio"],
+        "zone_state": state,
+        "barrier": st["barrier"].astype(np.int64),
+        "grain": grain.astype(np.int64),
+        "arrested": st["arrested"],
+    })
+
+
+def _run(path: GrowthPath, s: float, p: GrowthParameters, a0: float, a1: float, n_points: int):
+    x = crossing_lengths(path, s, p)
+    a = _grid(path, a0, a1, n_points, x)
+    st = zone_state(path, a, s, p, crossings=x)
+    cycles = _integrate_cycles(a, st["dadn"])
+    return a, st, cycles, x
+
+
+def _resolve_path(forecast_or_path, **kw) -> GrowthPath:
+    kw = {k: v for k, v in kw.items() if v is not None}
+    if isinstance(forecast_or_path, GrowthPath):
+        return forecast_or_path
+    if hasattr(forecast_or_path, "path"):
+        return path_from_forecast(forecast_or_path, **kw)
+    raise ParameterError(
+        f"forecast_or_path should be a GrowthPath or a CrackForecast; got {type(forecast_or_path).__name__}"
+    )
+
+
+def simulate_growth(
+    forecast_or_path,
+    stress_amplitude: float,
+    *,
+    params: GrowthParameters | None = None,
+    friction_stress: float | None = None,
+    coefficient: float | None = None,
+    exponent: float | None = None,
+    barrier_stress: float | None = None,
+    initial_length: float | None = None,
+    final_length: float | None = None,
+    n_points: int = 2000,
+    samples: int | None = None,
+    strength_scatter: float = 0.2,
+    seed: int = 0,
+    stress_field=None,
+    gg=None,
+    systems=None,
+) -> GrowthResult:
+    """Grow a crack along a path: rate and cycles versus crack length, crossings, dips and arrest.
+
+    Parameters
+    ----------
+    forecast_or_path
+        A :class:`GrowthPath` or a ``CrackForecast`` (converted with :func:`path_from_forecast`).
+    stress_amplitude
+        σ_a = Δσ/2 (MPa), 0 < σ_a < σ_f. The model uses the amplitude throughout; the mean stress
+        (stress ratio) is not modelled.
+    params
+        Model constants; the keyword constants below override single fields.
+    friction_stress, coefficient, exponent, barrier_stress
+        See :class:`GrowthParameters`.
+    initial_length
+        First crack length a₀ (µm), default 10 % of the first barrier position (or of the path length).
+    final_length
+        Last crack length (µm), default the path length.
+    n_points
+        Crack lengths on the evenly spaced grid (crossing points are added).
+    samples
+        Monte Carlo draws for the bands. ``None``: follow the forecast's Monte Carlo: its per-sample
+        paths when it carries them, else as many barrier-strength draws as it has samples (its seed),
+        else none. An integer > 0: that many log-normal barrier-strength draws.
+    strength_scatter
+        Log-normal σ of the barrier strength draws.
+    seed
+        Seed of those draws.
+    stress_field, gg, systems
+        With a forecast: take the grain orientation factors from the local stress field instead of the
+        forecast's uniform-stress Schmid factors (see :func:`path_from_forecast`).
+
+    Returns
+    -------
+    GrowthResult
+    """
+    path = _resolve_path(forecast_or_path, stress_field=stress_field, gg=gg, systems=systems)
+    p = _params(params, friction_stress=friction_stress, coefficient=coefficient, exponent=exponent,
+                barrier_stress=barrier_stress)
+    s = _check_amplitude(stress_amplitude, p)
+    d = path.barrier_positions_um
+    a1 = path.length_um if final_length is None else check_positive(final_length, "final_length")
+    a0 = (0.1 * (d[0] if d.size else a1)) if initial_length is None else check_positive(initial_length,
+                                                                                         "initial_length")
+    if a0 >= a1:
+        raise ParameterError(f"initial_length should be below final_length={a1:g} µm; got {a0:g} µm")
+    if int(n_points) < 10:
+        raise ParameterError(f"n_points should be >= 10; got {n_points!r}")
+    a, st, cycles, x = _run(path, s, p, a0, a1, int(n_points))
+    profile = _profile_frame(path, a, st, cycles)
+    if not np.all(np.diff(cycles[np.isfinite(cycles)]) >= 0):
+        raise NumericalError("integrated cycles are not monotone; check the growth constants")
+
+    dips = predicted_dips(profile)
+    sth = threshold_amplitudes(path, p)
+    table = path.table()
+    table["critical_stress_mpa"] = barrier_strengths(path, p)
+    table["threshold_amplitude_mpa"] = sth
+    table["pass_amplitude_mpa"] = np.maximum.accumulate(sth) if sth.size else sth
+    table["crossing_length_um"] = x
+    table["arrest"] = ~np.isfinite(x) & (np.arange(x.size) == (np.argmax(~np.isfinite(x)) if x.size else 0))
+    table["dip_length_um"] = np.nan
+    table["dip_depth"] = np.nan
+    if len(dips):
+        idx = dips["barrier"].to_numpy()
+        table.loc[idx, "dip_length_um"] = dips["crack_length"].to_numpy()
+        table.loc[idx, "dip_depth"] = dips["depth"].to_numpy()
+    arrest = np.flatnonzero(~np.isfinite(x))
+    arrest_len = float(d[arrest[0]]) if arrest.size and d[arrest[0]] <= a1 else math.inf
+
+    notes: list[str] = []
+    bands = None
+    sample_paths = _sample_paths(forecast_or_path, path, samples, strength_scatter, seed, notes)
+    if sample_paths:
+        bands = _bands(sample_paths, s, p, a)
+    return GrowthResult(profile=profile, barriers=table, dips=dips, bands=bands, path=path, params=p,
+                        stress_amplitude=s, arrest_length_um=arrest_len, notes=tuple(notes))
+
+
+def growth_profile(
+    forecast_or_path,
+    stress_amplitude: float,
+    *,
+    friction_stress: float | None = None,
+    coefficient: float | None = None,
+    exponent: float | None = None,
+    initial_length: float | None = None,
+    final_length: float | None = None,
+    n_points: int = 2000,
+    **kwargs: Any,
+) -> pd.DataFrame:
+    """Growth-rate profile along a forecast path (the ``profile`` of :func:`simulate_growth`).
+
+    Returns
+    -------
+    DataFrame
+        ``crack_length`` (µm along the path from its start, the strip-yield half-length a),
+        ``cycles`` (counts from ``initial_length``; ``inf`` once arrested), ``dadn`` (µm/cycle),
+        ``grain``, ``zone_state``, ``n_ratio``, ``barrier``, ``ctsd_um``, ``zone_end_um``, ``arrested``.
+    """
+    return simulate_growth(forecast_or_path, stress_amplitude, friction_stress=friction_stress,
+                           coefficient=coefficient, exponent=exponent, initial_length=initial_length,
+                           final_length=final_length, n_points=n_points, samples=0, **kwargs).profile
+
+
+def predicted_dips(profile_or_result) -> pd.DataFrame:
+    """Rate dips before each barrier the zone was blocked at.
+
+    For each barrier k the zone was blocked at, the dip is the lowest rate after the rate's peak while
+    blocked there (the rate falls as the tip nears the barrier, Navarro & de los Rios 1988); its
+    ``depth`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
+    crack arrests at k). Barriers still blocking at the end of the profile are left out.
+
+    Parameters
+    ----------
+    profile_or_result
+        A profile DataFrame (from :func:`growth_profile`) or a :class:`GrowthResult`.
+
+    Returns
+    -------
+    DataFrame
+        ``barrier`` (index), ``crack_length`` (µm at the dip minimum), ``dadn_min``, ``dadn_peak``
+        (highest rate while blocked), ``dadn_after`` (µm/cycle), ``depth``, ``crossing_length_um``
+        (inf when arrested), ``arrest`` (bool).
+    """
+    prof = profile_or_result.profile if isinstance(profile_or_result, GrowthResult) else profile_or_result
+    need = {"crack_length", "dadn", "barrier", "zone_state"}
+    if not need.issubset(prof.columns):
+        raise ParameterError(f"profile should have columns {sorted(need)}; got {list(prof.columns)}")
+    a = prof["crack_length"].to_numpy(float)
+    r = prof["dadn"].to_numpy(float)
+    b = prof["barrier"].to_numpy(np.int64)
+    state = prof["zone_state"].to_numpy()
+    pos = np.arange(a.size)
+    blk = pd.DataFrame({"barrier": b, "dadn": r, "pos": pos})[(b >= 0) & (state == BLOCKED)]
+    rows = []
+    if len(blk):
+        grp = blk.groupby("barrier", sort=True)
+        # the CTSD of a blocked zone is unimodal in n = a/c: past its peak the rate falls until slip
+        # crosses, so the dip minimum is the lowest rate after the peak (the last blocked point)
+        peak_pos = blk.loc[grp["dadn"].idxmax(), ["barrier", "pos"]].set_index("barrier")["pos"]
+        tail = blk[blk["pos"].to_numpy() >= peak_pos.reindex(blk["barrier"]).to_numpy()]
+        min_pos = tail.loc[tail.groupby("barrier")["dadn"].idxmin(), ["barrier", "pos"]].set_index("barrier")["pos"]
+        last_pos = grp["pos"].max()
+        arrested_k = set(np.unique(b[(b >= 0) & (state == ARRESTED)]).tolist())
+        for k in last_pos.index:  # per barrier: O(1) work each
+            last, i_min, i_peak = int(last_pos[k]), int(min_pos[k]), int(peak_pos[k])
+            arrest = int(k) in arrested_k
+            if arrest:
+                after, cross, depth = 0.0, math.inf, 0.0
+            elif last + 1 >= a.size:
+                continue  # the profile ends while still blocked: no crossing seen, no dip to report
+            else:
+                after, cross = r[last + 1], a[last + 1]
+                depth = r[i_min] / after if after > 0 else math.nan
+            rows.append({"barrier": int(k), "crack_length": a[i_min], "dadn_min": r[i_min], "dadn_peak": r[i_peak],
+                         "dadn_after": after, "depth": depth, "crossing_length_um": cross, "arrest": arrest})
+    cols = ["barrier", "crack_length", "dadn_min", "dadn_peak", "dadn_after", "depth", "crossing_length_um", "arrest"]
+    return pd.DataFrame(rows, columns=cols)
+
+
+# --------------------------------------------------------------------------------------------
+# Uncertainty bands
+# --------------------------------------------------------------------------------------------
+
+
+def _sample_paths(source, path: GrowthPath, samples, scatter: float, seed: int, notes: list) -> list[GrowthPath]:
+    if samples is not None and int(samples) < 0:
+        raise ParameterError(f"samples should be >= 0; got {samples!r}")
+    if samples is None or samples == 0:
+        if samples is None and not isinstance(source, GrowthPath):
+            paths = _forecast_sample_paths(source)
+            if paths:
+                notes.append(f"bands from {len(paths)} forecast Monte Carlo paths")
+                return paths
+            table = getattr(source, "samples", None)
+            if isinstance(table, pd.DataFrame) and len(table):
+                # the forecast keeps per-sample summaries, not paths: draw as many barrier-strength samples
+                settings = getattr(source, "settings", None) or {}
+                return _sample_paths(path, path, len(table), scatter, int(settings.get("seed", seed)), notes)
+        return []
+    scatter = check_positive(scatter, "strength_scatter", allow_zero=True)
+    rng = np.random.default_rng(seed)
+    k = path.n_barriers
+    draws = rng.lognormal(0.0, scatter, size=(int(samples), k))
+    notes.append(f"bands from {int(samples)} log-normal barrier-strength draws (σ_ln = {scatter:g}, seed {seed})")
+    return [replace(path, strength_scale=path.strength_scale * draws[i]) for i in range(int(samples))]
+
+
+def _forecast_sample_paths(forecast) -> list[GrowthPath]:
+    """Per-sample paths carried by ``forecast.samples`` (a list of forecasts or path tables), if any."""
+    samples = getattr(forecast, "samples", None)
+    if samples is None:
+        return []
+    items = None
+    if isinstance(samples, (list, tuple)):
+        items = samples
+    elif isinstance(samples, dict) and isinstance(samples.get("paths"), (list, tuple)):
+        items = samples["paths"]
+    if not items:
+        return []
+    out = []
+    for item in items:
+        try:
+            if hasattr(item, "path"):
+                out.append(path_from_forecast(item))
+            elif isinstance(item, pd.DataFrame):
+                out.append(path_from_tables(item, getattr(forecast, "barriers", None)))
+        except ParameterError:
+            continue  # a sample whose path is empty: it adds no band
+    return out
+
+
+def _bands(paths: list[GrowthPath], s: float, p: GrowthParameters, a: np.ndarray) -> pd.DataFrame:
+    cyc = np.empty((len(paths), a.size))
+    rate = np.empty((len(paths), a.size))
+    for i, sp in enumerate(paths):  # one vectorised model run per sample
+        dense = np.unique(np.concatenate([a, _grid(sp, a[0], a[-1], a.size, crossing_lengths(sp, s, p))]))
+        st = zone_state(sp, dense, s, p)
+        nd = _integrate_cycles(dense, st["dadn"])
+        idx = np.searchsorted(dense, a)
+        cyc[i] = nd[idx]
+        rate[i] = st["dadn"][idx]
+    out = {"crack_length": a}
+    for q in (5, 50, 95):
+        # "inverted_cdf" picks sample values, so arrested (inf) samples never produce NaN
+        out[f"cycles_p{q:02d}"] = np.percentile(cyc, q, axis=0, method="inverted_cdf")
+        out[f"dadn_p{q:02d}"] = np.percentile(rate, q, axis=0, method="inverted_cdf")
+    return pd.DataFrame(out)

@@ -1,0 +1,71 @@
+"""Run a notch study (a TOML study file) on its map, or on every map of a folder."""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Iterator
+from pathlib import Path
+
+from slipnet.errors import ParameterError
+from slipnet.grains.build import build_grain_graph
+from slipnet.io.folders import read_map_folder
+from slipnet.io.maps import read_map
+from slipnet.io.study import Study, read_study
+from slipnet.maps.grain_graph import GrainGraph
+from slipnet.notch.plan import plan_notch
+from slipnet.notch.settings import NotchPlan
+
+__all__ = ["iter_batch", "run_study"]
+
+
+def run_study(study: Study | str | os.PathLike, *, gg: GrainGraph | None = None, scheduler: str | None = None,
+              progress: bool = False) -> NotchPlan:
+    """Run a study: read its map, build grains (unless ``gg`` is given) and plan the notch.
+
+    Parameters
+    ----------
+    study
+        A :class:`~slipnet.io.Study` or the path of a TOML study file.
+    gg
+        A grain graph to use instead of building one from the study's map.
+    scheduler
+        Overrides the study's ``[run] scheduler``.
+    progress
+        Show progress bars.
+
+    Returns
+    -------
+    NotchPlan
+        With ``source`` naming the study file and the map.
+    """
+    st = study if isinstance(study, Study) else read_study(study)
+    if gg is None:
+        if st.map_path is None:
+            raise ParameterError("the study names no [specimen] map; give one or pass a grain graph")
+        gg = build_grain_graph(read_map(st.map_path), **st.grain_options)
+    opts = dict(st.plan_options)
+    edge = opts.pop("edge", "left")
+    load = opts.pop("load_axis")
+    if scheduler is not None:
+        opts["scheduler"] = scheduler
+    plan = plan_notch(gg, edge, load, progress=progress, **opts)
+    source = {"study": str(st.path), "map": str(st.map_path) if st.map_path else None}
+    return NotchPlan(plan.table, plan.settings, plan.method, plan.top_k, plan.notes, source)
+
+
+def iter_batch(folder: str | os.PathLike, study: Study | str | os.PathLike, *, scheduler: str | None = None,
+               progress: bool = False) -> Iterator[tuple[Path, GrainGraph, NotchPlan]]:
+    """Run one study over every map in ``folder``, one specimen at a time.
+
+    All maps are read (and checked) before the first plan runs, so a bad map stops the batch
+    before anything is computed or written.
+
+    Yields
+    ------
+    (map path, grain graph, plan)
+    """
+    st = study if isinstance(study, Study) else read_study(study)
+    maps = read_map_folder(folder)
+    for path, omap in maps:
+        gg = build_grain_graph(omap, **st.grain_options)
+        yield path, gg, run_study(st.with_map(path), gg=gg, scheduler=scheduler, progress=progress)

@@ -1,0 +1,55 @@
+"""Local stresses: the full-field anisotropic elastic solve, local slip quantities from it, and
+crystal plasticity.
+"""
+
+from __future__ import annotations
+
+from slipnet.stress.elastic import (
+    AUSTENITE_CONSTANTS,
+    IRON_CONSTANTS,
+    CubicConstants,
+    StressField,
+    assumptions_text,
+    directional_modulus,
+    from_mandel,
+    rotate_stiffness,
+    solve_elastic,
+    to_mandel,
+    voigt_reuss_hill,
+)
+from slipnet.stress.local import (
+    default_systems,
+    grain_schmid_factors,
+    grain_stress_table,
+    local_resolved_shear,
+    local_schmid_factors,
+    stress_concentration,
+    uniform_schmid_factors,
+)
+from slipnet.stress.plasticity import (
+    PlasticField,
+    solve_plastic,
+)
+
+__all__ = [
+    "AUSTENITE_CONSTANTS",
+    "IRON_CONSTANTS",
+    "CubicConstants",
+    "PlasticField",
+    "StressField",
+    "assumptions_text",
+    "default_systems",
+    "directional_modulus",
+    "from_mandel",
+    "grain_schmid_factors",
+    "grain_stress_table",
+    "local_resolved_shear",
+    "local_schmid_factors",
+    "rotate_stiffness",
+    "solve_elastic",
+    "solve_plastic",
+    "stress_concentration",
+    "to_mandel",
+    "uniform_schmid_factors",
+    "voigt_reuss_hill",
+]
