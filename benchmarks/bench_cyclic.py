@@ -30,10 +30,10 @@ import time
 
 import numpy as np
 
-from slipnet.cyclic import CyclicMaterial, solve_cyclic, solve_monotonic
 from slipnet.grains import build_grain_graph
-from slipnet.stress import solve_elastic
-from slipnet.synthetic import Notch, make_specimen
+from slipnet.maps import NotchShape
+from slipnet.stress import CyclicMaterial, solve_cyclic, solve_elastic, solve_monotonic
+from slipnet.synthetic import make_specimen
 
 
 class CyclicNotchBench:
@@ -41,7 +41,8 @@ class CyclicNotchBench:
 
     def setup(self, n: int, seed: int = 1) -> None:
         self.spec = make_specimen((n, n), 3.0, grain_size_um=30.0,
-                                  notch=Notch(side="left", depth_um=60.0, root_radius_um=10.0), seed=seed)
+                                  notch=NotchShape(depth_um=60.0, root_radius_um=10.0, opening_deg=45.0),
+                                  notch_side="left", seed=seed)
         self.gg = build_grain_graph(self.spec.omap)
 
     def time_elastic(self, amplitude: float):
@@ -61,7 +62,7 @@ class CyclicNotchBench:
                                material=mat)
 
     def time_explicit(self, amplitude: float):
-        from slipnet.plasticity import solve_plastic
+        from slipnet.stress import solve_plastic
 
         return solve_plastic(self.spec.omap, self.spec.load_axis, amplitude, crss_mpa=90.0, tol=1e-5,
                              unindexed="auto")

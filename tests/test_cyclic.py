@@ -9,14 +9,14 @@ import numpy as np
 import pytest
 from scipy.spatial import cKDTree
 
-from slipnet import _cyclic_bands as _bands
-from slipnet import _cyclic_kernels as _ck
-from slipnet.cyclic import CyclicMaterial, solve_cyclic, solve_monotonic, write_cyclic_outputs
+from slipnet.crystal.orientation import random_quats
+from slipnet.crystal.slip_systems import schmid_factors, slip_systems, taylor_factor
 from slipnet.errors import NumericalError, ParameterError
-from slipnet.maps import OrientationMap
-from slipnet.orientation import random_quats
-from slipnet.slip import schmid_factors, slip_systems, taylor_factor
-from slipnet.stress import solve_elastic
+from slipnet.maps import NotchShape, OrientationMap
+from slipnet.reports.cyclic import write_cyclic
+from slipnet.stress import CyclicMaterial, solve_cyclic, solve_elastic, solve_monotonic
+from slipnet.stress import _cyclic_bands as _bands
+from slipnet.stress import _cyclic_kernels as _ck
 
 SYSTEMS = slip_systems("bcc")
 
@@ -141,7 +141,7 @@ def test_point_update_solves_backward_euler_equations_and_matches_py_func(seed):
 
 def test_point_tangent_matches_finite_differences():
     # consistent tangent (no latent coupling, q = 1 gives h_ab = 1 everywhere: use q = 0 → diagonal)
-    from slipnet.orientation import quat_from_euler as qe
+    from slipnet.crystal.orientation import quat_from_euler as qe
 
     amat, p6, c = _amat()
     ns = amat.shape[0]
@@ -289,7 +289,7 @@ def test_polycrystal_flow_stress_between_sachs_and_taylor():
 def test_monotonic_limit_matches_explicit_solver():
     # today's explicit solver (forward Euler sub-steps, linear hardening) and the implicit one on
     # the same small polycrystal and the same constitutive law: within 2 %
-    from slipnet.plasticity import solve_plastic
+    from slipnet.stress import solve_plastic
 
     omap, gr = polycrystal(12, 4, seed=3)
     ref = solve_plastic(omap, [1, 0, 0], 230.0, increments=4, crss_mpa=90.0, hardening_mpa=200.0, latent_ratio=1.0,
@@ -338,7 +338,7 @@ def test_crack_tip_concentrates_slip():
 
 def test_boundary_layer_resistance_is_one_minus_best_m_prime():
     # oracle: m′ from slipnet.transmission (Luster & Morris 1995, Metall. Mater. Trans. A 26:1745)
-    from slipnet.transmission import m_prime
+    from slipnet.crystal.transmission import m_prime
 
     q = random_quats(2, seed=4)
     labels = np.zeros((6, 10), np.int64)
@@ -385,15 +385,19 @@ def test_bands_average_fip_over_strips_along_the_trace():
 
 
 def test_notched_specimen_localises_at_the_root_and_ranks_bands():
-    from slipnet.synthetic import Notch, make_specimen
+    from slipnet.synthetic import make_specimen
 
-    spec = make_specimen((48, 48), 3.0, grain_size_um=24.0, notch=Notch(side="left", depth_um=40.0,
-                                                                       root_radius_um=6.0), seed=2)
+    spec = make_specimen((48, 48), 3.0, grain_size_um=24.0, notch_side="left", seed=2,
+                         notch=NotchShape(depth_um=40.0, root_radius_um=6.0, opening_deg=45.0))
     res = solve_cyclic(spec.omap, spec.load_axis, stress_amplitude=170.0, cycles=1, free_edges="left")
     periodic = solve_cyclic(spec.omap, spec.load_axis, stress_amplitude=170.0, cycles=1)
     # a free notched edge makes the notch a true edge notch (the periodic copy no longer closes its
     # mouth): a lower net section, so more slip at the root
     assert res.settings["free_edges"] == ["left"] and "free surfaces" in res.assumptions
+    buf = solve_cyclic(spec.omap, spec.load_axis, stress_amplitude=170.0, cycles=1, free_edges="left",
+                       buffer_edges=("top", "bottom"))
+    assert buf.fip.shape == spec.omap.shape and "elastic buffer" in buf.assumptions
+    assert buf.history["stress_mpa"].iloc[-1] == pytest.approx(170.0, rel=1e-4)  # the load passes the buffer
     x, y = spec.omap.coordinates()
     root = np.hypot(x - spec.notch_root[0], y - spec.notch_root[1]) < 8.0
     assert res.accumulated_slip[root].max() > 1.2 * periodic.accumulated_slip[root].max()
@@ -423,6 +427,7 @@ def test_notched_specimen_localises_at_the_root_and_ranks_bands():
     ({"stress_amplitude": 100.0, "frequency_hz": 0}, "frequency_hz should be"),
     ({"stress_amplitude": 100.0, "free_edges": "left"}, "free_edges should be edges along the load"),
     ({"stress_amplitude": 100.0, "free_edges": "middle"}, "free_edges should be one of"),
+    ({"stress_amplitude": 100.0, "free_edges": "top", "buffer_edges": "top"}, "free or buffered, not both"),
 ])
 def test_bad_input_refused(kwargs, match):
     omap = uniform_map([1.0, 0, 0, 0])
@@ -442,7 +447,7 @@ def test_non_converging_step_reports_where_and_when_and_writes_nothing(tmp_path)
     write_map(omap, tmp_path / "m.npz")
     out = tmp_path / "out"
     rc = main(["stress", str(tmp_path / "m.npz"), "--cyclic", "--stress", "400", "--out", str(out),
-               "--max-newton", "1", "--max-cutbacks", "0"])
+               "--load-axis", "1", "0", "0", "--max-newton", "1", "--max-cutbacks", "0"])
     assert rc == 2 and not out.exists()
 
 
@@ -455,12 +460,15 @@ def test_outputs_pickle_and_cli(tmp_path, capsys):
     res = solve_cyclic(omap, [0, 1, 0], stress_amplitude=180.0, cycles=1, grains=gr)
     back = pickle.loads(pickle.dumps(res))
     np.testing.assert_array_equal(back.fip, res.fip)
-    paths = write_cyclic_outputs(res, tmp_path / "lib")
+    paths = write_cyclic(res, tmp_path / "lib")
     text = (tmp_path / "lib" / "summary.md").read_text(encoding="utf-8")
     assert CAUTION in text and res.assumptions in text
     for name in ("fip_bands.png", "hysteresis.png"):
         assert (tmp_path / "lib" / name).stat().st_size > 1000
-    assert len(paths) == 7
+    assert set(paths) == {"bands", "grain_response", "history", "settings", "accumulated_slip", "slip_range", "fip",
+                          "labels", "compliant", "fip_bands_map", "hysteresis", "summary"}
+    assert all(p.exists() for p in paths.values())
+    np.testing.assert_array_equal(np.load(paths["fip"]), res.fip)
     write_map(omap, tmp_path / "m.npz")
     rc = main(["stress", str(tmp_path / "m.npz"), "--cyclic", "--stress", "180", "--cycles", "1", "--load-axis",
                "0", "1", "0", "--out", str(tmp_path / "cli"), "--no-figures"])

@@ -32,6 +32,25 @@ def add(sub, parents) -> None:
     p.add_argument("--crss-mpa", type=float, default=100.0,
                    help="initial critical resolved shear stress, MPa (default 100)")
     p.add_argument("--increments", type=int, default=10, help="load increments with --plastic (default 10)")
+    g = p.add_argument_group("cyclic crystal plasticity")
+    g.add_argument("--cyclic", action="store_true",
+                   help="cyclic crystal plasticity instead: --stress is the stress amplitude; writes ranked FIP slip "
+                   "bands, grain responses (shakedown/ratcheting), the hysteresis loop and the fields")
+    g.add_argument("--ratio", type=float, default=-1.0, help="load ratio R = min/max (default -1)")
+    g.add_argument("--cycles", type=int, default=3, help="cycles after the first loading (default 3)")
+    g.add_argument("--frequency", type=float, default=1.0, help="loading frequency, Hz (default 1)")
+    g.add_argument("--crack", nargs="+", type=float, metavar="XY",
+                   help="crack polyline: x1 y1 x2 y2 ... µm, from the mouth to the tip (cut in as a slit)")
+    g.add_argument("--free-edge", nargs="+", choices=("left", "right", "top", "bottom"), default=(),
+                   help="map edges that are free surfaces (e.g. the notched edge); they must run along the load")
+    g.add_argument("--buffer-edge", nargs="+", choices=("left", "right", "top", "bottom"), default=(),
+                   help="map edges beyond which an isotropic elastic buffer separates the map from its periodic copy")
+    g.add_argument("--boundary-width", type=float, default=0.0,
+                   help="width of the boundary layer that resists slip by (1 - m'), µm (default 0: none)")
+    g.add_argument("--boundary-strength", type=float, default=50.0,
+                   help="largest resistance rise in that layer, MPa (default 50)")
+    g.add_argument("--max-newton", type=int, default=12, help="global Newton iterations per increment (default 12)")
+    g.add_argument("--max-cutbacks", type=int, default=8, help="cut-backs of one increment (default 8)")
     p.set_defaults(func=run)
 
 
@@ -40,6 +59,8 @@ def run(args) -> int:
     from slipnet.stress import solve_elastic, solve_plastic, stress_concentration
 
     omap = read_map_from_args(args, args.input)
+    if args.cyclic:
+        return _run_cyclic(args, omap)
     common = {"tol": args.tol, "max_iter": args.max_iter, "scheme": args.scheme, "unindexed": args.unindexed,
               "compliant_ratio": args.compliant_ratio}
     plastic = None
@@ -61,5 +82,35 @@ def run(args) -> int:
         c = stress_concentration(field, args.concentration_at[0], args.concentration_at[1], r)
         print(f"stress: concentration {c['concentration']:.2f} at ({c['x_um']:.1f}, {c['y_um']:.1f}) µm")
     print(f"assumptions: {field.assumptions}")
+    print(f"outputs written to {out}")
+    return 0
+
+
+def _run_cyclic(args, omap) -> int:
+    from slipnet.errors import ParameterError
+    from slipnet.reports.cyclic import write_cyclic
+    from slipnet.stress import CyclicMaterial, solve_cyclic
+
+    crack = None
+    if args.crack:
+        if len(args.crack) < 4 or len(args.crack) % 2:
+            raise ParameterError("--crack should give x y pairs (at least two vertices); "
+                                 f"got {len(args.crack)} numbers")
+        crack = [args.crack[i:i + 2] for i in range(0, len(args.crack), 2)]
+    gg = grain_graph_from_args(args, args.input)
+    result = solve_cyclic(omap, args.load_axis, stress_amplitude=args.stress, ratio=args.ratio, cycles=args.cycles,
+                          frequency_hz=args.frequency, crack=crack, free_edges=args.free_edge,
+                          buffer_edges=args.buffer_edge, grains=gg,
+                          material=CyclicMaterial(crss_mpa=args.crss_mpa), boundary_width_um=args.boundary_width,
+                          boundary_strength_mpa=args.boundary_strength, tol=max(args.tol, 1e-5),
+                          max_iter=max(args.max_iter, 3000), max_newton=args.max_newton,
+                          max_cutbacks=args.max_cutbacks, scheme=args.scheme, unindexed=args.unindexed,
+                          compliant_ratio=args.compliant_ratio, progress=True)
+    out = out_folder(args)
+    write_cyclic(result, out, figures=not args.no_figures)
+    s = result.settings
+    print(f"cyclic: {s['increments']} increments, {s['newton_iterations']} Newton / {s['cg_iterations']} CG "
+          f"iterations, {s['cutbacks']} cut-backs; largest FIP {result.fip.max():.3e}")
+    print(f"assumptions: {result.assumptions}")
     print(f"outputs written to {out}")
     return 0

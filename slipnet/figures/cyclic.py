@@ -8,7 +8,7 @@ import textwrap
 import matplotlib.pyplot as plt
 import numpy as np
 
-from ._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
+from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
 __all__ = ["plot_fip_bands", "plot_hysteresis"]
 
@@ -27,7 +27,7 @@ def plot_fip_bands(result, top: int = 10, ax=None):
     Parameters
     ----------
     result
-        A :class:`~slipnet.cyclic.CyclicField`.
+        A :class:`~slipnet.stress.cyclic.CyclicField`.
     top
         Number of bands to draw.
     ax

@@ -7,6 +7,9 @@ from __future__ import annotations
 from slipnet.reports.compare import (
     write_comparison,
 )
+from slipnet.reports.cyclic import (
+    write_cyclic,
+)
 from slipnet.reports.forecast import (
     write_forecast,
 )
@@ -42,6 +45,7 @@ __all__ = [
     "markdown_table",
     "write_batch",
     "write_comparison",
+    "write_cyclic",
     "write_forecast",
     "write_grains",
     "write_graphml",

@@ -1,9 +1,16 @@
 """Local stresses: the full-field anisotropic elastic solve, local slip quantities from it, and
-crystal plasticity.
+crystal plasticity (monotonic explicit, and cyclic implicit with FIPs and slip bands).
 """
 
 from __future__ import annotations
 
+from slipnet.stress.cyclic import (
+    CyclicField,
+    CyclicMaterial,
+    cyclic_assumptions,
+    solve_cyclic,
+    solve_monotonic,
+)
 from slipnet.stress.elastic import (
     AUSTENITE_CONSTANTS,
     IRON_CONSTANTS,
@@ -35,9 +42,12 @@ __all__ = [
     "AUSTENITE_CONSTANTS",
     "IRON_CONSTANTS",
     "CubicConstants",
+    "CyclicField",
+    "CyclicMaterial",
     "PlasticField",
     "StressField",
     "assumptions_text",
+    "cyclic_assumptions",
     "default_systems",
     "directional_modulus",
     "from_mandel",
@@ -46,7 +56,9 @@ __all__ = [
     "local_resolved_shear",
     "local_schmid_factors",
     "rotate_stiffness",
+    "solve_cyclic",
     "solve_elastic",
+    "solve_monotonic",
     "solve_plastic",
     "stress_concentration",
     "to_mandel",

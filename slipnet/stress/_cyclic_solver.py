@@ -1,7 +1,7 @@
 """Load stepping and the global Newton loop of the cyclic crystal-plasticity solver (private).
 
 Per increment: an implicit (backward Euler) update at every point gives stress and consistent
-tangent (:func:`slipnet._cyclic_kernels.return_map`); the strain correction comes from one
+tangent (:func:`slipnet.stress._cyclic_kernels.return_map`); the strain correction comes from one
 linearised spectral solve ``G(C_t : δε) = r`` by conjugate gradients with the tangent field
 (Newton–Krylov on the Galerkin form, Zeman et al. 2010, J. Comput. Phys. 229:8065; de Geus et
 al. 2017, Comput. Methods Appl. Mech. Eng. 318:412), solved inexactly (the CG tolerance follows
@@ -19,9 +19,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import _cyclic_kernels as _ck
-from .errors import NumericalError
-from .stress import _Spectral
+from slipnet.errors import NumericalError
+from slipnet.stress import _cyclic_kernels as _ck
+from slipnet.stress.elastic import _Spectral
 
 
 class _Operator(_Spectral):

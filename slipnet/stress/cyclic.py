@@ -18,8 +18,8 @@ Constitutive model (small strain, per point, crystal frame)
   Raabe 2006, Acta Mater. 54:2169 — from memory, not checked here).
 
 Integration: backward Euler per point solved by Newton's method with the consistent tangent
-(:mod:`slipnet._cyclic_kernels`), inside the spectral Newton–Krylov load stepping of
-:mod:`slipnet._cyclic_solver` (stress or mixed strain control); increments per half cycle are
+(:mod:`slipnet.stress._cyclic_kernels`), inside the spectral Newton–Krylov load stepping of
+:mod:`slipnet.stress._cyclic_solver` (stress or mixed strain control); increments per half cycle are
 adapted to the largest slip increment and cut back when a Newton step fails.
 
 Fatigue indicator (Fatemi & Socie 1988, Fatigue Fract. Eng. Mater. Struct. 11:149, in its
@@ -35,22 +35,20 @@ import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, replace
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from . import _cyclic_bands as _bands
-from . import _cyclic_kernels as _ck
-from . import _cyclic_solver as _solver
-from ._checks import check_choice, check_positive, check_range, check_vector
-from .errors import ParameterError
-from .maps import OrientationMap
-from .orientation import nearest_equivalent
-from .stress import (
+from slipnet._checks import check_choice, check_positive, check_range, check_vector
+from slipnet.crystal.orientation import nearest_equivalent
+from slipnet.errors import ParameterError
+from slipnet.maps.orientation_map import OrientationMap
+from slipnet.stress import _cyclic_bands as _bands
+from slipnet.stress import _cyclic_kernels as _ck
+from slipnet.stress import _cyclic_solver as _solver
+from slipnet.stress.elastic import (
     SCHEMES,
     UNINDEXED_MODES,
-    _default_systems,
     _numba_threads,
     _prepare,
     _workers,
@@ -59,14 +57,15 @@ from .stress import (
     to_mandel,
     voigt_reuss_hill,
 )
+from slipnet.stress.local import default_systems
 
-__all__ = ["CyclicField", "CyclicMaterial", "cyclic_assumptions", "solve_cyclic", "solve_monotonic",
-           "write_cyclic_outputs"]
+__all__ = ["CyclicField", "CyclicMaterial", "cyclic_assumptions", "solve_cyclic", "solve_monotonic"]
 
 #: Taylor factor of an untextured cubic polycrystal for {111}<110> / pencil glide, about 3.06
 #: (Taylor 1938, J. Inst. Met. 62:307; from memory): the default σ_y is this times τ₀.
 RANDOM_TAYLOR_FACTOR = 3.06
-#: Map edges that can be declared free surfaces, and the compliant gap added beyond each (points).
+#: Map edges that can be declared free surfaces or given an elastic buffer, and the width of the
+#: compliant gap or isotropic elastic layer added beyond each (points).
 EDGES = ("left", "right", "top", "bottom")
 EDGE_PAD = 4
 #: Fatemi–Socie normal-stress sensitivity k; 0.5 is the value commonly used in
@@ -127,12 +126,15 @@ class CyclicMaterial:
 
 def cyclic_assumptions(scheme: str = "rotated", compliant_ratio: float = 1e-3, grid: str = "square",
                        unindexed: str = "auto", crack: bool = False, boundary: bool = False,
-                       free_edges: tuple = ()) -> str:
+                       free_edges: tuple = (), buffer_edges: tuple = ()) -> str:
     """The statement every output of :func:`solve_cyclic` prints."""
     text = assumptions_text(scheme, compliant_ratio, grid, plastic=True, unindexed=unindexed)
     if free_edges:
         text += (f" The {', '.join(free_edges)} map edge(s) are free surfaces (a compliant gap of {EDGE_PAD} points "
                  "is added beyond them, so the periodic copy does not touch them).")
+    if buffer_edges:
+        text += (f" Beyond the {', '.join(buffer_edges)} map edge(s) an isotropic elastic buffer ({EDGE_PAD} points, "
+                 "Hill average of the main phase) separates the map from its periodic copy.")
     text += (" Small strain, no lattice rotation; rate-dependent slip (power law) with Armstrong–Frederick "
              "backstress and Voce isotropic hardening per system, integrated by backward Euler; only the main "
              "phase slips (other phases elastic).")
@@ -279,7 +281,7 @@ def _tol(tol) -> float:
 # ---------------------------------------------------------------------------- set-up
 def _grains(omap: OrientationMap, grains):
     if grains is None:
-        from .grains import build_grain_graph
+        from slipnet.grains import build_grain_graph
 
         grains = build_grain_graph(omap)
     labels = np.asarray(getattr(grains, "labels", None))
@@ -305,7 +307,7 @@ def _aligned(omap: OrientationMap, labels: np.ndarray, mq: np.ndarray) -> Orient
 
 
 def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unindexed, scheme, nthreads,
-             crack_pts, labels, mq, boundary_width, boundary_strength, pad_mask):
+             crack_pts, labels, mq, boundary_width, boundary_strength, pad_kind):
     c, q, ph, soft, consts = _prepare(omap, constants, ratio_c, unindexed)
     ny, nx = omap.shape
     n = ny * nx
@@ -313,8 +315,9 @@ def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unind
     cmask = np.zeros((ny, nx), bool)
     if crack_pts is not None:
         cmask = _bands.crack_mask(crack_pts, omap)
-    forced = cmask | pad_mask
-    if forced.any():
+    forced = cmask | (pad_kind == 1)
+    buffer = pad_kind == 2
+    if forced.any() or buffer.any():
         main = int(np.bincount(ph[ph >= 0]).argmax()) if (ph >= 0).any() else 0
         vrh = voigt_reuss_hill(consts[main])
         lam = vrh["bulk_gpa"] - 2.0 * vrh["shear_hill_gpa"] / 3.0
@@ -322,7 +325,8 @@ def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unind
         soft_c[:3, :3] = lam
         soft_c[np.arange(6), np.arange(6)] += 2.0 * vrh["shear_hill_gpa"]
         c[forced.reshape(n)] = ratio_c * soft_c * 1000.0
-        ph = np.where(forced.reshape(n), -1, ph)
+        c[buffer.reshape(n)] = soft_c * 1000.0
+        ph = np.where((forced | buffer).reshape(n), -1, ph)
         soft |= forced
         if soft.all():
             raise ParameterError("the crack leaves no solid point; give a shorter crack")
@@ -364,31 +368,36 @@ def _problem(omap, axis, systems, mat: CyclicMaterial, constants, ratio_c, unind
     return prob, soft, cmask, partner
 
 
-def _free_edges(free_edges) -> tuple:
-    if free_edges is None:
+def _edges(edges, name: str) -> tuple:
+    if edges is None:
         return ()
-    items = [free_edges] if isinstance(free_edges, str) else list(free_edges)
+    items = [edges] if isinstance(edges, str) else list(edges)
     out = []
     for e in items:
-        e = check_choice(e, "free_edges", EDGES)
+        e = check_choice(e, name, EDGES)
         if e not in out:
             out.append(e)
     return tuple(out)
 
 
-def _padded(omap: OrientationMap, labels: np.ndarray, edges: tuple):
-    """The map with :data:`EDGE_PAD` unindexed points beyond each free edge (origin kept in the map frame)."""
+def _padded(omap: OrientationMap, labels: np.ndarray, free: tuple, buffer: tuple):
+    """The map with :data:`EDGE_PAD` unindexed points beyond each free or buffered edge (origin kept
+    in the map frame), and the pad kind per point (0 map, 1 free gap, 2 elastic buffer; corners
+    take the left/right kind)."""
     ny, nx = omap.shape
+    edges = free + buffer
     pad = {e: (EDGE_PAD if e in edges else 0) for e in EDGES}
     if not edges:
-        return omap, labels, np.zeros((ny, nx), bool), (0, 0)
+        return omap, labels, np.zeros((ny, nx), np.int8), (0, 0)
+    kind = {e: (1 if e in free else 2 if e in buffer else 0) for e in EDGES}
     widths = ((pad["top"], pad["bottom"]), (pad["left"], pad["right"]))
     q = np.pad(np.asarray(omap.quats), (*widths, (0, 0)), constant_values=np.nan)
     ph = np.pad(np.asarray(omap.phase), widths, constant_values=-1)
     qual = np.pad(np.asarray(omap.quality), widths, constant_values=0.0)
     ind = np.pad(np.asarray(omap.indexed), widths, constant_values=False)
     lab = np.pad(labels, widths, constant_values=-1)
-    mask = np.pad(np.zeros((ny, nx), bool), widths, constant_values=True)
+    mask = np.pad(np.zeros((ny, nx), np.int8), widths,
+                  constant_values=((kind["top"], kind["bottom"]), (kind["left"], kind["right"])))
     x0, y0 = omap.origin
     origin = (x0 - pad["left"] * omap.step, y0 - pad["top"] * omap.row_spacing)
     big = replace(omap, quats=q, phase=ph, quality=qual, indexed=ind, origin=origin)
@@ -454,6 +463,7 @@ def solve_cyclic(
     frequency_hz: float = 1.0,
     crack=None,
     free_edges=(),
+    buffer_edges=(),
     grains=None,
     material: CyclicMaterial | None = None,
     systems=None,
@@ -508,6 +518,10 @@ def solve_cyclic(
         specimen, e.g. the edge an edge notch is cut into: a compliant gap is added beyond them, so
         the periodic cell does not join them to the opposite edge (otherwise the notch mouth meets
         the opposite edge and its corners raise a spurious concentration there).
+    buffer_edges
+        Map edges beyond which an isotropic elastic buffer (Hill average, no slip) is added, so grains
+        at an edge across the load meet a neutral medium instead of the unrelated grains of the
+        opposite edge (common practice for non-periodic maps in periodic solvers).
     grains
         A ``GrainGraph`` of the map (labels and mean orientations, used for bands and the boundary
         layer); built with a 15° threshold if None.
@@ -559,7 +573,8 @@ def solve_cyclic(
     freq = check_positive(frequency_hz, "frequency_hz")
     segments = _schedule(top, bottom, n_cycles)
     rate = 2.0 * (top - bottom) * freq
-    return _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, free_edges, grains, material,
+    return _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, (free_edges, buffer_edges),
+                  grains, material,
                   systems, boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um,
                   band_min_points, tol, max_iter, max_newton, max_local, max_slip_increment, min_increments,
                   max_cutbacks, rate_floor, constants, compliant_ratio, unindexed, scheme, workers, progress,
@@ -575,6 +590,7 @@ def solve_monotonic(
     control: str = "stress",
     crack=None,
     free_edges=(),
+    buffer_edges=(),
     grains=None,
     material: CyclicMaterial | None = None,
     systems=None,
@@ -610,14 +626,15 @@ def solve_monotonic(
         raise ParameterError(f"stress should be a finite non-zero number; got {stress!r}")
     t_load = check_positive(load_time_s, "load_time_s")
     segments = [_solver.Segment(0, "ramp", 0.0, top)]
-    return _solve(omap, load_axis, control, segments, abs(top) / t_load, abs(top), top, 0.0, crack, free_edges,
+    return _solve(omap, load_axis, control, segments, abs(top) / t_load, abs(top), top, 0.0, crack,
+                  (free_edges, buffer_edges),
                   grains, material,
                   systems, boundary_width_um, boundary_strength_mpa, DEFAULT_FIP_K, None, None, 3, tol, max_iter,
                   max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor, constants,
                   compliant_ratio, unindexed, scheme, workers, progress, {"load_time_s": t_load, "cycles": 0})
 
 
-def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, free_edges, grains, material, systems,
+def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, edge_spec, grains, material, systems,
            boundary_width_um, boundary_strength_mpa, fip_k, yield_stress_mpa, band_width_um, band_min_points, tol,
            max_iter, max_newton, max_local, max_slip_increment, min_increments, max_cutbacks, rate_floor, constants,
            compliant_ratio, unindexed, scheme, workers, progress, extra) -> CyclicField:
@@ -649,18 +666,21 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, fr
     scheme = check_choice(scheme, "scheme", SCHEMES)
     unindexed = check_choice(unindexed, "unindexed", UNINDEXED_MODES)
     crack_pts = None if crack is None else _bands.crack_polyline(crack, omap)
-    edges = _free_edges(free_edges)
+    edges = _edges(edge_spec[0], "free_edges")
+    buffers = _edges(edge_spec[1], "buffer_edges")
+    if set(edges) & set(buffers):
+        raise ParameterError(f"an edge should be free or buffered, not both; got free {edges}, buffer {buffers}")
     for e in edges:
         normal = np.array([1.0, 0.0, 0.0]) if e in ("left", "right") else np.array([0.0, 1.0, 0.0])
         if abs(float(normal @ axis)) > 0.5:
             raise ParameterError(f"free_edges should be edges along the load (the load cannot pass a free surface); "
                                  f"got {e!r} with load axis ({axis[0]:.2f}, {axis[1]:.2f}, {axis[2]:.2f})")
-    systems = _default_systems(omap, systems)
+    systems = default_systems(omap, systems)
     labels, mq = _grains(omap, grains)
     omap_a = _aligned(omap, labels, mq)
     ny, nx = omap.shape
     n = ny * nx
-    omap_p, labels_p, pad_mask, (r0, c0) = _padded(omap_a, labels, edges)
+    omap_p, labels_p, pad_kind, (r0, c0) = _padded(omap_a, labels, edges, buffers)
     nyp, nxp = omap_p.shape
     nthreads = _workers(workers, nyp * nxp)
     # the per-point update is heavy work per point: threaded from a few thousand points on (the FFTs
@@ -669,7 +689,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, fr
     numer.nblocks = max(1, min(nyp * nxp, 64 * numer.point_threads))
     with _numba_threads(nthreads):
         prob, soft, cmask, partner = _problem(omap_p, axis, systems, mat, constants, ratio_c, unindexed, scheme,
-                                              nthreads, crack_pts, labels_p, mq, bw, bs, pad_mask)
+                                              nthreads, crack_pts, labels_p, mq, bw, bs, pad_kind)
         if control == "stress":
             scale = max(abs(top), abs(bottom))
         else:
@@ -678,7 +698,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, fr
         last = max(s.cycle for s in segments)
         out = _solver.integrate(prob, segments, rate, control, scale, mat.as_dict(), numer, last,
                                 _printer(progress, last))
-    if edges:  # back to the map's own points
+    if edges or buffers:  # back to the map's own points
         out, prob, soft, cmask, partner = _crop(out, prob, soft, cmask, partner, (nyp, nxp), (r0, c0), (ny, nx))
     ns = prob.schmid.shape[0]
     solid_plastic = prob.pidx >= 0
@@ -704,7 +724,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, fr
         "control": control, "amplitude": amp, "max_load": top, "min_load": bottom, "load_axis": axis.tolist(),
         **extra, "material": mat.as_dict(), "n_systems": ns, "fip_k": k_fs, "yield_stress_mpa": sy,
         "band_width_um": wband, "boundary_width_um": bw, "boundary_strength_mpa": bs,
-        "free_edges": list(edges),
+        "free_edges": list(edges), "buffer_edges": list(buffers),
         "crack_um": None if crack_pts is None else crack_pts.tolist(),
         "crack_tip_um": None if crack_pts is None else crack_pts[-1].tolist(),
         "tol": tol, "max_slip_increment": numer.slip_target, "min_increments": numer.min_increments,
@@ -713,7 +733,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, fr
         "cg_iterations": out.totals["cg"], "cutbacks": out.totals["cutbacks"],
     }
     assumptions = cyclic_assumptions(scheme, ratio_c, omap.grid, unindexed, crack_pts is not None,
-                                     bw > 0 and bs > 0, edges)
+                                     bw > 0 and bs > 0, edges, buffers)
     return CyclicField(
         accumulated_slip=acc.reshape(ny, nx),
         slip_range=srange.max(axis=1).reshape(ny, nx),
@@ -743,62 +763,3 @@ def _ck_normal_max(sig: np.ndarray, prob, out: np.ndarray) -> None:
     """Normal stress on each system's plane at the final state (the monotonic 'maximum')."""
     sc = np.einsum("pab,bp->pa", prob.qrot, sig)
     out[:] = sc @ prob.plane_nn.T
-
-
-# ---------------------------------------------------------------------------- outputs
-def write_cyclic_outputs(result: CyclicField, folder: str | os.PathLike, *, figures: bool = True,
-                         top_bands: int = 10) -> list[Path]:
-    """Write tables, fields, pictures and a summary (assumptions and caution) into ``folder``.
-
-    Files: ``bands.csv`` (ranked), ``grain_response.csv``, ``history.csv``, ``fields.npz``
-    (``accumulated_slip``, ``slip_range``, ``fip``, ``labels``, ``compliant``), ``fip_bands.png``,
-    ``hysteresis.png`` and ``summary.md``. Every file goes through a temporary name.
-
-    Returns
-    -------
-    list of Path
-    """
-    from ._files import atomic_path
-    from .report import write_summary, write_table
-
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    paths = [write_table(result.bands, folder / "bands.csv"),
-             write_table(result.grain_response, folder / "grain_response.csv"),
-             write_table(result.history, folder / "history.csv")]
-    with atomic_path(folder / "fields.npz") as tmp:
-        with open(tmp, "wb") as fh:
-            np.savez_compressed(fh, accumulated_slip=result.accumulated_slip, slip_range=result.slip_range,
-                                fip=result.fip, labels=result.labels, compliant=result.compliant)
-    paths.append(folder / "fields.npz")
-    if figures:
-        from .figures._common import save_figure
-        from .figures.cyclic import plot_fip_bands, plot_hysteresis
-
-        save_figure(plot_fip_bands(result, top=top_bands), folder / "fip_bands.png")
-        save_figure(plot_hysteresis(result), folder / "hysteresis.png")
-        paths += [folder / "fip_bands.png", folder / "hysteresis.png"]
-    s = result.settings
-    solid = ~result.compliant
-    counts = result.grain_response["response"].value_counts().to_dict() if len(result.grain_response) else {}
-    lines = [
-        f"Control: {s['control']}, amplitude {s['amplitude']:g}, load from {s['min_load']:g} to {s['max_load']:g} "
-        f"({'MPa' if s['control'] == 'stress' else 'strain'}), ratio {s.get('ratio', 0.0):g}, "
-        f"{s['cycles']} cycle(s) after the first loading.",
-        f"Solver: {s['increments']} increments, {s['newton_iterations']} Newton and {s['cg_iterations']} CG "
-        f"iterations, {s['cutbacks']} cut-backs (tolerance {s['tol']:g}).",
-        f"Accumulated slip over solid points: mean {result.accumulated_slip[solid].mean():.3e}, "
-        f"max {result.accumulated_slip[solid].max():.3e}.",
-        f"FIP (Fatemi–Socie, k = {s['fip_k']:g}, σ_y = {s['yield_stress_mpa']:g} MPa): max {result.fip.max():.3e}.",
-        f"Grain responses: {', '.join(f'{v} {k}' for k, v in counts.items()) or 'none'}.",
-    ]
-    if s.get("crack_tip_um"):
-        lines.append(f"Crack cut in as a slit, tip at ({s['crack_tip_um'][0]:.1f}, {s['crack_tip_um'][1]:.1f}) µm.")
-    if len(result.bands):
-        lines += ["", f"Top {min(top_bands, len(result.bands))} slip bands by mean FIP:", ""]
-        for _, b in result.bands.head(top_bands).iterrows():
-            lines.append(f"{int(b['rank'])}. grain {int(b['grain'])}, {b['label']} ({b['family']}), band "
-                         f"{int(b['band'])} at ({b['x_um']:.1f}, {b['y_um']:.1f}) µm: FIP {b['fip_mean']:.3e}")
-    lines += ["", "Assumptions: " + result.assumptions]
-    paths.append(write_summary(folder, "Cyclic crystal plasticity", lines))
-    return paths

@@ -8,9 +8,9 @@ import math
 import numpy as np
 import pandas as pd
 
-from . import _cyclic_kernels as _ck
-from .errors import ParameterError
-from .orientation import matrix_from_quat
+from slipnet.crystal.orientation import matrix_from_quat
+from slipnet.errors import ParameterError
+from slipnet.stress import _cyclic_kernels as _ck
 
 
 # ---------------------------------------------------------------------------- crack

@@ -1,4 +1,4 @@
-"""numba kernels of the cyclic crystal-plasticity solver (private; see :mod:`slipnet.cyclic`).
+"""numba kernels of the cyclic crystal-plasticity solver (private; see :mod:`slipnet.stress.cyclic`).
 
 Layout follows the elastic spectral kernels: fields ``(6, N)`` in Mandel notation (component
 first), per-point matrices ``(N, 6, 6)``, per-system state ``(N, n_systems)``.
@@ -31,8 +31,8 @@ import math
 import numba as nb
 import numpy as np
 
-from ._orientation_kernels import quat_to_matrix_single
-from ._stress_kernels import MANDEL_PAIRS, mandel_rotation_single
+from slipnet.crystal.orientation_kernels import quat_to_matrix_single
+from slipnet.stress._kernels import MANDEL_PAIRS, mandel_rotation_single
 
 # indices into the float parameter vector
 K_RATE, N_EXP, C_AF, D_AF, Q_VOCE, B_VOCE, THETA, Z_FLOOR, ATOL, RTOL, MAX_STEP = range(11)
