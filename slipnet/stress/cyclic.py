@@ -165,7 +165,8 @@ class CyclicField:
     history : pandas.DataFrame
         One row per increment: ``increment``, ``cycle`` (0 = first loading), ``segment`` (``ramp``,
         ``unload``, ``reload``), ``time_s``, ``load``, ``stress_mpa`` and ``strain`` (mean along the load
-        axis: the macroscopic hysteresis loop), ``plastic_strain``, ``max_slip_increment``,
+        axis: the macroscopic hysteresis loop, means over the periodic cell including any free gap or
+        buffer added beyond the edges), ``plastic_strain``, ``max_slip_increment``,
         ``newton_iterations``, ``cg_iterations``.
     settings : dict
         The inputs and solver totals.
