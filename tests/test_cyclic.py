@@ -511,3 +511,15 @@ def test_grain_mean_slip_converges_under_step_halving_and_grid_refinement():
     for key in ((100, 2.5e-4), (200, 5e-4)):
         gm, _ = runs[key]
         assert np.sqrt(np.sum(w * (gm - ref) ** 2) / np.sum(w * ref**2)) < 0.05, key
+
+
+def test_hexagonal_grid_runs_with_crack_and_boundary_layer():
+    labels = periodic_voronoi(20, 5, seed=7)
+    gq = random_quats(5, seed=8)
+    omap = OrientationMap(gq[labels], np.zeros((20, 20), int), np.ones((20, 20)), np.ones((20, 20), bool), 1.0,
+                          grid="hex")
+    res = solve_cyclic(omap, [0, 1, 0], stress_amplitude=200.0, cycles=1, grains=_Grains(labels, gq),
+                       crack=[[0.0, 8.0], [6.0, 8.0]], boundary_width_um=1.0)
+    assert np.isfinite(res.fip).all() and res.accumulated_slip.max() > 0
+    assert res.crack_mask.sum() >= 6 and (res.boundary_partner >= 0).any()
+    assert res.history["stress_mpa"].iloc[-1] == pytest.approx(200.0, rel=1e-4)
