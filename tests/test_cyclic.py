@@ -231,6 +231,24 @@ def test_rate_dependent_flow_stress_follows_power_law():
     assert out[1] / out[0] == pytest.approx(10.0**0.1, rel=3e-3)
 
 
+def test_strain_control_cycles_between_the_imposed_strains():
+    # mixed control: the mean axial strain follows ±ε_a exactly while the other mean stresses stay 0;
+    # for a material without asymmetry (twinning asymmetry 1) the stabilised loop is symmetric
+    sys1, q, _m = single_slip_case()
+    omap = uniform_map(q)
+    mat = CyclicMaterial(voce_mpa=0.0, backstress_modulus_mpa=20000.0, backstress_recovery=400.0)
+    res = solve_cyclic(omap, AXIS, strain_amplitude=2e-3, cycles=3, material=mat, systems=sys1,
+                       grains=_OneGrain(omap), max_slip_increment=1e-4)
+    last = res.last_cycle()
+    assert last["strain"].max() == pytest.approx(2e-3, rel=1e-9)
+    assert last["strain"].min() == pytest.approx(-2e-3, rel=1e-9)
+    smax, smin = last["stress_mpa"].max(), last["stress_mpa"].min()
+    assert abs(smax + smin) < 0.01 * (smax - smin)
+    np.testing.assert_allclose(res.peak_stress[0, 0], smax * np.outer(AXIS, AXIS), atol=1e-3 * smax)
+    assert res.system_accumulated_slip[0, 0, 0] == pytest.approx(res.accumulated_slip[0, 0])
+    assert res.settings["control"] == "strain"
+
+
 def test_symmetric_loop_closes_after_shakedown_and_mean_stress_ratchets():
     # R = −1: with Armstrong–Frederick the loop stabilises (strain at successive peaks converges);
     # R = 0 under stress control: AF ratchets (its known over-prediction of ratcheting, Chaboche 1989
@@ -460,6 +478,10 @@ def test_outputs_pickle_and_cli(tmp_path, capsys):
     res = solve_cyclic(omap, [0, 1, 0], stress_amplitude=180.0, cycles=1, grains=gr)
     back = pickle.loads(pickle.dumps(res))
     np.testing.assert_array_equal(back.fip, res.fip)
+    # plain inputs, no global state: unpickled inputs give the same numbers (as a Dask worker would)
+    om2, gr2 = pickle.loads(pickle.dumps((omap, gr)))
+    again = solve_cyclic(om2, [0, 1, 0], stress_amplitude=180.0, cycles=1, grains=gr2)
+    np.testing.assert_array_equal(again.accumulated_slip, res.accumulated_slip)
     paths = write_cyclic(res, tmp_path / "lib")
     text = (tmp_path / "lib" / "summary.md").read_text(encoding="utf-8")
     assert CAUTION in text and res.assumptions in text
@@ -523,3 +545,31 @@ def test_hexagonal_grid_runs_with_crack_and_boundary_layer():
     assert np.isfinite(res.fip).all() and res.accumulated_slip.max() > 0
     assert res.crack_mask.sum() >= 6 and (res.boundary_partner >= 0).any()
     assert res.history["stress_mpa"].iloc[-1] == pytest.approx(200.0, rel=1e-4)
+
+
+def test_twinning_asymmetry_and_123_systems():
+    # {112}<111>: positive τ is the twinning sense (slip catalogue); with a reverse-sense CRSS ratio
+    # the steady flow stress in the anti-twinning sense is that ratio times the twinning one (same
+    # power law, Hutchinson 1976), and a compression test on the same crystal shows it
+    asym = slip_systems("bcc", "{112}<111>", twinning_asymmetry=1.3)
+    q = np.array([1.0, 0.0, 0.0, 0.0])
+    s = int(np.argmax(schmid_factors(q, AXIS, asym)))
+    idx = slice(s, s + 1)
+    one = replace(asym, normals=asym.normals[idx], directions=asym.directions[idx], plane_hkl=asym.plane_hkl[idx],
+                  direction_uvw=asym.direction_uvw[idx], families=asym.families[idx], labels=asym.labels[idx],
+                  crss=asym.crss[idx], crss_reverse=asym.crss_reverse[idx], planes=asym.normals[idx],
+                  directions_distinct=asym.directions[idx], plane_index=np.zeros(1, np.int64),
+                  direction_index=np.zeros(1, np.int64))
+    omap = uniform_map(q)
+    mat = CyclicMaterial(rate_exponent=20.0, voce_mpa=0.0, backstress_modulus_mpa=0.0, backstress_recovery=0.0)
+    kw = dict(control="strain", load_time_s=10.0, material=mat, systems=one, grains=_OneGrain(omap),
+              max_slip_increment=2e-4)
+    tension = solve_monotonic(omap, AXIS, 0.01, **kw).history["stress_mpa"].iloc[-1]
+    compression = solve_monotonic(omap, AXIS, -0.01, **kw).history["stress_mpa"].iloc[-1]
+    assert -compression / tension == pytest.approx(1.3, rel=2e-3)
+    # all three BCC families (48 systems) run, and {123} systems take part in the slip
+    omap2, gr = polycrystal(12, 3, seed=4)
+    allsys = slip_systems("bcc", "all")
+    res = solve_cyclic(omap2, [1, 0, 0], stress_amplitude=220.0, cycles=1, grains=gr, systems=allsys)
+    fam = np.asarray(allsys.families)
+    assert res.slip.shape[-1] == 48 and res.system_accumulated_slip[..., fam == "{123}<111>"].sum() > 0

@@ -178,6 +178,8 @@ class CyclicField:
         ``plastic shakedown`` or ``ratcheting``).
     slip : (ny, nx, ns) ndarray
         Signed slip per system at the end.
+    system_accumulated_slip : (ny, nx, ns) ndarray
+        Accumulated slip ``∫|γ̇_α| dt`` per system.
     system_slip_range, system_fip, peak_backstress : (ny, nx, ns) ndarray
         Per system: last-cycle slip range, FIP, and the backstress χ at the final (peak) load, MPa.
     peak_stress, plastic_strain : (ny, nx, 3, 3) ndarray
@@ -204,6 +206,7 @@ class CyclicField:
     assumptions: str
     grain_response: pd.DataFrame
     slip: np.ndarray
+    system_accumulated_slip: np.ndarray
     system_slip_range: np.ndarray
     system_fip: np.ndarray
     peak_backstress: np.ndarray
@@ -745,6 +748,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, ed
         assumptions=assumptions,
         grain_response=resp,
         slip=out.gam.reshape(ny, nx, ns),
+        system_accumulated_slip=out.v.reshape(ny, nx, ns),
         system_slip_range=srange.reshape(ny, nx, ns),
         system_fip=fip_sys.reshape(ny, nx, ns),
         peak_backstress=out.x.reshape(ny, nx, ns),
