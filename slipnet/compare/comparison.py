@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from slipnet.columns import FORECAST_BARRIERS, FORECAST_SITES
 from slipnet.compare.growth_records import dadn_incremental_polynomial, dadn_secant, find_rate_dips
 from slipnet.compare.localisation import (
     band_orientation,
@@ -62,6 +63,10 @@ from slipnet.io.tables import (
 )
 from slipnet.maps.strain import StrainSeries, max_shear_strain
 
+#: The score columns of the forecast tables this module reads.
+SITE_SCORE = FORECAST_SITES[3]
+BARRIER_SCORE = FORECAST_BARRIERS[4]
+
 __all__ = [
     "Comparison",
     "compare_files",
@@ -77,19 +82,19 @@ __all__ = [
 # ======================================================================================= adapters
 def sites_from_forecast(forecast) -> tuple[np.ndarray, np.ndarray]:
     """``(xy (n, 2) µm, score (n,))`` of the predicted localisation sites of a ``CrackForecast``
-    (or a DataFrame with columns ``x``, ``y``, ``score``)."""
+    (or a DataFrame with columns ``x_um``, ``y_um`` and optionally ``site_score_mpa_um``)."""
     sites = forecast.sites if hasattr(forecast, "sites") else forecast
     if sites is None or len(sites) == 0:
         return np.zeros((0, 2)), np.zeros(0)
-    for c in ("x", "y"):
+    for c in ("x_um", "y_um"):
         if c not in sites.columns:
-            raise ParameterError(f"forecast sites should have columns x, y, score; missing {c!r}")
-    score = sites["score"].to_numpy(float) if "score" in sites.columns else np.ones(len(sites))
-    return sites[["x", "y"]].to_numpy(float), score
+            raise ParameterError(f"forecast sites should have columns x_um, y_um, site_score_mpa_um; missing {c!r}")
+    score = sites[SITE_SCORE].to_numpy(float) if SITE_SCORE in sites.columns else np.ones(len(sites))
+    return sites[["x_um", "y_um"]].to_numpy(float), score
 
 
 def path_from_forecast(forecast) -> pd.DataFrame:
-    """The predicted path segments (``x0, y0, x1, y1`` µm) of a ``CrackForecast`` or a segment table."""
+    """The predicted path segments (``x0_um, y0_um, x1_um, y1_um``) of a ``CrackForecast`` or a segment table."""
     path = forecast.path if hasattr(forecast, "path") else forecast
     path_segments(path, "forecast path")
     return path
@@ -98,13 +103,13 @@ def path_from_forecast(forecast) -> pd.DataFrame:
 def predicted_dips_from_growth(growth) -> np.ndarray:
     """Crack lengths (µm) of the predicted growth-rate dips.
 
-    Accepts a DataFrame of dips (column ``crack_length`` or ``crack_length_um``), a growth profile
+    Accepts a DataFrame of dips (column ``crack_length_um``), a growth profile
     or result understood by ``slipnet.growth.predicted_dips``, or an object with a ``dips`` table.
     """
     if growth is None:
         return np.zeros(0)
     table = None
-    if isinstance(growth, pd.DataFrame) and "depth" in growth.columns:
+    if isinstance(growth, pd.DataFrame) and "depth_ratio" in growth.columns:
         table = growth
     elif hasattr(growth, "dips") and isinstance(growth.dips, pd.DataFrame):
         table = growth.dips
@@ -112,21 +117,20 @@ def predicted_dips_from_growth(growth) -> np.ndarray:
         try:
             from slipnet.growth.model import predicted_dips
         except ImportError as err:
-            raise ParameterError("growth should be a dips table (crack_length column) while slipnet.growth "
+            raise ParameterError("growth should be a dips table (crack_length_um column) while slipnet.growth "
                                  "is not available") from err
         table = predicted_dips(growth)
-    for c in ("crack_length_um", "crack_length"):
-        if c in table.columns:
-            return table[c].to_numpy(float)
-    raise ParameterError(f"predicted dips should have a crack_length column; got {list(table.columns)}")
+    if "crack_length_um" in table.columns:
+        return table["crack_length_um"].to_numpy(float)
+    raise ParameterError(f"predicted dips should have a crack_length_um column; got {list(table.columns)}")
 
 
 def growth_profile_from(growth) -> pd.DataFrame | None:
-    """A predicted growth profile (``crack_length`` µm, ``dadn`` µm/cycle, optional ``cycles``) or None."""
+    """A predicted growth profile (``crack_length_um``, ``dadn_um_per_cycle``, optional ``cycles``) or None."""
     if growth is None:
         return None
     prof = growth if isinstance(growth, pd.DataFrame) else getattr(growth, "profile", None)
-    if isinstance(prof, pd.DataFrame) and {"crack_length", "dadn"} <= set(prof.columns):
+    if isinstance(prof, pd.DataFrame) and {"crack_length_um", "dadn_um_per_cycle"} <= set(prof.columns):
         return prof
     return None
 
@@ -171,7 +175,7 @@ def compare_files(strain_path, *, points=None, kind: str = "affine", gg=None, ma
     has_fc = any(t is not None for t in (fc.sites, fc.path, fc.barriers))
     growth = read_growth_folder(growth_folder) if growth_folder is not None else None
     if growth is not None and growth.dips is None:
-        growth = GrowthTables(pd.DataFrame({"crack_length": [], "depth": []}), growth.profile)
+        growth = GrowthTables(pd.DataFrame({"crack_length_um": [], "depth_ratio": []}), growth.profile)
     return compare_forecast(series, forecast=fc if has_fc else None, gg=gg, transform=transform,
                             measured_path=read_measured_path(measured_path) if measured_path else None,
                             growth_record=read_growth_record(record) if record else None, growth=growth, **options)
@@ -211,7 +215,7 @@ class Comparison:
     measured_path : (m, 2) ndarray or None
         Measured crack path polyline (µm, map frame).
     predicted_profile : DataFrame or None
-        Predicted growth profile (``crack_length``, ``dadn``) for the figure.
+        Predicted growth profile (``crack_length_um``, ``dadn_um_per_cycle``) for the figure.
     map_extent : tuple or None
         ``imshow`` extent of the map grid (µm) when a grain graph was given.
     """
@@ -347,23 +351,24 @@ def compare_forecast(series: StrainSeries, *, forecast=None, gg=None, transform:
                 gid = fs["grain"].to_numpy(np.int64)
             else:  # a handful of sites: one lookup each
                 gid = np.array([gg.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
-            per = pd.DataFrame({"grain": gid, "score": pred_score}).query("grain >= 0").groupby("grain")["score"].max()
+            per = pd.DataFrame({"grain": gid, "s": pred_score}).query("grain >= 0").groupby("grain")["s"].max()
             pg = per.reindex(grain_stats["grain"]).fillna(0.0).to_numpy()
             ra = rank_agreement(pg, grain_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
             scores.update({f"grains_{kk}": vv for kk, vv in ra.items()})
     if forecast is not None and boundary_stats is not None and len(boundary_stats):
         measured_b = boundary_stats.set_index("boundary_id")["p90"]
         sites = getattr(forecast, "sites", None)
-        if isinstance(sites, pd.DataFrame) and {"boundary_id", "score"} <= set(sites.columns):
+        if isinstance(sites, pd.DataFrame) and {"boundary_id", SITE_SCORE} <= set(sites.columns):
             # localisation predicted at a boundary: the best site blocked there; boundaries without a site: 0
-            per_b = sites.query("boundary_id >= 0").groupby("boundary_id")["score"].max()
+            per_b = sites.query("boundary_id >= 0").groupby("boundary_id")[SITE_SCORE].max()
             pb = per_b.reindex(measured_b.index).fillna(0.0).to_numpy(float)
             ra = rank_agreement(pb, measured_b.to_numpy(), hot_quantile=hot_quantile)
             scores.update({f"boundaries_{kk}": vv for kk, vv in ra.items()})
         barriers = getattr(forecast, "barriers", None)
-        if isinstance(barriers, pd.DataFrame) and {"boundary_id", "score"} <= set(barriers.columns) and len(barriers):
+        ranked = isinstance(barriers, pd.DataFrame) and {"boundary_id", BARRIER_SCORE} <= set(barriers.columns)
+        if ranked and len(barriers):
             # ranked barriers only (unranked boundaries have no barrier score)
-            b = barriers.groupby("boundary_id")["score"].max()
+            b = barriers.groupby("boundary_id")[BARRIER_SCORE].max()
             ra = rank_agreement(b.reindex(measured_b.index).to_numpy(float), measured_b.to_numpy(),
                                 hot_quantile=hot_quantile)
             scores.update({f"barriers_{kk}": vv for kk, vv in ra.items()})

@@ -14,6 +14,8 @@ import numpy as np
 import pandas as pd
 
 from slipnet._checks import check_choice, check_positive, check_range, check_vector
+from slipnet.columns import FORECAST_SITES
+from slipnet.crystal.slip_systems import plane_label
 from slipnet.errors import ParameterError
 from slipnet.forecast import _kernels as _k
 from slipnet.forecast.barriers import _MAX_SCHMID
@@ -86,16 +88,6 @@ def _line_angle(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     dot = np.abs(np.einsum("...i,...i->...", a, b))
     crs = np.linalg.norm(_cross3(a, b), axis=-1)
     return np.where(ok, np.degrees(np.arctan2(crs, dot)), 0.0)
-
-
-def _miller_label(n: np.ndarray) -> str:
-    v = np.asarray(n, dtype=float)
-    v = v / np.abs(v[np.abs(v) > 1e-6]).min()
-    for k in range(1, 13):
-        w = v * k
-        if np.allclose(w, np.rint(w), atol=1e-3):
-            return "(" + " ".join(str(int(x)) for x in np.rint(w)) + ")"
-    return "(" + " ".join(f"{x:.2f}" for x in n) + ")"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -191,7 +183,9 @@ class _Planes:
         self.plane_of = np.array([uniq.setdefault(k, len(uniq)) for k in keys])
         self.n_planes = len(uniq)
         self.normals = np.array([canon[np.flatnonzero(self.plane_of == p)[0]] for p in range(self.n_planes)])
-        self.labels = [_miller_label(n) for n in self.normals]
+        hkl = np.asarray(systems.plane_hkl, dtype=float) * sign[:, None]
+        first_member = [int(np.flatnonzero(self.plane_of == p)[0]) for p in range(self.n_planes)]
+        self.labels = [plane_label(hkl[i]) for i in first_member]
         self.members = [np.flatnonzero(self.plane_of == p) for p in range(self.n_planes)]
         self.crss = np.asarray(systems.crss, dtype=float)
         # {112} slip is sense-dependent (twinning / anti-twinning); other families are symmetric
@@ -384,9 +378,9 @@ def _run_state(geo: _Geometry, cry: _Crystal, planes: _Planes, st: _State, opts:
                    2: "unindexed", 3: "map_edge"}[status]
             if t > 1e-9:
                 st.segments.append({
-                    "grain": g, "x0": st.x, "y0": st.y, "x1": x1, "y1": y1, "length_um": t,
+                    "grain": g, "x0_um": st.x, "y0_um": st.y, "x1_um": x1, "y1_um": y1, "length_um": t,
                     "s_start_um": st.s, "system": sys_, "plane": planes.labels[p] if p >= 0 else "stage II",
-                    "schmid": float(cry.meff[g, sys_]) if sys_ >= 0 else float(np.max(cry.meff[g])),
+                    "effective_schmid": float(cry.meff[g, sys_]) if sys_ >= 0 else float(np.max(cry.meff[g])),
                     "stage": st.stage, "direction_deg": math.degrees(math.atan2(d[1], d[0])),
                     "leg": kind, "end": end, "branch": st.branch,
                 })
@@ -422,7 +416,7 @@ def _cross(geo, cry, planes, st: _State, g: int, lab: int, sys_in: int, d: np.nd
         sc = _crossing_scores(cry, planes, g, -1, lab, ang, opts)
         mp_best = float(np.max(cry.m_prime_row(g, sys_in_eff, lab)))
         best = int(np.argmax(sc["score"]))
-        row = {"grain_a": g, "grain_b": lab, "x": st.x, "y": st.y, "distance_um": st.s, "system_in": -1,
+        row = {"grain_a": g, "grain_b": lab, "x_um": st.x, "y_um": st.y, "distance_um": st.s, "system_in": -1,
                "twist_deg": 0.0, "tilt_deg": 0.0, "m_prime": mp_best,
                "schmid_in": float(cry.meff[g, sys_in_eff]), "schmid_out": float(np.max(cry.meff[lab])),
                "system_out": -1, "plane_out": "stage II", "n_close": 0}
@@ -454,7 +448,7 @@ def _cross(geo, cry, planes, st: _State, g: int, lab: int, sys_in: int, d: np.nd
 
 def _crossing_row(bid, g, lab, st, sc, p, cry, sys_in, planes) -> dict:
     return {
-        "boundary_id": bid, "grain_a": g, "grain_b": lab, "x": st.x, "y": st.y, "distance_um": st.s,
+        "boundary_id": bid, "grain_a": g, "grain_b": lab, "x_um": st.x, "y_um": st.y, "distance_um": st.s,
         "twist_deg": float(sc["twist"][p]), "tilt_deg": float(sc["tilt"][p]), "m_prime": float(sc["m_prime"][p]),
         "schmid_in": float(cry.meff[g, sys_in]) if sys_in >= 0 else float(np.max(cry.meff[g])),
         "schmid_out": float(sc["meff"][p]), "system_in": int(sys_in), "system_out": int(cry.plane_sys[lab, p]),
@@ -507,8 +501,7 @@ def _anchor_points(geo: _Geometry, grains: np.ndarray) -> tuple[np.ndarray, np.n
 def _sites(geo: _Geometry, cry: _Crystal, planes: _Planes, grains: np.ndarray, amplitude: float,
            want_bands: bool = False, max_gap: float = 0.0):
     """Slip bands of ``grains`` and the sites where they end on poorly transmitting boundaries."""
-    cols = ["rank", "x", "y", "score", "grain", "blocking_grain", "boundary_id", "system", "plane",
-            "resolved_shear_mpa", "band_length_um", "transmission"]
+    cols = list(FORECAST_SITES)
     grains = np.asarray(grains, dtype=np.int64)
     if grains.size == 0:
         return pd.DataFrame({c: pd.Series(dtype=float) for c in cols}), None
@@ -542,13 +535,13 @@ def _sites(geo: _Geometry, cry: _Crystal, planes: _Planes, grains: np.ndarray, a
             score = float(tau[k] * band[k] * (1.0 - trans))
             band_w[k] += score
             info = geo.edges.get((min(g, nb_), max(g, nb_)))
-            rows.append({"x": ax[k] + sg * t_out[k, e] * tr[k, 0], "y": ay[k] + sg * t_out[k, e] * tr[k, 1],
-                         "score": score, "grain": g, "blocking_grain": nb_,
+            rows.append({"x_um": ax[k] + sg * t_out[k, e] * tr[k, 0], "y_um": ay[k] + sg * t_out[k, e] * tr[k, 1],
+                         "site_score_mpa_um": score, "grain": g, "blocking_grain": nb_,
                          "boundary_id": info[0] if info else -1, "system": s, "plane": planes.labels[int(p[k])],
                          "resolved_shear_mpa": float(tau[k]), "band_length_um": float(band[k]),
-                         "transmission": trans})
+                         "transmission_score": trans})
     df = pd.DataFrame(rows, columns=cols[1:])
-    df = df.sort_values("score", ascending=False, kind="stable").reset_index(drop=True)
+    df = df.sort_values("site_score_mpa_um", ascending=False, kind="stable").reset_index(drop=True)
     df.insert(0, "rank", np.arange(1, len(df) + 1))
     bands = None
     if want_bands:

@@ -32,6 +32,7 @@ import pandas as pd
 from scipy import integrate
 
 from slipnet._checks import check_positive, check_range
+from slipnet.columns import GROWTH_DIPS
 from slipnet.errors import NumericalError, ParameterError
 from slipnet.growth.path import GrowthPath, path_from_forecast, path_from_tables
 
@@ -379,14 +380,14 @@ class GrowthResult:
     Attributes
     ----------
     profile
-        DataFrame, one row per crack length: ``crack_length`` (µm along the path), ``cycles`` (inf
-        after arrest), ``dadn`` (µm/cycle), ``ctsd_um``, ``zone_end_um``, ``n_ratio``, ``zone_state``
+        DataFrame, one row per crack length: ``crack_length_um`` (along the path), ``cycles`` (inf
+        after arrest), ``dadn_um_per_cycle``, ``ctsd_um``, ``zone_end_um``, ``n_ratio``, ``zone_state``
         ("spreading" | "blocked" | "arrested"), ``barrier`` (index of the blocking barrier or −1),
         ``grain`` (grain id, or the grain index along the path when ids are unknown), ``arrested``.
     barriers
         DataFrame per barrier: ``barrier``, ``position_um``, ``critical_stress_mpa``,
         ``threshold_amplitude_mpa``, ``pass_amplitude_mpa`` (needed to pass it and all before),
-        ``crossing_length_um`` (inf where arrested), ``dip_length_um``, ``dip_depth``, ``arrest`` and
+        ``crossing_length_um`` (inf where arrested), ``dip_length_um``, ``dip_depth_ratio``, ``arrest`` and
         the path factors.
     dips
         :func:`predicted_dips` of the profile.
@@ -451,9 +452,9 @@ def _profile_frame(path: GrowthPath, a: np.ndarray, st: dict, cycles: np.ndarray
     grain = np.where(path.grains[gidx] >= 0, path.grains[gidx], gidx)
     state = np.where(st["arrested"], ARRESTED, np.where(st["blocked"], BLOCKED, SPREADING))
     return pd.DataFrame({
-        "crack_length": a,
+        "crack_length_um": a,
         "cycles": cycles,
-        "dadn": st["dadn"],
+        "dadn_um_per_cycle": st["dadn"],
         "ctsd_um": st["ctsd"],
         "zone_end_um": st["zone_end"],
         "n_ratio": st["n_ratio"],
@@ -563,11 +564,11 @@ def simulate_growth(
     table["crossing_length_um"] = x
     table["arrest"] = ~np.isfinite(x) & (np.arange(x.size) == (np.argmax(~np.isfinite(x)) if x.size else 0))
     table["dip_length_um"] = np.nan
-    table["dip_depth"] = np.nan
+    table["dip_depth_ratio"] = np.nan
     if len(dips):
         idx = dips["barrier"].to_numpy()
-        table.loc[idx, "dip_length_um"] = dips["crack_length"].to_numpy()
-        table.loc[idx, "dip_depth"] = dips["depth"].to_numpy()
+        table.loc[idx, "dip_length_um"] = dips["crack_length_um"].to_numpy()
+        table.loc[idx, "dip_depth_ratio"] = dips["depth_ratio"].to_numpy()
     arrest = np.flatnonzero(~np.isfinite(x))
     arrest_len = float(d[arrest[0]]) if arrest.size and d[arrest[0]] <= a1 else math.inf
 
@@ -597,8 +598,8 @@ def growth_profile(
     Returns
     -------
     DataFrame
-        ``crack_length`` (µm along the path from its start, the strip-yield half-length a),
-        ``cycles`` (counts from ``initial_length``; ``inf`` once arrested), ``dadn`` (µm/cycle),
+        ``crack_length_um`` (along the path from its start, the strip-yield half-length a),
+        ``cycles`` (counts from ``initial_length``; ``inf`` once arrested), ``dadn_um_per_cycle``,
         ``grain``, ``zone_state``, ``n_ratio``, ``barrier``, ``ctsd_um``, ``zone_end_um``, ``arrested``.
     """
     return simulate_growth(forecast_or_path, stress_amplitude, friction_stress=friction_stress,
@@ -611,7 +612,7 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
 
     For each barrier k the zone was blocked at, the dip is the lowest rate after the rate's peak while
     blocked there (the rate falls as the tip nears the barrier, Navarro & de los Rios 1988); its
-    ``depth`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
+    ``depth_ratio`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
     crack arrests at k). Barriers still blocking at the end of the profile are left out.
 
     Parameters
@@ -622,16 +623,17 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
     Returns
     -------
     DataFrame
-        ``barrier`` (index), ``crack_length`` (µm at the dip minimum), ``dadn_min``, ``dadn_peak``
-        (highest rate while blocked), ``dadn_after`` (µm/cycle), ``depth``, ``crossing_length_um``
+        ``barrier`` (index), ``crack_length_um`` (at the dip minimum), ``dadn_min_um_per_cycle``,
+        ``dadn_peak_um_per_cycle`` (highest rate while blocked), ``dadn_after_um_per_cycle``,
+        ``depth_ratio``, ``crossing_length_um``
         (inf when arrested), ``arrest`` (bool).
     """
     prof = profile_or_result.profile if isinstance(profile_or_result, GrowthResult) else profile_or_result
-    need = {"crack_length", "dadn", "barrier", "zone_state"}
+    need = {"crack_length_um", "dadn_um_per_cycle", "barrier", "zone_state"}
     if not need.issubset(prof.columns):
         raise ParameterError(f"profile should have columns {sorted(need)}; got {list(prof.columns)}")
-    a = prof["crack_length"].to_numpy(float)
-    r = prof["dadn"].to_numpy(float)
+    a = prof["crack_length_um"].to_numpy(float)
+    r = prof["dadn_um_per_cycle"].to_numpy(float)
     b = prof["barrier"].to_numpy(np.int64)
     state = prof["zone_state"].to_numpy()
     pos = np.arange(a.size)
@@ -656,10 +658,10 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
             else:
                 after, cross = r[last + 1], a[last + 1]
                 depth = r[i_min] / after if after > 0 else math.nan
-            rows.append({"barrier": int(k), "crack_length": a[i_min], "dadn_min": r[i_min], "dadn_peak": r[i_peak],
-                         "dadn_after": after, "depth": depth, "crossing_length_um": cross, "arrest": arrest})
-    cols = ["barrier", "crack_length", "dadn_min", "dadn_peak", "dadn_after", "depth", "crossing_length_um", "arrest"]
-    return pd.DataFrame(rows, columns=cols)
+            rows.append({"barrier": int(k), "crack_length_um": a[i_min], "dadn_min_um_per_cycle": r[i_min],
+                         "dadn_peak_um_per_cycle": r[i_peak], "dadn_after_um_per_cycle": after, "depth_ratio": depth,
+                         "crossing_length_um": cross, "arrest": arrest})
+    return pd.DataFrame(rows, columns=list(GROWTH_DIPS))
 
 
 # --------------------------------------------------------------------------------------------
@@ -724,9 +726,9 @@ def _bands(paths: list[GrowthPath], s: float, p: GrowthParameters, a: np.ndarray
         idx = np.searchsorted(dense, a)
         cyc[i] = nd[idx]
         rate[i] = st["dadn"][idx]
-    out = {"crack_length": a}
+    out = {"crack_length_um": a}
     for q in (5, 50, 95):
         # "inverted_cdf" picks sample values, so arrested (inf) samples never produce NaN
         out[f"cycles_p{q:02d}"] = np.percentile(cyc, q, axis=0, method="inverted_cdf")
-        out[f"dadn_p{q:02d}"] = np.percentile(rate, q, axis=0, method="inverted_cdf")
+        out[f"dadn_um_per_cycle_p{q:02d}"] = np.percentile(rate, q, axis=0, method="inverted_cdf")
     return pd.DataFrame(out)
