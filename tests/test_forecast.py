@@ -454,7 +454,7 @@ def test_write_forecast_outputs_and_caution(tmp_path, bicrystal_gg):
 def test_private_numpy_rotations_match_the_orientation_module():
     from slipnet.crystal import matrix_from_quat, quat_multiply
     from slipnet.crystal.perturb import _qmul
-    from slipnet.forecast._core import _matrices
+    from slipnet.forecast._geometry import _matrices
 
     a, b = random_quats(20, seed=1), random_quats(20, seed=2)
     assert _matrices(a) == pytest.approx(matrix_from_quat(a), abs=1e-12)
@@ -579,7 +579,7 @@ def test_rank_barriers_of_nothing_is_an_empty_table():
 
 
 def test_geometry_is_cached_per_graph(bicrystal_gg, poly_gg):
-    from slipnet.forecast._core import geometry_of
+    from slipnet.forecast._geometry import geometry_of
 
     a = geometry_of(bicrystal_gg)
     assert geometry_of(bicrystal_gg) is a

@@ -6,14 +6,9 @@ import numpy as np
 import pandas as pd
 
 from slipnet.columns import FORECAST_ALTERNATIVES, SEGMENT_XY
-from slipnet.forecast._core import (
-    _Crystal,
-    _distance_to_segments,
-    _field,
-    _Opts,
-    _sites,
-    _trace_all,
-)
+from slipnet.forecast._core import _distance_to_segments, _Opts, _trace_all
+from slipnet.forecast._geometry import _Crystal
+from slipnet.forecast._sites import _field, _sites
 from slipnet.forecast.barriers import rank_barriers
 
 

@@ -13,7 +13,7 @@ from slipnet.crystal.perturb import perturb_sample
 from slipnet.crystal.slip_systems import effective_schmid, schmid_factors, slip_systems
 from slipnet.errors import SlipnetError
 from slipnet.forecast.crack import forecast_crack
-from slipnet.growth.model import GrowthParameters, simulate_growth
+from slipnet.growth import GrowthParameters, simulate_growth
 from slipnet.notch.kt import full_field_kt, notch_stress_factor, peterson_kt
 from slipnet.notch.settings import OBJECTIVES, Candidate, PlanSettings
 

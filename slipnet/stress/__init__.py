@@ -4,18 +4,21 @@ crystal plasticity.
 
 from __future__ import annotations
 
-from slipnet.stress.elastic import (
+from slipnet.stress.constants import (
     AUSTENITE_CONSTANTS,
+    DEFAULT_CONSTANTS,
     IRON_CONSTANTS,
     CubicConstants,
-    StressField,
-    assumptions_text,
     directional_modulus,
     from_mandel,
     rotate_stiffness,
-    solve_elastic,
     to_mandel,
     voigt_reuss_hill,
+)
+from slipnet.stress.elastic import (
+    StressField,
+    assumptions_text,
+    solve_elastic,
 )
 from slipnet.stress.local import (
     default_systems,
@@ -33,6 +36,7 @@ from slipnet.stress.plasticity import (
 
 __all__ = [
     "AUSTENITE_CONSTANTS",
+    "DEFAULT_CONSTANTS",
     "IRON_CONSTANTS",
     "CubicConstants",
     "PlasticField",
