@@ -100,5 +100,5 @@ def perturb_sample(rng: np.random.Generator, quats, orientation_deg: float, axis
     """
     q = perturb_orientations(quats, orientation_deg, rng)
     ax = perturb_axis(axis, axis_deg, rng)
-    d = rng.normal(0.0, point_um, size=2) if point_um > 0 else rng.normal(size=2) * 0.0
+    d = rng.normal(0.0, point_um, size=2) if point_um > 0 else 0.0 * rng.normal(size=2) + 0.0
     return q, ax, d
