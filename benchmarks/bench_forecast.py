@@ -28,7 +28,7 @@ import numpy as np
 
 from slipnet.crystal import effective_schmid, schmid_factors, slip_systems
 from slipnet.forecast import forecast_crack
-from slipnet.forecast._core import _GEOMETRY_CACHE
+from slipnet.forecast._geometry import _GEOMETRY_CACHE
 from slipnet.grains import build_grain_graph
 from slipnet.synthetic import make_specimen
 

@@ -50,7 +50,7 @@ def main() -> None:
     times, tables = {}, {}
     for w in (1, 2):
         t0 = time.perf_counter()
-        tables[w] = b.time_sweep(w, args.scheduler)
+        tables[w] = b.time_sweep(w, args.scheduler).table
         times[w] = time.perf_counter() - t0
     pd.testing.assert_frame_equal(tables[1], tables[2])
     n = len(tables[1])

@@ -31,7 +31,8 @@ from _timing import best_time  # benchmarks/ is the script's folder, so on sys.p
 
 from slipnet.stress import _kernels as _k
 from slipnet.stress import solve_elastic, to_mandel
-from slipnet.stress.elastic import _numba_threads, _prepare, _Spectral
+from slipnet.stress._threads import _numba_threads
+from slipnet.stress.elastic import _prepare, _Spectral
 from slipnet.synthetic import make_specimen
 
 

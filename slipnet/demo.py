@@ -162,7 +162,7 @@ def _step_notch(ctx: dict) -> None:
     best = plan.table.iloc[0]
     ctx.setdefault("notes", []).append(
         f"Notch plan: {len(plan.table)} candidate positions along the right edge; best root at "
-        f"({best['x']:.0f}, {best['y']:.0f}) µm, score {best['score']:.2f} (notch/).")
+        f"({best['root_x_um']:.0f}, {best['root_y_um']:.0f}) µm, plan score {best['plan_score']:.2f} (notch/).")
 
 
 def _step_compare(ctx: dict) -> None:

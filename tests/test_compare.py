@@ -341,7 +341,7 @@ def test_rank_agreement_against_references():
 
 
 def test_path_scores_hand_case_and_hausdorff_reference():
-    pred = pd.DataFrame({"x0": [0.0, 10.0], "y0": [0.0, 0.0], "x1": [10.0, 20.0], "y1": [0.0, 0.0]})
+    pred = pd.DataFrame({"x0_um": [0.0, 10.0], "y0_um": [0.0, 0.0], "x1_um": [10.0, 20.0], "y1_um": [0.0, 0.0]})
     meas = np.array([[0.0, 1.0], [20.0, 1.0]])
     r = score_path(pred, meas, 1.5)
     assert r["mean_distance_um"] == pytest.approx(1.0)
@@ -357,7 +357,7 @@ def test_path_scores_hand_case_and_hausdorff_reference():
     assert r2["max_distance_um"] == pytest.approx(ref, abs=0.01)
     assert r2["share_within_tol"] == pytest.approx(11.0 / 16.0, abs=0.01)
     with pytest.raises(ParameterError, match="x0, y0, x1, y1"):
-        score_path(pred.drop(columns="y1"), meas, 1.0)
+        score_path(pred.drop(columns="y1_um"), meas, 1.0)
 
 
 def test_band_direction_scores_mod_180():
@@ -433,9 +433,10 @@ def test_dips_found_and_matched():
 
 
 def test_adapters():
-    dips = pd.DataFrame({"crack_length": [12.0, 30.0], "depth": [0.5, 0.2]})
+    dips = pd.DataFrame({"crack_length_um": [12.0, 30.0], "depth_ratio": [0.5, 0.2]})
     assert predicted_dips_from_growth(dips).tolist() == [12.0, 30.0]
-    xy, s = sites_from_forecast(SimpleNamespace(sites=pd.DataFrame({"x": [1.0], "y": [2.0], "score": [3.0]})))
+    sites = pd.DataFrame({"x_um": [1.0], "y_um": [2.0], "site_score_mpa_um": [3.0]})
+    xy, s = sites_from_forecast(SimpleNamespace(sites=sites))
     assert xy.tolist() == [[1.0, 2.0]] and s.tolist() == [3.0]
 
 
@@ -450,9 +451,9 @@ def _scenario(tmp_path=None):
         grain_at=lambda x, y: int(labels[round(y), round(x)]) if 0 <= x < 80 and 0 <= y < 60 else -1,
         mean_quats=np.array([[1.0, 0, 0, 0], [1.0, 0, 0, 0]]),
     )
-    sites = pd.DataFrame({"x": [20.0, 55.0, 70.0], "y": [20.0, 40.0, 10.0], "score": [3.0, 2.0, 1.0]})
-    path = pd.DataFrame({"x0": [5.0, 40.0], "y0": [30.0, 30.0], "x1": [40.0, 75.0], "y1": [30.0, 35.0]})
-    barriers = pd.DataFrame({"boundary_id": [0], "score": [1.0]})
+    sites = pd.DataFrame({"x_um": [20.0, 55.0, 70.0], "y_um": [20.0, 40.0, 10.0], "site_score_mpa_um": [3.0, 2.0, 1.0]})
+    path = pd.DataFrame({"x0_um": [5.0, 40.0], "y0_um": [30.0, 30.0], "x1_um": [40.0, 75.0], "y1_um": [30.0, 35.0]})
+    barriers = pd.DataFrame({"boundary_id": [0], "barrier_score": [1.0]})
     forecast = SimpleNamespace(sites=sites, path=path, barriers=barriers)
     bands = pd.DataFrame({"x_um": [20.0, 55.0], "y_um": [20.0, 40.0], "angle_deg": [30.0, 120.0],
                           "amplitude": [0.04, 0.03], "length_um": [6.0, 6.0], "width_um": [1.0, 1.0]})
@@ -469,7 +470,7 @@ def test_compare_forecast_on_a_synthetic_measurement(tmp_path):
     rec = synthetic_growth_record(None, n_readings=80, noise_um=0.0, dips_um=(40.0,), seed=0)
     comp = compare_forecast(sm.series, forecast=forecast, gg=gg, transform=tr, window=5,
                             peak_threshold=0.008, peak_distance_um=5.0, site_tol_um=3.0, measured_path=mpath,
-                            growth_record=rec, growth=pd.DataFrame({"crack_length": [40.5], "depth": [0.3]}))
+                            growth_record=rec, growth=pd.DataFrame({"crack_length_um": [40.5], "depth_ratio": [0.3]}))
     sc = comp.scores
     # two of three predicted sites carry an imposed band: precision 2/3, recall 1
     assert sc["sites_true_positives"] == 2 and sc["sites_precision"] == pytest.approx(2 / 3)

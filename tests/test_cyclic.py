@@ -476,6 +476,10 @@ def test_outputs_pickle_and_cli(tmp_path, capsys):
 
     omap, gr = polycrystal(16, 4, seed=8)
     res = solve_cyclic(omap, [0, 1, 0], stress_amplitude=180.0, cycles=1, grains=gr)
+    from slipnet.stress.cyclic import BAND_COLUMNS, GRAIN_RESPONSE_COLUMNS, HISTORY_COLUMNS
+
+    assert tuple(res.history.columns) == HISTORY_COLUMNS and tuple(res.bands.columns) == BAND_COLUMNS
+    assert tuple(res.grain_response.columns) == GRAIN_RESPONSE_COLUMNS
     back = pickle.loads(pickle.dumps(res))
     np.testing.assert_array_equal(back.fip, res.fip)
     # plain inputs, no global state: unpickled inputs give the same numbers (as a Dask worker would)

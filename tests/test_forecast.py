@@ -132,14 +132,14 @@ def test_bicrystal_path_follows_hand_computed_traces(bicrystal_gg):
     assert list(p["grain"]) == [0, 1]
     # left grain (identity): trace of (011) is n × z ∝ (1, 0, 0): straight along +x at y = 20
     assert p["direction_deg"].iloc[0] == pytest.approx(0.0, abs=1e-9)
-    assert p["y1"].iloc[0] == pytest.approx(20.0)
-    assert p["plane"].iloc[0] == "(0 1 1)"
+    assert p["y1_um"].iloc[0] == pytest.approx(20.0)
+    assert p["plane"].iloc[0] == "(011)"
     # the boundary lies between columns 39 and 40 (x = 39.5 µm)
-    assert p["x1"].iloc[0] == pytest.approx(39.5, abs=0.05)
+    assert p["x1_um"].iloc[0] == pytest.approx(39.5, abs=0.05)
     # right grain: plane normal d = [11-1]/√3 in the sample frame, trace d × z ∝ (1, -1, 0): -45°
     assert p["direction_deg"].iloc[1] == pytest.approx(-45.0, abs=1e-6)
-    assert p["plane"].iloc[1] == "(0 1 1)"  # the same crystal plane
-    assert p["schmid"].to_numpy() == pytest.approx([0.5, 0.5])
+    assert p["plane"].iloc[1] == "(011)"  # the same crystal plane
+    assert p["effective_schmid"].to_numpy() == pytest.approx([0.5, 0.5])
     assert fc.stop_reason == "map_edge"
     # twist/tilt at the boundary by hand (Zhai et al. 2000 definitions), n_gb = (-1, 0, 0):
     # l_in = n × n_gb ∝ (0,-1,1), l_out = d × n_gb ∝ (0,1,1): perpendicular → twist 90°;
@@ -169,7 +169,7 @@ def test_crossing_values_match_slip_and_transmission_modules(poly_gg):
     q = poly_gg.mean_quats
     eff = effective_schmid(schmid_factors(q, (0.0, 1.0, 0.0), systems), systems)
     for r in fc.path.itertuples():
-        assert r.schmid == pytest.approx(eff[r.grain, r.system])
+        assert r.effective_schmid == pytest.approx(eff[r.grain, r.system])
     for r in fc.crossings[fc.crossings["branch"] == 0].itertuples():
         # |m′| from slipnet.transmission (Luster & Morris 1995) for the same system pair
         mp = m_prime(q[r.grain_a], q[r.grain_b], systems)
@@ -178,7 +178,7 @@ def test_crossing_values_match_slip_and_transmission_modules(poly_gg):
         assert r.boundary_id == edge["boundary_id"]
     # the first segment takes the plane of the highest effective factor in the tip grain
     g0 = fc.path["grain"].iloc[0]
-    assert fc.path["schmid"].iloc[0] == pytest.approx(eff[g0].max())
+    assert fc.path["effective_schmid"].iloc[0] == pytest.approx(eff[g0].max())
 
 
 def test_zigzag_alternates_between_tied_planes():
@@ -197,7 +197,7 @@ def test_zigzag_alternates_between_tied_planes():
     dirs = legs["direction_deg"].to_numpy()
     assert np.all(dirs[:-1] != dirs[1:])  # alternating traces
     assert np.all(np.abs(dirs) < 90.0)  # always forward
-    assert fc.path["schmid"].to_numpy() == pytest.approx(1.0 / math.sqrt(6.0))
+    assert fc.path["effective_schmid"].to_numpy() == pytest.approx(1.0 / math.sqrt(6.0))
 
 
 def test_stage_two_runs_normal_to_the_in_plane_load(bicrystal_gg):
@@ -235,7 +235,7 @@ def test_identical_orientations_are_no_barrier():
     w = BarrierWeights()
     expect = w.boundary_class * CLASS_FACTORS["subgrain"] / (w.twist + w.transmission + w.boundary_class
                                                             + w.schmid_drop)
-    assert b["score"] == pytest.approx(expect)
+    assert b["barrier_score"] == pytest.approx(expect)
     # the straight trace carries on through the boundary unchanged
     assert fc.path["direction_deg"].nunique() == 1
 
@@ -245,7 +245,7 @@ def test_ninety_degree_twist_ranks_highest_in_a_constructed_set():
 
     rows = [{"boundary_id": k, "grain_a": k, "grain_b": k + 1, "twist_deg": tw, "tilt_deg": 10.0, "m_prime": 0.5,
              "schmid_in": 0.45, "schmid_out": 0.45, "boundary_class": "high_angle", "distance_um": 10.0,
-             "misorientation_deg": 40.0, "x": 0.0, "y": 0.0, "branch": 0}
+             "misorientation_deg": 40.0, "x_um": 0.0, "y_um": 0.0, "branch": 0}
             for k, tw in enumerate([0.0, 90.0, 30.0, 60.0, 15.0])]
     ranked = rank_barriers(pd.DataFrame(rows))
     assert list(ranked["twist_deg"]) == [90.0, 60.0, 30.0, 15.0, 0.0]
@@ -254,7 +254,7 @@ def test_ninety_degree_twist_ranks_highest_in_a_constructed_set():
     # every term is in [0, 1] and the score is the documented weighted mean × relevance
     t = ranked.iloc[0]
     wm = (t.term_twist + t.term_transmission + 0.5 * t.term_class + 0.5 * t.term_schmid_drop) / 3.0
-    assert t.score == pytest.approx(wm * t.relevance)
+    assert t.barrier_score == pytest.approx(wm * t.relevance)
 
 
 def test_end_to_end_high_twist_boundary_outranks_a_low_twist_one(bicrystal_gg):
@@ -267,14 +267,14 @@ def test_end_to_end_high_twist_boundary_outranks_a_low_twist_one(bicrystal_gg):
     hi_fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, **kw)
     lo_fc = forecast_crack(low, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, **kw)
     assert hi_fc.barriers["twist_deg"].iloc[0] > lo_fc.barriers["twist_deg"].iloc[0]
-    assert hi_fc.barriers["score"].iloc[0] > lo_fc.barriers["score"].iloc[0]
+    assert hi_fc.barriers["barrier_score"].iloc[0] > lo_fc.barriers["barrier_score"].iloc[0]
 
 
 def test_distance_decay_of_relevance(poly_gg):
     fc = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 150.0, decay_length_um=40.0)
     b = fc.barriers
     assert b["relevance"].to_numpy() == pytest.approx(np.exp(-b["distance_um"].to_numpy() / 40.0))
-    assert b["score"].is_monotonic_decreasing
+    assert b["barrier_score"].is_monotonic_decreasing
 
 
 # ------------------------------------------------------------------------- sites and field
@@ -285,14 +285,14 @@ def test_site_score_is_shear_times_band_times_untransmitted(bicrystal_gg):
     s = fc.sites[fc.sites["grain"] == 0].iloc[0]
     assert s["blocking_grain"] == 1
     # the band of the left grain (trace along x through the centroid) ends on the boundary at x 39.5
-    assert s["x"] == pytest.approx(39.5, abs=0.05)
+    assert s["x_um"] == pytest.approx(39.5, abs=0.05)
     assert s["band_length_um"] == pytest.approx(40.0, abs=0.1)
     assert s["resolved_shear_mpa"] == pytest.approx(0.5 * 150.0)
     q = bicrystal_gg.mean_quats
     eff_b = effective_schmid(schmid_factors(q[1], L_HAND, systems), systems)
     trans = np.max(m_prime(q[0], q[1], systems)[s["system"]] * eff_b / eff_b.max())
-    assert s["transmission"] == pytest.approx(trans)
-    assert s["score"] == pytest.approx(75.0 * s["band_length_um"] * (1.0 - trans))
+    assert s["transmission_score"] == pytest.approx(trans)
+    assert s["site_score_mpa_um"] == pytest.approx(75.0 * s["band_length_um"] * (1.0 - trans))
     # the field is normalised and peaks on the band of the left grain
     f = fc.field
     assert f.shape == bicrystal_gg.labels.shape and f.max() == pytest.approx(1.0) and f.min() >= 0.0
@@ -355,14 +355,14 @@ def test_tip_on_an_unindexed_point_is_refused_and_unindexed_runs_stop_or_cross()
         forecast_crack(gg, (21.0, 15.0), (0.0, 1.0), L_HAND, 50.0)
     stop = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0)
     assert stop.stop_reason == "unindexed"  # an 8-point run is longer than the default 5-step gap
-    assert stop.path["x1"].iloc[-1] == pytest.approx(19.5, abs=0.05)
+    assert stop.path["x1_um"].iloc[-1] == pytest.approx(19.5, abs=0.05)
     walk = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0, unindexed_gap_um=9.0)
     # the unindexed column splits the left crystal in two grains that the graph does not join: the
     # crossing is recorded where the next grain begins, without a boundary id
-    assert walk.path["x1"].iloc[0] == pytest.approx(27.5, abs=0.3)
+    assert walk.path["x1_um"].iloc[0] == pytest.approx(27.5, abs=0.3)
     assert walk.crossings["boundary_id"].iloc[0] == -1 and walk.length_um > 30.0
     cross = forecast_crack(gg, (5.0, 15.0), (1.0, 0.0), L_HAND, 100.0, zigzag_tol=0.0, unindexed="cross")
-    assert cross.length_um > 30.0 and cross.path["x1"].max() > 40.0
+    assert cross.length_um > 30.0 and cross.path["x1_um"].max() > 40.0
 
 
 def test_tip_on_a_boundary_starts_in_the_grain_it_faces(bicrystal_gg):
@@ -412,7 +412,7 @@ def test_monte_carlo_is_seeded_and_bounded(poly_gg):
     b = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 80.0, seed=4, **kw)
     c = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 80.0, seed=5, **kw)
     assert a.samples.equals(b.samples)
-    assert not a.samples[["tip_x", "load_x"]].equals(c.samples[["tip_x", "load_x"]])
+    assert not a.samples[["tip_x_um", "load_x"]].equals(c.samples[["tip_x_um", "load_x"]])
     for col in ("p_on_path", "p_top_k"):
         assert a.barriers[col].between(0, 1).all()
     assert a.sites["p_present"].between(0, 1).all()
@@ -453,8 +453,8 @@ def test_write_forecast_outputs_and_caution(tmp_path, bicrystal_gg):
 
 def test_private_numpy_rotations_match_the_orientation_module():
     from slipnet.crystal import matrix_from_quat, quat_multiply
-    from slipnet.forecast._core import _matrices
-    from slipnet.forecast.monte_carlo import _qmul
+    from slipnet.crystal.perturb import _qmul
+    from slipnet.forecast._geometry import _matrices
 
     a, b = random_quats(20, seed=1), random_quats(20, seed=2)
     assert _matrices(a) == pytest.approx(matrix_from_quat(a), abs=1e-12)
@@ -470,7 +470,7 @@ def test_stress_field_replaces_the_uniform_schmid_factors(bicrystal_gg):
     fc = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0, stress_field=field, zigzag_tol=0.0)
     local = effective_schmid(grain_schmid_factors(field, bicrystal_gg, systems), systems)
     for r in fc.path.itertuples():
-        assert r.schmid == pytest.approx(local[r.grain, r.system])
+        assert r.effective_schmid == pytest.approx(local[r.grain, r.system])
     assert fc.settings["stress_field"] is True
 
 
@@ -549,7 +549,7 @@ def test_alternative_paths_branch_from_main_path_crossings(poly_gg):
     for b, r in starts.iterrows():
         # each alternative starts where some path (main or earlier branch) crossed a boundary
         c = cross[cross["branch"] == b].iloc[0]
-        assert (r["x0"], r["y0"]) == pytest.approx((c["x"], c["y"]))
+        assert (r["x0_um"], r["y0_um"]) == pytest.approx((c["x_um"], c["y_um"]))
         assert r["grain"] == c["grain_b"]
     assert set(fc.barriers["on_path"]) <= {True, False}
     assert fc.barriers.loc[fc.barriers["on_path"], "branches"].str.split(";").map(lambda b: "0" in b).all()
@@ -573,13 +573,13 @@ def test_rank_barriers_of_nothing_is_an_empty_table():
     import pandas as pd
 
     out = rank_barriers(pd.DataFrame())
-    assert len(out) == 0 and {"rank", "score", "twist_deg", "m_prime"} <= set(out.columns)
+    assert len(out) == 0 and {"rank", "barrier_score", "twist_deg", "m_prime"} <= set(out.columns)
     with pytest.raises(ParameterError, match="decay_length_um"):
         rank_barriers(pd.DataFrame(), decay_length_um=0.0)
 
 
 def test_geometry_is_cached_per_graph(bicrystal_gg, poly_gg):
-    from slipnet.forecast._core import geometry_of
+    from slipnet.forecast._geometry import geometry_of
 
     a = geometry_of(bicrystal_gg)
     assert geometry_of(bicrystal_gg) is a
@@ -588,3 +588,21 @@ def test_geometry_is_cached_per_graph(bicrystal_gg, poly_gg):
     fc1 = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0)
     fc2 = forecast_crack(bicrystal_gg, (5.0, 20.0), (1.0, 0.0), L_HAND, 60.0)
     assert fc1.path.equals(fc2.path) and fc1.sites.equals(fc2.sites)
+
+
+def test_one_perturbation_stream_for_forecast_and_notch():
+    # the forecast and the notch planner draw their Monte Carlo inputs through one helper, in one order
+    import numpy as np
+
+    from slipnet.crystal import perturb_sample
+
+    q0 = random_quats(5, seed=3)
+    a = perturb_sample(np.random.default_rng(9), q0, 1.5, [0.0, 1.0, 0.0], 2.0, (0.0, 0.0), 1.0)
+    b = perturb_sample(np.random.default_rng(9), q0, 1.5, [0.0, 1.0, 0.0], 2.0, (0.0, 0.0), 1.0)
+    for x, y in zip(a, b, strict=True):
+        np.testing.assert_array_equal(x, y)
+    # switching one spread off leaves the draws of the others unchanged
+    c = perturb_sample(np.random.default_rng(9), q0, 1.5, [0.0, 1.0, 0.0], 0.0, (0.0, 0.0), 1.0)
+    np.testing.assert_array_equal(c[0], a[0])
+    np.testing.assert_array_equal(c[2], a[2])
+    assert c[1].tolist() == [0.0, 1.0, 0.0]

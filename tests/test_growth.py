@@ -183,13 +183,13 @@ def test_arrest_is_represented_by_infinite_cycles_and_zero_rate():
     res = simulate_growth(path, 120.0, friction_stress=SF, n_points=400)
     prof = res.profile
     assert math.isfinite(res.arrest_length_um)
-    after = prof["crack_length"] >= res.arrest_length_um
+    after = prof["crack_length_um"] >= res.arrest_length_um
     assert after.any()
     assert np.isinf(prof.loc[after, "cycles"]).all()
-    assert (prof.loc[after, "dadn"] == 0).all()
+    assert (prof.loc[after, "dadn_um_per_cycle"] == 0).all()
     assert prof.loc[after, "arrested"].all() and (prof.loc[after, "zone_state"] == "arrested").all()
     dips = predicted_dips(res)
-    assert dips["arrest"].sum() == 1 and dips.loc[dips["arrest"], "depth"].iloc[0] == 0.0
+    assert dips["arrest"].sum() == 1 and dips.loc[dips["arrest"], "depth_ratio"].iloc[0] == 0.0
     assert res.barriers["arrest"].sum() == 1
 
 
@@ -209,8 +209,8 @@ def test_rate_falls_near_a_blocked_barrier_and_recovers_after_crossing():
     # barrier gives way while the rate is still rising, which the model also allows)
     res = simulate_growth(path, 200.0, friction_stress=SF, n_points=3000)
     prof = res.profile
-    a = prof["crack_length"].to_numpy()
-    r = prof["dadn"].to_numpy()
+    a = prof["crack_length_um"].to_numpy()
+    r = prof["dadn_um_per_cycle"].to_numpy()
     dips = res.dips
     assert len(dips) == path.n_barriers
     for _, dip in dips.iterrows():
@@ -221,8 +221,8 @@ def test_rate_falls_near_a_blocked_barrier_and_recovers_after_crossing():
         # is lowest just before slip crosses it and jumps up once it has crossed
         assert r[last - 1] > r[last]
         assert r[last + 1] > r[last]
-        assert dip["crack_length"] == pytest.approx(a[last])
-        assert 0 < dip["depth"] < 1
+        assert dip["crack_length_um"] == pytest.approx(a[last])
+        assert 0 < dip["depth_ratio"] < 1
         assert dip["crossing_length_um"] == pytest.approx(a[last + 1])
         peak = blocked[np.argmax(r[blocked])]
         assert np.all(np.diff(r[peak:last + 1]) < 0)  # unimodal: falling all the way from the peak
@@ -232,7 +232,7 @@ def test_predicted_dips_from_profile_equals_from_result():
     res = simulate_growth(_path(), 250.0, friction_stress=SF, n_points=500)
     pd.testing.assert_frame_equal(predicted_dips(res.profile), predicted_dips(res))
     with pytest.raises(ParameterError, match="columns"):
-        predicted_dips(res.profile[["crack_length", "dadn"]])
+        predicted_dips(res.profile[["crack_length_um", "dadn_um_per_cycle"]])
 
 
 # ------------------------------------------------------------------ long cracks: Paris-type limit
@@ -260,8 +260,8 @@ def test_long_crack_rate_against_length_approaches_the_exponent_through_many_gra
     res = simulate_growth(path, 150.0, friction_stress=SF, exponent=m, barrier_stress=100.0,
                           initial_length=1.0, n_points=4000)
     prof = res.profile
-    long = prof[prof["crack_length"] > 2000.0]
-    slope = np.polyfit(np.log(long["crack_length"]), np.log(long["dadn"]), 1)[0]
+    long = prof[prof["crack_length_um"] > 2000.0]
+    slope = np.polyfit(np.log(long["crack_length_um"]), np.log(long["dadn_um_per_cycle"]), 1)[0]
     # a ≫ grain size: the envelope of da/dN vs a on log–log axes has slope m (φ ∝ a at fixed σ)
     assert slope == pytest.approx(m, rel=0.02)
 
@@ -290,14 +290,14 @@ def test_rate_units_scale_with_the_coefficient_and_modulus():
     path = _path()
     r1 = growth_profile(path, 250.0, friction_stress=SF, coefficient=0.05, exponent=1.0, n_points=100)
     r2 = growth_profile(path, 250.0, friction_stress=SF, coefficient=0.10, exponent=1.0, n_points=100)
-    np.testing.assert_allclose(r2["dadn"], 2 * r1["dadn"])
+    np.testing.assert_allclose(r2["dadn_um_per_cycle"], 2 * r1["dadn_um_per_cycle"])
     np.testing.assert_allclose(r2["cycles"], 0.5 * r1["cycles"])
     # φ ∝ 1/G (dislocation slip under a given stress, common practice)
     stiff = simulate_growth(path, 250.0, params=GrowthParameters(friction_stress=SF, shear_modulus=164.0),
                             n_points=100).profile
     np.testing.assert_allclose(stiff["ctsd_um"], 0.5 * r1["ctsd_um"], rtol=1e-12)
     # order of magnitude: a 20 µm crack at 250 MPa slides by 10⁻²–10⁻¹ µm (µm units, not m)
-    mid = r1.iloc[(r1["crack_length"] - 20.0).abs().argmin()]
+    mid = r1.iloc[(r1["crack_length_um"] - 20.0).abs().argmin()]
     assert 1e-3 < mid["ctsd_um"] < 1.0
 
 
@@ -311,7 +311,7 @@ def test_bands_are_ordered_and_reproducible():
     b = r1.bands
     pd.testing.assert_frame_equal(b, r2.bands)
     assert np.all(b["cycles_p05"] <= b["cycles_p50"]) and np.all(b["cycles_p50"] <= b["cycles_p95"])
-    assert np.all(b["dadn_p05"] <= b["dadn_p95"])
+    assert np.all(b["dadn_um_per_cycle_p05"] <= b["dadn_um_per_cycle_p95"])
     assert (b["cycles_p95"] > b["cycles_p05"]).any()
 
 
@@ -337,7 +337,7 @@ def test_calibration_recovers_known_constants_from_a_noisy_record():
     res = simulate_growth(path, 250.0, params=truth, initial_length=3.0, final_length=190.0, n_points=3000)
     prof = res.profile
     a_rec = np.linspace(3.0, 190.0, 25)
-    n_true = np.interp(a_rec, prof["crack_length"], prof["cycles"])
+    n_true = np.interp(a_rec, prof["crack_length_um"], prof["cycles"])
     rng = np.random.default_rng(11)
     n_rec = n_true * (1 + 0.01 * rng.standard_normal(a_rec.size))
     n_rec[0] = 0.0
@@ -365,12 +365,12 @@ def _segment_table() -> pd.DataFrame:
     # three straight segments: grain 4 (two segments), then grain 9
     return pd.DataFrame({
         "grain": [4, 4, 9],
-        "x0": [0.0, 10.0, 10.0], "y0": [0.0, 0.0, 15.0],
-        "x1": [10.0, 10.0, 10.0], "y1": [0.0, 15.0, 45.0],
+        "x0_um": [0.0, 10.0, 10.0], "y0_um": [0.0, 0.0, 15.0],
+        "x1_um": [10.0, 10.0, 10.0], "y1_um": [0.0, 15.0, 45.0],
         "length_um": [10.0, 15.0, 30.0],
         "s_start_um": [0.0, 10.0, 25.0],
         "system": [0, 0, 3], "plane": ["(011)", "(011)", "(101)"],
-        "schmid": [0.4, 0.5, 0.3], "stage": ["I", "I", "I"],
+        "effective_schmid": [0.4, 0.5, 0.3], "stage": ["I", "I", "I"],
     })
 
 
@@ -451,7 +451,7 @@ def test_demo_step_writes_growth_outputs(tmp_path):
 
     assert CAUTION in (tmp_path / "growth" / "summary.md").read_text(encoding="utf-8")
     prof = pd.read_csv(tmp_path / "growth" / "growth_profile.csv")
-    assert {"crack_length", "cycles", "dadn"} <= set(prof.columns)
+    assert {"crack_length_um", "cycles", "dadn_um_per_cycle"} <= set(prof.columns)
     ctx2 = {"out": tmp_path / "none", "seed": 2, "quick": True}
     _step_growth(ctx2)
     assert "growth" not in ctx2 and "skipped" in ctx2["notes"][0]
@@ -467,7 +467,7 @@ def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
     assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(out),
                  "--profile-points", "300", "--samples", "5"]) == 0
     prof = pd.read_csv(out / "growth_profile.csv")
-    assert prof["crack_length"].iloc[-1] == pytest.approx(105.0)
+    assert prof["crack_length_um"].iloc[-1] == pytest.approx(105.0)
     assert (out / "growth_bands.csv").exists()
     # a record made by the model itself, then calibrated through the command line
     path = GrowthPath.from_table(pd.read_csv(bars))
@@ -475,7 +475,7 @@ def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
     a_rec = np.linspace(3.0, 100.0, 12)
     rec = tmp_path / "record.csv"
     pd.DataFrame({"crack_length_um": a_rec,
-                  "cycles": np.interp(a_rec, truth["crack_length"], truth["cycles"])}).to_csv(rec, index=False)
+                  "cycles": np.interp(a_rec, truth["crack_length_um"], truth["cycles"])}).to_csv(rec, index=False)
     out2 = tmp_path / "fit"
     assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "200", "--out", str(out2),
                  "--record", str(rec), "--coefficient", "0.1", "--no-figures"]) == 0

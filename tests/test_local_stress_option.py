@@ -156,13 +156,13 @@ def test_cli_local_stress_flags_end_to_end(tmp_path, capsys):
     assert main([*fc_args, "--out", str(tmp_path / "fc_uniform")]) == 0
     a = pd.read_csv(tmp_path / "fc" / "forecast_path.csv")
     b = pd.read_csv(tmp_path / "fc_uniform" / "forecast_path.csv")
-    assert not np.allclose(a["schmid"].iloc[0], b["schmid"].iloc[0])
+    assert not np.allclose(a["effective_schmid"].iloc[0], b["effective_schmid"].iloc[0])
     # the saved path carries the local effective factors of the grain and system it follows
     gg = build_grain_graph(omap)
     eff = effective_schmid(grain_schmid_factors(solve_elastic(omap, (0.0, 1.0, 0.0), 200.0), gg), slip_systems("bcc"))
     st1 = a[a["stage"] == "I"]
     assert len(st1) > 0
-    np.testing.assert_allclose(st1["schmid"], eff[st1["grain"], st1["system"]], rtol=1e-9)
+    np.testing.assert_allclose(st1["effective_schmid"], eff[st1["grain"], st1["system"]], rtol=1e-9)
 
     assert main(["growth", "--forecast", str(tmp_path / "fc"), "--out", str(tmp_path / "gr"), "--no-figures",
                  "--profile-points", "200", "--local-stress"]) == 0

@@ -82,11 +82,11 @@ def test_position_facing_the_favourable_grain_ranks_first(bands):
     best = plan.table.iloc[0]
     assert best["rank"] == 1 and best["valid"]
     # the root sits in the middle band (x 66–130 µm) or within one root radius of it
-    assert 66.0 - 4.0 <= best["x"] <= 130.0 + 4.0
+    assert 66.0 - 4.0 <= best["root_x_um"] <= 130.0 + 4.0
     assert best["root_schmid"] == pytest.approx(0.5, abs=1e-6)
     # no boundary ahead along the band: no strong barrier in the window (a weak first barrier)
     assert math.isinf(best["first_barrier_um"])
-    assert list(plan.table.columns[:4]) == ["x", "y", "rank", "score"]
+    assert list(plan.table.columns[:4]) == ["root_x_um", "root_y_um", "rank", "plan_score"]
     assert plan.table["rank"].is_monotonic_increasing
     assert plan.settings.load_axis == (1.0, 0.0, 0.0) and plan.method == "weighted"
 
@@ -227,12 +227,12 @@ def test_study_file_runs_and_writes_outputs(tmp_path):
     plan = run_study(study)
     write_plan(plan, build_grain_graph(omap), tmp_path / "out")
     assert plan.source["study"] == str(study)
-    assert 66.0 - 4.0 <= plan.table.iloc[0]["x"] <= 130.0 + 4.0
+    assert 66.0 - 4.0 <= plan.table.iloc[0]["root_x_um"] <= 130.0 + 4.0
     for name in ("notch_plan.csv", "notch_plan.json", "settings.json", "notch_plan_map.png", "summary.md"):
         assert (tmp_path / "out" / name).is_file()
     assert "support, never replace" in (tmp_path / "out" / "summary.md").read_text()
     again = pd.read_csv(tmp_path / "out" / "notch_plan.csv")
-    np.testing.assert_allclose(again["score"], plan.table["score"])
+    np.testing.assert_allclose(again["plan_score"], plan.table["plan_score"])
 
 
 def test_bad_study_files(tmp_path):

@@ -27,14 +27,15 @@ def main() -> None:
     fc = forecast_crack(gg, spec.notch_root, spec.notch_direction, spec.load_axis, 300.0,
                         stress_amplitude=220.0, stress_ratio=0.1, samples=40, seed=7)
     print(f"path: {fc.length_um:.0f} µm, stopped at: {fc.stop_reason}")
-    print(fc.path[["grain", "plane", "schmid", "length_um", "direction_deg", "leg"]].round(3).to_string(index=False))
+    cols = ["grain", "plane", "effective_schmid", "length_um", "direction_deg", "leg"]
+    print(fc.path[cols].round(3).to_string(index=False))
     print("\nbarriers (strongest first):")
-    cols = ["rank", "boundary_id", "score", "twist_deg", "tilt_deg", "m_prime", "term_class", "distance_um",
+    cols = ["rank", "boundary_id", "barrier_score", "twist_deg", "tilt_deg", "m_prime", "term_class", "distance_um",
             "on_path", "p_on_path"]
     print(fc.barriers[cols].head(6).round(3).to_string(index=False))
     print("\nlocalisation sites:")
-    print(fc.sites[["rank", "x", "y", "score", "grain", "blocking_grain", "transmission", "p_present"]]
-          .head(5).round(2).to_string(index=False))
+    cols = ["rank", "x_um", "y_um", "site_score_mpa_um", "grain", "blocking_grain", "transmission_score", "p_present"]
+    print(fc.sites[cols].head(5).round(2).to_string(index=False))
     out = tempfile.mkdtemp(prefix="slipnet-forecast-")
     write_forecast(fc, out, gg, title="Example crack forecast")
     print(f"\ntables, pictures and summary written to {out}")

@@ -31,11 +31,11 @@ def main() -> None:
     )
     params = GrowthParameters(friction_stress=400.0, coefficient=0.05, exponent=1.5)
     res = simulate_growth(path, 220.0, params=params, samples=40, seed=1)
-    cols = ["position_um", "threshold_amplitude_mpa", "crossing_length_um", "dip_depth"]
+    cols = ["position_um", "threshold_amplitude_mpa", "crossing_length_um", "dip_depth_ratio"]
     print("Barriers at σ_a = 220 MPa:")
     print(res.barriers[cols].round(3).to_string(index=False))
     last = res.profile.iloc[-1]
-    print(f"cycles to {last['crack_length']:.0f} µm: {last['cycles']:.3g}")
+    print(f"cycles to {last['crack_length_um']:.0f} µm: {last['cycles']:.3g}")
 
     need = float(res.barriers["threshold_amplitude_mpa"].max())
     low = simulate_growth(path, 0.97 * need, params=params)
@@ -45,7 +45,7 @@ def main() -> None:
     # a record made by the model with 1 % scatter in cycles, then the constants fitted back
     rng = np.random.default_rng(5)
     a_rec = np.linspace(3.0, 150.0, 20)
-    n_rec = np.interp(a_rec, res.profile["crack_length"], res.profile["cycles"])
+    n_rec = np.interp(a_rec, res.profile["crack_length_um"], res.profile["cycles"])
     n_rec = (n_rec - n_rec[0]) * (1 + 0.01 * rng.standard_normal(a_rec.size))  # counted from the first point
     fit = calibrate(a_rec, n_rec, path, 220.0, initial=GrowthParameters(friction_stress=450.0, coefficient=0.1,
                                                                         exponent=1.2))

@@ -28,7 +28,7 @@ def main(out: Path) -> None:
     gg = build_grain_graph(spec.omap)
     plan = plan_notch(gg, "bottom", spec.load_axis, spacing_um=40.0, depth_um=30.0, root_radius_um=10.0,
                       window_um=150.0, crack_sizes_um=(5.0, 20.0), samples=5, seed=2)
-    cols = ["rank", "x", "y", "score", "initiation_drive", "barrier_strength_in_window",
+    cols = ["rank", "root_x_um", "root_y_um", "plan_score", "initiation_drive", "barrier_strength_in_window",
             "initiation_drive_p05", "initiation_drive_p95", "p_top_k"]
     print(plan.table[cols].round(3).to_string(index=False))
     written = write_plan(plan, gg, out)

@@ -89,6 +89,7 @@ def run(args) -> int:
                           scheduler=args.scheduler or "synchronous", workers=args.workers, progress=True)
     write_plan(plan, gg, out, figures=not args.no_figures)
     best = plan.table.iloc[0]
-    print(f"best notch root at x = {best['x']:.1f} µm, y = {best['y']:.1f} µm (score {best['score']:.3f}); load axis "
+    print(f"best notch root at x = {best['root_x_um']:.1f} µm, y = {best['root_y_um']:.1f} µm (plan score "
+          f"{best['plan_score']:.3f}); load axis "
           f"({', '.join(f'{v:.3f}' for v in plan.settings.load_axis)}); plan written to {out}")
     return 0

@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from slipnet.columns import FORECAST_BARRIERS, FORECAST_SITES
 from slipnet.compare.growth_records import dadn_incremental_polynomial, dadn_secant, find_rate_dips
 from slipnet.compare.localisation import (
     band_orientation,
@@ -62,6 +63,10 @@ from slipnet.io.tables import (
 )
 from slipnet.maps.strain import StrainSeries, max_shear_strain
 
+#: The score columns of the forecast tables this module reads.
+SITE_SCORE = FORECAST_SITES[3]
+BARRIER_SCORE = FORECAST_BARRIERS[4]
+
 __all__ = [
     "Comparison",
     "compare_files",
@@ -77,19 +82,19 @@ __all__ = [
 # ======================================================================================= adapters
 def sites_from_forecast(forecast) -> tuple[np.ndarray, np.ndarray]:
     """``(xy (n, 2) µm, score (n,))`` of the predicted localisation sites of a ``CrackForecast``
-    (or a DataFrame with columns ``x``, ``y``, ``score``)."""
+    (or a DataFrame with columns ``x_um``, ``y_um`` and optionally ``site_score_mpa_um``)."""
     sites = forecast.sites if hasattr(forecast, "sites") else forecast
     if sites is None or len(sites) == 0:
         return np.zeros((0, 2)), np.zeros(0)
-    for c in ("x", "y"):
+    for c in ("x_um", "y_um"):
         if c not in sites.columns:
-            raise ParameterError(f"forecast sites should have columns x, y, score; missing {c!r}")
-    score = sites["score"].to_numpy(float) if "score" in sites.columns else np.ones(len(sites))
-    return sites[["x", "y"]].to_numpy(float), score
+            raise ParameterError(f"forecast sites should have columns x_um, y_um, site_score_mpa_um; missing {c!r}")
+    score = sites[SITE_SCORE].to_numpy(float) if SITE_SCORE in sites.columns else np.ones(len(sites))
+    return sites[["x_um", "y_um"]].to_numpy(float), score
 
 
 def path_from_forecast(forecast) -> pd.DataFrame:
-    """The predicted path segments (``x0, y0, x1, y1`` µm) of a ``CrackForecast`` or a segment table."""
+    """The predicted path segments (``x0_um, y0_um, x1_um, y1_um``) of a ``CrackForecast`` or a segment table."""
     path = forecast.path if hasattr(forecast, "path") else forecast
     path_segments(path, "forecast path")
     return path
@@ -98,13 +103,13 @@ def path_from_forecast(forecast) -> pd.DataFrame:
 def predicted_dips_from_growth(growth) -> np.ndarray:
     """Crack lengths (µm) of the predicted growth-rate dips.
 
-    Accepts a DataFrame of dips (column ``crack_length`` or ``crack_length_um``), a growth profile
+    Accepts a DataFrame of dips (column ``crack_length_um``), a growth profile
     or result understood by ``slipnet.growth.predicted_dips``, or an object with a ``dips`` table.
     """
     if growth is None:
         return np.zeros(0)
     table = None
-    if isinstance(growth, pd.DataFrame) and "depth" in growth.columns:
+    if isinstance(growth, pd.DataFrame) and "depth_ratio" in growth.columns:
         table = growth
     elif hasattr(growth, "dips") and isinstance(growth.dips, pd.DataFrame):
         table = growth.dips
@@ -112,21 +117,20 @@ def predicted_dips_from_growth(growth) -> np.ndarray:
         try:
             from slipnet.growth.model import predicted_dips
         except ImportError as err:
-            raise ParameterError("growth should be a dips table (crack_length column) while slipnet.growth "
+            raise ParameterError("growth should be a dips table (crack_length_um column) while slipnet.growth "
                                  "is not available") from err
         table = predicted_dips(growth)
-    for c in ("crack_length_um", "crack_length"):
-        if c in table.columns:
-            return table[c].to_numpy(float)
-    raise ParameterError(f"predicted dips should have a crack_length column; got {list(table.columns)}")
+    if "crack_length_um" in table.columns:
+        return table["crack_length_um"].to_numpy(float)
+    raise ParameterError(f"predicted dips should have a crack_length_um column; got {list(table.columns)}")
 
 
 def growth_profile_from(growth) -> pd.DataFrame | None:
-    """A predicted growth profile (``crack_length`` µm, ``dadn`` µm/cycle, optional ``cycles``) or None."""
+    """A predicted growth profile (``crack_length_um``, ``dadn_um_per_cycle``, optional ``cycles``) or None."""
     if growth is None:
         return None
     prof = growth if isinstance(growth, pd.DataFrame) else getattr(growth, "profile", None)
-    if isinstance(prof, pd.DataFrame) and {"crack_length", "dadn"} <= set(prof.columns):
+    if isinstance(prof, pd.DataFrame) and {"crack_length_um", "dadn_um_per_cycle"} <= set(prof.columns):
         return prof
     return None
 
@@ -171,7 +175,7 @@ def compare_files(strain_path, *, points=None, kind: str = "affine", gg=None, ma
     has_fc = any(t is not None for t in (fc.sites, fc.path, fc.barriers))
     growth = read_growth_folder(growth_folder) if growth_folder is not None else None
     if growth is not None and growth.dips is None:
-        growth = GrowthTables(pd.DataFrame({"crack_length": [], "depth": []}), growth.profile)
+        growth = GrowthTables(pd.DataFrame({"crack_length_um": [], "depth_ratio": []}), growth.profile)
     return compare_forecast(series, forecast=fc if has_fc else None, gg=gg, transform=transform,
                             measured_path=read_measured_path(measured_path) if measured_path else None,
                             growth_record=read_growth_record(record) if record else None, growth=growth, **options)
@@ -211,7 +215,7 @@ class Comparison:
     measured_path : (m, 2) ndarray or None
         Measured crack path polyline (µm, map frame).
     predicted_profile : DataFrame or None
-        Predicted growth profile (``crack_length``, ``dadn``) for the figure.
+        Predicted growth profile (``crack_length_um``, ``dadn_um_per_cycle``) for the figure.
     map_extent : tuple or None
         ``imshow`` extent of the map grid (µm) when a grain graph was given.
     """
@@ -305,92 +309,17 @@ def compare_forecast(series: StrainSeries, *, forecast=None, gg=None, transform:
     peaks = find_strain_peaks(shear, s, threshold=thr, min_distance_um=peak_distance_um, transform=tr)
     scores: dict = {"registration_rms_um": tr.rms if transform is not None else float("nan"),
                     "n_measured_peaks": len(peaks)}
-    sx, sy = s.coordinates()
-    mxy = tr.apply(np.stack([sx.ravel(), sy.ravel()], 1))
-    grain_stats = boundary_stats = bands = None
-    shear_on_map = None
-    labels_s = None
-    extent = None
-    if gg is not None:
-        omap = gg.omap
-        extent = tuple(float(e) for e in omap.pixel_extent())
-        gx, gy = omap.coordinates()
-        shear_on_map = resample_to_map(shear, s, tr, gx, gy)
-        labels_s = labels_on_strain_grid(gg.labels, omap, s, tr)
-        grain_stats = grain_statistics(shear, labels_s)
-        pts, ids = densify_polylines(gg.boundary_polylines, min(omap.step, s.step) / 2.0)
-        boundary_stats = boundary_band_statistics(shear.ravel(), mxy[:, 0], mxy[:, 1], pts, ids, band_um)
-        ang, coh = band_orientation(shear, s.step, sigma_um=band_sigma_um)
-        # bands only where the strain localised: above the peak threshold, coherent, not a few stray points
-        bands = grain_band_directions(shear, labels_s, tr.apply_directions(ang), coh, threshold=thr,
-                                      min_coherence=0.5, min_points=10)
-        if load_axis is not None and len(bands):
-            traces = grain_traces(gg, load_axis, n_traces)
-            if traces is not None:
-                t = traces[bands["grain"].to_numpy()]
-                bscore, err = score_band_directions(bands["band_angle_deg"], t, band_tol_deg)
-                bands = bands.assign(trace_error_deg=err, matched=err <= band_tol_deg)
-                scores.update({f"bands_{kk}": vv for kk, vv in bscore.items()})
-    pred_xy = np.zeros((0, 2))
-    site_pairs = pd.DataFrame(columns=["pred_index", "meas_index", "distance_um"])
+    on_grains = _measure_on_grains(gg, shear, s, tr, thr, band_um=band_um, band_sigma_um=band_sigma_um,
+                                   load_axis=load_axis, n_traces=n_traces, band_tol_deg=band_tol_deg, scores=scores)
+    pred_xy, site_pairs = _score_forecast_sites(forecast, gg, peaks, on_grains["grain_stats"], site_tol_um,
+                                                hot_quantile, max_sites, scores)
+    _score_boundaries(forecast, on_grains["boundary_stats"], hot_quantile, scores)
     pred_path = None
-    if forecast is not None and getattr(forecast, "sites", None) is not None:
-        pred_xy, pred_score = sites_from_forecast(forecast)
-        if max_sites is not None and len(pred_score) > int(max_sites):
-            top = np.sort(np.argsort(-pred_score, kind="stable")[: int(max_sites)])
-            pred_xy, pred_score = pred_xy[top], pred_score[top]
-        sc, site_pairs = score_sites(pred_xy, peaks[["x_um", "y_um"]].to_numpy(), site_tol_um)
-        scores.update({f"sites_{kk}": vv for kk, vv in sc.items()})
-        if grain_stats is not None and len(pred_xy):
-            fs = getattr(forecast, "sites", None)
-            if isinstance(fs, pd.DataFrame) and "grain" in fs.columns and len(fs) == len(pred_xy):
-                gid = fs["grain"].to_numpy(np.int64)
-            else:  # a handful of sites: one lookup each
-                gid = np.array([gg.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
-            per = pd.DataFrame({"grain": gid, "score": pred_score}).query("grain >= 0").groupby("grain")["score"].max()
-            pg = per.reindex(grain_stats["grain"]).fillna(0.0).to_numpy()
-            ra = rank_agreement(pg, grain_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
-            scores.update({f"grains_{kk}": vv for kk, vv in ra.items()})
-    if forecast is not None and boundary_stats is not None and len(boundary_stats):
-        measured_b = boundary_stats.set_index("boundary_id")["p90"]
-        sites = getattr(forecast, "sites", None)
-        if isinstance(sites, pd.DataFrame) and {"boundary_id", "score"} <= set(sites.columns):
-            # localisation predicted at a boundary: the best site blocked there; boundaries without a site: 0
-            per_b = sites.query("boundary_id >= 0").groupby("boundary_id")["score"].max()
-            pb = per_b.reindex(measured_b.index).fillna(0.0).to_numpy(float)
-            ra = rank_agreement(pb, measured_b.to_numpy(), hot_quantile=hot_quantile)
-            scores.update({f"boundaries_{kk}": vv for kk, vv in ra.items()})
-        barriers = getattr(forecast, "barriers", None)
-        if isinstance(barriers, pd.DataFrame) and {"boundary_id", "score"} <= set(barriers.columns) and len(barriers):
-            # ranked barriers only (unranked boundaries have no barrier score)
-            b = barriers.groupby("boundary_id")["score"].max()
-            ra = rank_agreement(b.reindex(measured_b.index).to_numpy(float), measured_b.to_numpy(),
-                                hot_quantile=hot_quantile)
-            scores.update({f"barriers_{kk}": vv for kk, vv in ra.items()})
-    if forecast is not None:
-        if getattr(forecast, "path", None) is not None and len(forecast.path):
-            pred_path = path_from_forecast(forecast)
-            if measured_path is not None:
-                ps = score_path(pred_path, measured_path, path_tol_um)
-                scores.update({f"path_{kk}": vv for kk, vv in ps.items()})
-    growth_rates = dips = None
-    profile = growth_profile_from(growth)
-    if growth_record is not None:
-        rec = growth_record
-        for c in ("crack_length_um", "cycles"):
-            if c not in rec.columns:
-                raise ParameterError(f"growth_record should have columns crack_length_um and cycles; missing {c!r}")
-        a, n = rec["crack_length_um"].to_numpy(float), rec["cycles"].to_numpy(float)
-        a1, r1 = dadn_secant(a, n)
-        a2, r2 = dadn_incremental_polynomial(a, n)
-        growth_rates = pd.concat([
-            pd.DataFrame({"method": "secant", "crack_length_um": a1, "dadn_um_per_cycle": r1}),
-            pd.DataFrame({"method": "incremental_polynomial", "crack_length_um": a2, "dadn_um_per_cycle": r2}),
-        ], ignore_index=True)
-        measured_dips = find_rate_dips(a2, r2, prominence=dip_prominence)
-        pred_dips = predicted_dips_from_growth(growth) if growth is not None else np.zeros(0)
-        dsc, dips = match_dips(pred_dips, measured_dips["crack_length_um"].to_numpy(), dip_tol_um)
-        scores.update({f"dips_{kk}": vv for kk, vv in dsc.items()})
+    if forecast is not None and getattr(forecast, "path", None) is not None and len(forecast.path):
+        pred_path = path_from_forecast(forecast)
+        if measured_path is not None:
+            scores.update({f"path_{kk}": vv for kk, vv in score_path(pred_path, measured_path, path_tol_um).items()})
+    growth_rates, dips = _score_growth(growth_record, growth, dip_prominence, dip_tol_um, scores)
     settings = {"step": k, "strain_method": strain_method, "window": window, "peak_threshold": thr,
                 "peak_distance_um": peak_distance_um, "site_tol_um": site_tol_um, "band_um": band_um,
                 "hot_quantile": hot_quantile, "path_tol_um": path_tol_um, "band_sigma_um": band_sigma_um,
@@ -401,8 +330,110 @@ def compare_forecast(series: StrainSeries, *, forecast=None, gg=None, transform:
     if measured_path is not None:
         seg = path_segments(measured_path, "measured_path")
         mp = np.concatenate([seg[:, :2], seg[-1:, 2:]])
-    return Comparison(tr if transform is not None else None, s, shear, shear_on_map, peaks, grain_stats,
-                      boundary_stats, bands, site_pairs, growth_rates, dips, scores, settings, pred_xy, pred_path,
-                      mp, profile, extent)
+    return Comparison(tr if transform is not None else None, s, shear, on_grains["shear_on_map"], peaks,
+                      on_grains["grain_stats"], on_grains["boundary_stats"], on_grains["bands"], site_pairs,
+                      growth_rates, dips, scores, settings, pred_xy, pred_path, mp, growth_profile_from(growth),
+                      on_grains["extent"])
+
+
+def _measure_on_grains(gg, shear, s, tr, thr: float, *, band_um, band_sigma_um, load_axis, n_traces, band_tol_deg,
+                       scores: dict) -> dict:
+    """Step: the measured shear on the map grid, per grain, per boundary band, and its band directions."""
+    out = {"grain_stats": None, "boundary_stats": None, "bands": None, "shear_on_map": None, "extent": None}
+    if gg is None:
+        return out
+    omap = gg.omap
+    sx, sy = s.coordinates()
+    mxy = tr.apply(np.stack([sx.ravel(), sy.ravel()], 1))
+    out["extent"] = tuple(float(e) for e in omap.pixel_extent())
+    gx, gy = omap.coordinates()
+    out["shear_on_map"] = resample_to_map(shear, s, tr, gx, gy)
+    labels_s = labels_on_strain_grid(gg.labels, omap, s, tr)
+    out["grain_stats"] = grain_statistics(shear, labels_s)
+    pts, ids = densify_polylines(gg.boundary_polylines, min(omap.step, s.step) / 2.0)
+    out["boundary_stats"] = boundary_band_statistics(shear.ravel(), mxy[:, 0], mxy[:, 1], pts, ids, band_um)
+    ang, coh = band_orientation(shear, s.step, sigma_um=band_sigma_um)
+    # bands only where the strain localised: above the peak threshold, coherent, not a few stray points
+    bands = grain_band_directions(shear, labels_s, tr.apply_directions(ang), coh, threshold=thr,
+                                  min_coherence=0.5, min_points=10)
+    if load_axis is not None and len(bands):
+        traces = grain_traces(gg, load_axis, n_traces)
+        if traces is not None:
+            t = traces[bands["grain"].to_numpy()]
+            bscore, err = score_band_directions(bands["band_angle_deg"], t, band_tol_deg)
+            bands = bands.assign(trace_error_deg=err, matched=err <= band_tol_deg)
+            scores.update({f"bands_{kk}": vv for kk, vv in bscore.items()})
+    out["bands"] = bands
+    return out
+
+
+def _score_forecast_sites(forecast, gg, peaks, grain_stats, site_tol_um, hot_quantile, max_sites,
+                          scores: dict) -> tuple[np.ndarray, pd.DataFrame]:
+    """Step: predicted sites against measured peaks, and per-grain rank agreement."""
+    pred_xy = np.zeros((0, 2))
+    site_pairs = pd.DataFrame(columns=["pred_index", "meas_index", "distance_um"])
+    if forecast is None or getattr(forecast, "sites", None) is None:
+        return pred_xy, site_pairs
+    pred_xy, pred_score = sites_from_forecast(forecast)
+    if max_sites is not None and len(pred_score) > int(max_sites):
+        top = np.sort(np.argsort(-pred_score, kind="stable")[: int(max_sites)])
+        pred_xy, pred_score = pred_xy[top], pred_score[top]
+    sc, site_pairs = score_sites(pred_xy, peaks[["x_um", "y_um"]].to_numpy(), site_tol_um)
+    scores.update({f"sites_{kk}": vv for kk, vv in sc.items()})
+    if grain_stats is not None and len(pred_xy):
+        fs = getattr(forecast, "sites", None)
+        if isinstance(fs, pd.DataFrame) and "grain" in fs.columns and len(fs) == len(pred_xy):
+            gid = fs["grain"].to_numpy(np.int64)
+        else:  # a handful of sites: one lookup each
+            gid = np.array([gg.grain_at(x, y) for x, y in pred_xy], dtype=np.int64)
+        per = pd.DataFrame({"grain": gid, "s": pred_score}).query("grain >= 0").groupby("grain")["s"].max()
+        pg = per.reindex(grain_stats["grain"]).fillna(0.0).to_numpy()
+        ra = rank_agreement(pg, grain_stats["p90"].to_numpy(), hot_quantile=hot_quantile)
+        scores.update({f"grains_{kk}": vv for kk, vv in ra.items()})
+    return pred_xy, site_pairs
+
+
+def _score_boundaries(forecast, boundary_stats, hot_quantile, scores: dict) -> None:
+    """Step: boundary-band strain against the sites blocked at each boundary and the ranked barriers."""
+    if forecast is None or boundary_stats is None or not len(boundary_stats):
+        return
+    measured_b = boundary_stats.set_index("boundary_id")["p90"]
+    sites = getattr(forecast, "sites", None)
+    if isinstance(sites, pd.DataFrame) and {"boundary_id", SITE_SCORE} <= set(sites.columns):
+        # localisation predicted at a boundary: the best site blocked there; boundaries without a site: 0
+        per_b = sites.query("boundary_id >= 0").groupby("boundary_id")[SITE_SCORE].max()
+        pb = per_b.reindex(measured_b.index).fillna(0.0).to_numpy(float)
+        ra = rank_agreement(pb, measured_b.to_numpy(), hot_quantile=hot_quantile)
+        scores.update({f"boundaries_{kk}": vv for kk, vv in ra.items()})
+    barriers = getattr(forecast, "barriers", None)
+    ranked = isinstance(barriers, pd.DataFrame) and {"boundary_id", BARRIER_SCORE} <= set(barriers.columns)
+    if ranked and len(barriers):
+        # ranked barriers only (unranked boundaries have no barrier score)
+        b = barriers.groupby("boundary_id")[BARRIER_SCORE].max()
+        ra = rank_agreement(b.reindex(measured_b.index).to_numpy(float), measured_b.to_numpy(),
+                            hot_quantile=hot_quantile)
+        scores.update({f"barriers_{kk}": vv for kk, vv in ra.items()})
+
+
+def _score_growth(growth_record, growth, dip_prominence, dip_tol_um, scores: dict):
+    """Step: measured da/dN (ASTM E647 secant and incremental polynomial) and its dips against the predicted."""
+    if growth_record is None:
+        return None, None
+    rec = growth_record
+    for c in ("crack_length_um", "cycles"):
+        if c not in rec.columns:
+            raise ParameterError(f"growth_record should have columns crack_length_um and cycles; missing {c!r}")
+    a, n = rec["crack_length_um"].to_numpy(float), rec["cycles"].to_numpy(float)
+    a1, r1 = dadn_secant(a, n)
+    a2, r2 = dadn_incremental_polynomial(a, n)
+    growth_rates = pd.concat([
+        pd.DataFrame({"method": "secant", "crack_length_um": a1, "dadn_um_per_cycle": r1}),
+        pd.DataFrame({"method": "incremental_polynomial", "crack_length_um": a2, "dadn_um_per_cycle": r2}),
+    ], ignore_index=True)
+    measured_dips = find_rate_dips(a2, r2, prominence=dip_prominence)
+    pred_dips = predicted_dips_from_growth(growth) if growth is not None else np.zeros(0)
+    dsc, dips = match_dips(pred_dips, measured_dips["crack_length_um"].to_numpy(), dip_tol_um)
+    scores.update({f"dips_{kk}": vv for kk, vv in dsc.items()})
+    return growth_rates, dips
 
 

@@ -175,7 +175,7 @@ def synthetic_crack_path(path, *, deviation_um: float = 1.0, spacing_um: float =
 
     Parameters
     ----------
-    path : DataFrame with ``x0, y0, x1, y1`` or (n, 2) polyline
+    path : DataFrame with ``x0_um, y0_um, x1_um, y1_um`` or (n, 2) polyline
         The path to perturb (µm).
     deviation_um : float
         Typical sideways offset, µm.
@@ -215,13 +215,13 @@ def synthetic_growth_record(profile: pd.DataFrame | None = None, *, n_readings: 
                             seed: int = 0) -> pd.DataFrame:
     """A SYNTHETIC crack-length record (``crack_length_um``, ``cycles``).
 
-    From a predicted growth profile (``crack_length`` µm and ``cycles``) when given, else from a
+    From a predicted growth profile (``crack_length_um`` and ``cycles``) when given, else from a
     rate C·a^(m/2) (µm/cycle, a in µm) lowered by Gaussian dips at ``dips_um``; read at
     ``n_readings`` evenly spaced crack lengths with crack-length noise ``noise_um``.
     """
     rng = np.random.default_rng(seed)
-    if profile is not None and {"crack_length", "cycles"} <= set(profile.columns):
-        a = profile["crack_length"].to_numpy(float)
+    if profile is not None and {"crack_length_um", "cycles"} <= set(profile.columns):
+        a = profile["crack_length_um"].to_numpy(float)
         n = profile["cycles"].to_numpy(float)
         ok = np.isfinite(a) & np.isfinite(n)
         a, n = a[ok], n[ok]
@@ -267,7 +267,7 @@ def _site_angles(gg, sites: pd.DataFrame, load_axis) -> np.ndarray:
     if q.size == 0:
         return out
     grains = (sites["grain"].to_numpy(np.int64) if "grain" in sites.columns
-              else np.array([gg.grain_at(x, y) for x, y in sites[["x", "y"]].to_numpy()], dtype=np.int64))
+              else np.array([gg.grain_at(x, y) for x, y in sites[["x_um", "y_um"]].to_numpy()], dtype=np.int64))
     ok = (grains >= 0) & (grains < len(q))
     if not ok.any():
         return out
@@ -305,17 +305,18 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
     size = min(x_max - x_min, y_max - y_min)
     sites = getattr(forecast, "sites", None)
     if sites is None:
-        sites = pd.DataFrame({"x": [], "y": []})
-    elif "score" in sites.columns:
-        sites = sites.sort_values("score", ascending=False, kind="stable")
+        sites = pd.DataFrame({"x_um": [], "y_um": []})
+    elif "site_score_mpa_um" in sites.columns:
+        sites = sites.sort_values("site_score_mpa_um", ascending=False, kind="stable")
     sites = sites.head(n_sites).reset_index(drop=True)
     angles = _site_angles(gg, sites, load_axis) if len(sites) else np.zeros(0)
     angles = np.where(np.isfinite(angles), angles, rng.uniform(0, 180, len(angles)))
     keep = (np.arange(len(sites)) % 4) != 3  # every fourth predicted site stays quiet
-    score = sites["score"].to_numpy(float) if "score" in sites.columns else np.ones(len(sites))
+    score = (sites["site_score_mpa_um"].to_numpy(float) if "site_score_mpa_um" in sites.columns
+             else np.ones(len(sites)))
     score = score / max(float(np.max(score)), 1e-12) if len(score) else score
-    xs = sites["x"].to_numpy(float)[keep] + rng.normal(0, 0.7 * step, keep.sum())
-    ys = sites["y"].to_numpy(float)[keep] + rng.normal(0, 0.7 * step, keep.sum())
+    xs = sites["x_um"].to_numpy(float)[keep] + rng.normal(0, 0.7 * step, keep.sum())
+    ys = sites["y_um"].to_numpy(float)[keep] + rng.normal(0, 0.7 * step, keep.sum())
     extra = 2
     ex = rng.uniform(x_min + 0.15 * size, x_max - 0.15 * size, extra)
     ey = rng.uniform(y_min + 0.15 * size, y_max - 0.15 * size, extra)
@@ -337,7 +338,7 @@ def demo_measurement(gg, forecast, growth=None, *, load_axis=(1.0, 0.0, 0.0), se
     prof = growth_profile_from(growth)
     if prof is not None and "cycles" in prof.columns and np.isfinite(prof["cycles"]).sum() > 10:
         # dense readings (an eighth of a map step apart): the model's dips are a few µm wide
-        span = float(np.nanmax(prof["crack_length"]) - np.nanmin(prof["crack_length"]))
+        span = float(np.nanmax(prof["crack_length_um"]) - np.nanmin(prof["crack_length_um"]))
         record = synthetic_growth_record(prof, n_readings=max(120, int(span / (0.125 * step))), noise_um=0.01 * step,
                                          seed=seed)
     else:

@@ -7,6 +7,7 @@ import pandas as pd
 from scipy import optimize, stats
 
 from slipnet._checks import check_positive
+from slipnet.columns import SEGMENT_XY
 from slipnet.compare.registration import as_points
 from slipnet.errors import ParameterError
 
@@ -141,10 +142,10 @@ def rank_agreement(predicted, measured, *, hot_quantile: float = 0.75) -> dict:
 def path_segments(path, name: str) -> np.ndarray:
     """(k, 4) segments x0, y0, x1, y1 from a segment DataFrame or an (n, 2) polyline."""
     if isinstance(path, pd.DataFrame):
-        missing = [c for c in ("x0", "y0", "x1", "y1") if c not in path.columns]
+        missing = [c for c in SEGMENT_XY if c not in path.columns]
         if missing:
             raise ParameterError(f"{name} should have columns x0, y0, x1, y1 (µm); missing {missing}")
-        seg = path[["x0", "y0", "x1", "y1"]].to_numpy(float)
+        seg = path[list(SEGMENT_XY)].to_numpy(float)
     else:
         p = as_points(path, name, min_rows=2)
         seg = np.concatenate([p[:-1], p[1:]], axis=1)

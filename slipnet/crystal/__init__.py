@@ -30,6 +30,11 @@ from slipnet.crystal.orientation import (
     random_quats,
     reduce_cubic,
 )
+from slipnet.crystal.perturb import (
+    perturb_axis,
+    perturb_orientations,
+    perturb_sample,
+)
 from slipnet.crystal.slip_systems import (
     BURGERS_LENGTH,
     DEFAULT_FAMILIES,
@@ -80,6 +85,9 @@ __all__ = [
     "matrix_from_quat",
     "misorientation",
     "nearest_equivalent",
+    "perturb_axis",
+    "perturb_orientations",
+    "perturb_sample",
     "plane_inclinations",
     "point_schmid_maps",
     "quat_conjugate",

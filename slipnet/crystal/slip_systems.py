@@ -58,6 +58,7 @@ __all__ = [
     "check_systems",
     "effective_schmid",
     "plane_inclinations",
+    "plane_label",
     "point_schmid_maps",
     "resolved_shear",
     "schmid_factors",
@@ -107,6 +108,17 @@ def _variants(hkl: tuple[int, int, int]) -> np.ndarray:
 
 def _miller(v, brackets: str) -> str:
     return brackets[0] + "".join(str(int(x)) for x in v) + brackets[1]
+
+
+def plane_label(hkl) -> str:
+    """The one spelling of a slip-plane label: ``(1-10)`` (Miller indices, minus signs, no spaces).
+
+    Examples
+    --------
+    >>> plane_label([1, -1, 0])
+    '(1-10)'
+    """
+    return _miller(np.rint(np.asarray(hkl, dtype=float)).astype(int), "()")
 
 
 def _family_systems(family: str, plane: tuple, direction: tuple) -> tuple[np.ndarray, np.ndarray]:

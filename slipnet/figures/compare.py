@@ -43,7 +43,7 @@ def plot_shear_map(ax: Axes, shear_pct: np.ndarray, extent, *, sites_xy=None, pa
     cb.set_label("γ_max (%)")
     if path is not None and len(path):
         for k, row in enumerate(path.itertuples(index=False)):
-            ax.plot([row.x0, row.x1], [row.y0, row.y1], color="white", lw=2.2,
+            ax.plot([row.x0_um, row.x1_um], [row.y0_um, row.y1_um], color="white", lw=2.2,
                     label="predicted path" if k == 0 else None)
     if measured_path is not None and len(measured_path):
         mp = np.asarray(measured_path)
@@ -118,9 +118,9 @@ def plot_growth_rates(ax: Axes, rates: pd.DataFrame, *, predicted: pd.DataFrame 
         ax.plot(grp["crack_length_um"].to_numpy()[ok], r[ok], label=f"measured, {method.replace('_', ' ')}",
                 **styles.get(method, {}))
     if predicted is not None and len(predicted):
-        r = predicted["dadn"].to_numpy(float)
+        r = predicted["dadn_um_per_cycle"].to_numpy(float)
         ok = np.isfinite(r) & (r > 0)
-        ax.plot(predicted["crack_length"].to_numpy()[ok], r[ok], color="black", lw=1.2, label="predicted")
+        ax.plot(predicted["crack_length_um"].to_numpy()[ok], r[ok], color="black", lw=1.2, label="predicted")
     if dips is not None and len(dips):
         marks = {("measured", "hit"): ("#1b9e77", "-"), ("measured", "miss"): ("#d95f02", "-"),
                  ("predicted", "hit"): ("black", ":"), ("predicted", "false_alarm"): ("#e7298a", ":")}

@@ -58,12 +58,12 @@ def plot_forecast_map(fc, gg, *, ax: Axes | None = None, n_barriers: int = 8, n_
     if len(alts):
         for _b, seg in alts.groupby("branch"):
             for r in seg.itertuples():
-                ax.plot([r.x0, r.x1], [r.y0, r.y1], color=_ALT, lw=1.2, ls="--")
+                ax.plot([r.x0_um, r.x1_um], [r.y0_um, r.y1_um], color=_ALT, lw=1.2, ls="--")
         handles.append(Line2D([], [], color=_ALT, lw=1.2, ls="--", label="alternative paths"))
     p = fc.path
     if len(p):
-        xs = np.r_[p["x0"].to_numpy()[:1], p["x1"].to_numpy()]
-        ys = np.r_[p["y0"].to_numpy()[:1], p["y1"].to_numpy()]
+        xs = np.r_[p["x0_um"].to_numpy()[:1], p["x1_um"].to_numpy()]
+        ys = np.r_[p["y0_um"].to_numpy()[:1], p["y1_um"].to_numpy()]
         ax.plot(xs, ys, color="black", lw=5, solid_capstyle="round")
         ax.plot(xs, ys, color=_PATH, lw=3, solid_capstyle="round")
         handles.append(Line2D([], [], color=_PATH, lw=3, label=f"forecast path ({fc.length_um:.0f} µm)"))
@@ -71,14 +71,14 @@ def plot_forecast_map(fc, gg, *, ax: Axes | None = None, n_barriers: int = 8, n_
     ax.plot(*tip, marker="*", ms=14, color="white", mec="black")
     handles.append(Line2D([], [], marker="*", ms=12, color="white", mec="black", ls="", label="crack tip"))
     for r in fc.barriers.head(n_barriers).itertuples():
-        ax.plot(r.x, r.y, "o", ms=13, color=_BARRIER, mec="black")
-        ax.text(r.x, r.y, str(r.rank), ha="center", va="center", fontsize=7, fontweight="bold")
+        ax.plot(r.x_um, r.y_um, "o", ms=13, color=_BARRIER, mec="black")
+        ax.text(r.x_um, r.y_um, str(r.rank), ha="center", va="center", fontsize=7, fontweight="bold")
     if len(fc.barriers):
         handles.append(Line2D([], [], marker="o", ms=10, color=_BARRIER, mec="black", ls="",
                               label="barrier (rank; score 0–1)"))
     for r in fc.sites.head(n_sites).itertuples():
-        ax.plot(r.x, r.y, "s", ms=11, color=_SITE, mec="black")
-        ax.text(r.x, r.y, str(r.rank), ha="center", va="center", fontsize=7, color="white", fontweight="bold")
+        ax.plot(r.x_um, r.y_um, "s", ms=11, color=_SITE, mec="black")
+        ax.text(r.x_um, r.y_um, str(r.rank), ha="center", va="center", fontsize=7, color="white", fontweight="bold")
     if len(fc.sites):
         handles.append(Line2D([], [], marker="s", ms=9, color=_SITE, mec="black", ls="",
                               label="localisation site (rank; MPa·µm)"))
@@ -114,7 +114,7 @@ def plot_score_terms(fc, *, ax: Axes | None = None) -> Figure:
             ax.bar(b["distance_um"], h, bottom=bottom, width=width, color=c, label=lab,
                    alpha=np.where(b["on_path"], 1.0, 0.5).mean())
             bottom += h
-        ax.plot(b["distance_um"], b["score"], "ko", label="score (× relevance)")
+        ax.plot(b["distance_um"], b["barrier_score"], "ko", label="score (× relevance)")
         for r in b.itertuples():
             ax.text(r.distance_um, bottom[list(b.index).index(r.Index)] + 0.02, f"#{r.rank}", ha="center",
                     fontsize=7)

@@ -44,14 +44,14 @@ def plot_growth_rate(result, ax: Axes | None = None, *, label_barriers: bool = T
     """
     fig, ax = _axes(ax)
     prof = result.profile
-    a = prof["crack_length"].to_numpy(float)
-    r = prof["dadn"].to_numpy(float)
+    a = prof["crack_length_um"].to_numpy(float)
+    r = prof["dadn_um_per_cycle"].to_numpy(float)
     ok = r > 0
     if result.bands is not None:
         b = result.bands
-        lo, hi = b["dadn_p05"].to_numpy(float), b["dadn_p95"].to_numpy(float)
+        lo, hi = b["dadn_um_per_cycle_p05"].to_numpy(float), b["dadn_um_per_cycle_p95"].to_numpy(float)
         good = (lo > 0) & (hi > 0)
-        ax.fill_between(b["crack_length"][good], lo[good], hi[good], color=plt.get_cmap(SCALAR_CMAP)(0.35),
+        ax.fill_between(b["crack_length_um"][good], lo[good], hi[good], color=plt.get_cmap(SCALAR_CMAP)(0.35),
                         alpha=0.25, lw=0, label="5–95 % band")
     ax.plot(a[ok], r[ok], color=plt.get_cmap(SCALAR_CMAP)(0.15), lw=1.6, label="predicted da/dN (µm/cycle)")
     ax.set_xscale("log")
@@ -72,8 +72,8 @@ def plot_growth_rate(result, ax: Axes | None = None, *, label_barriers: bool = T
         rc = np.interp(cross, a[ok], r[ok])
         ax.plot(cross, rc, ls="none", marker="^", ms=6, mfc="white", mec="black", label="slip crosses a barrier")
     if result.dips is not None and len(result.dips):
-        dp = result.dips[(result.dips["dadn_min"] > 0)]
-        ax.plot(dp["crack_length"], dp["dadn_min"], ls="none", marker="v", ms=6,
+        dp = result.dips[(result.dips["dadn_min_um_per_cycle"] > 0)]
+        ax.plot(dp["crack_length_um"], dp["dadn_min_um_per_cycle"], ls="none", marker="v", ms=6,
                 color=plt.get_cmap(SCALAR_CMAP)(0.75), mec="black", label="dip minimum")
     if np.isfinite(result.arrest_length_um):
         ax.axvline(result.arrest_length_um, color=_ARREST_COLOUR, lw=2.0,
@@ -93,14 +93,14 @@ def plot_crack_length(result, ax: Axes | None = None) -> Figure:
     fig, ax = _axes(ax)
     prof = result.profile
     n = prof["cycles"].to_numpy(float)
-    a = prof["crack_length"].to_numpy(float)
+    a = prof["crack_length_um"].to_numpy(float)
     fin = np.isfinite(n)
     if result.bands is not None:
         b = result.bands
         for col, ls in (("cycles_p05", ":"), ("cycles_p95", "--")):
             v = b[col].to_numpy(float)
             f = np.isfinite(v)
-            ax.plot(v[f], b["crack_length"][f], color="0.4", ls=ls, lw=1, label=f"{col[-3:]} percentile (cycles)")
+            ax.plot(v[f], b["crack_length_um"][f], color="0.4", ls=ls, lw=1, label=f"{col[-3:]} percentile (cycles)")
     ax.plot(n[fin], a[fin], color=plt.get_cmap(SCALAR_CMAP)(0.15), lw=1.6, label="predicted a (µm)")
     for d in result.barriers["position_um"]:
         if d <= a.max():
@@ -139,9 +139,9 @@ def plot_growth_on_map(result, gg=None, ax: Axes | None = None) -> Figure:
         ax.imshow(shade, cmap="gray", vmin=0, vmax=1, extent=map_extent(gg.omap), origin="upper",
                   interpolation="nearest")
     prof = result.profile
-    ok = (prof["dadn"] > 0).to_numpy()
-    a = prof["crack_length"].to_numpy(float)[ok]
-    lr = np.log10(prof["dadn"].to_numpy(float)[ok])
+    ok = (prof["dadn_um_per_cycle"] > 0).to_numpy()
+    a = prof["crack_length_um"].to_numpy(float)[ok]
+    lr = np.log10(prof["dadn_um_per_cycle"].to_numpy(float)[ok])
     s0 = path.polyline[0, 0]
     # sample the path every profile point, plus the polyline corners so the drawn line keeps its shape
     s = np.unique(np.concatenate([a[a >= s0], path.polyline[:, 0]]))

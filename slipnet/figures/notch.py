@@ -28,19 +28,20 @@ def plot_plan_map(plan: pd.DataFrame, gg, *, n_best: int = 3):
     fig, ax = plt.subplots(figsize=(7.5, 6.0))
     ax.imshow(img, cmap="gray", vmin=0, vmax=1, extent=extent, origin="upper", interpolation="nearest")
     valid = plan["valid"].to_numpy(dtype=bool) if "valid" in plan else np.ones(len(plan), bool)
-    score = plan["score"].to_numpy(dtype=float)
+    score = plan["plan_score"].to_numpy(dtype=float)
     finite = valid & np.isfinite(score)
     vmin, vmax = (np.nanmin(score[finite]), np.nanmax(score[finite])) if finite.any() else (0.0, 1.0)
     cmap = plt.get_cmap(SCALAR_CMAP)
     for i in range(len(plan)):
         r = plan.iloc[i]
-        c = cmap((r["score"] - vmin) / (vmax - vmin)) if finite[i] and vmax > vmin else (0.6, 0.6, 0.6, 1.0)
-        ax.plot([r["edge_x"], r["x"]], [r["edge_y"], r["y"]], color=c, lw=3, solid_capstyle="round")
-        ax.plot(r["x"], r["y"], "o", ms=4, color=c, mec="black", mew=0.5)
+        c = cmap((r["plan_score"] - vmin) / (vmax - vmin)) if finite[i] and vmax > vmin else (0.6, 0.6, 0.6, 1.0)
+        ax.plot([r["edge_x_um"], r["root_x_um"]], [r["edge_y_um"], r["root_y_um"]], color=c, lw=3,
+                solid_capstyle="round")
+        ax.plot(r["root_x_um"], r["root_y_um"], "o", ms=4, color=c, mec="black", mew=0.5)
     best = plan[finite].nsmallest(n_best, "rank")
     for _, r in best.iterrows():
-        ax.plot(r["x"], r["y"], "*", ms=16, color=_BEST, mec="black", mew=0.8)
-        ax.annotate(f"{int(r['rank'])}", (r["x"], r["y"]), xytext=(7, 7), textcoords="offset points",
+        ax.plot(r["root_x_um"], r["root_y_um"], "*", ms=16, color=_BEST, mec="black", mew=0.8)
+        ax.annotate(f"{int(r['rank'])}", (r["root_x_um"], r["root_y_um"]), xytext=(7, 7), textcoords="offset points",
                     fontsize=11, fontweight="bold", color="black",
                     bbox={"facecolor": "white", "alpha": 0.8, "pad": 1, "edgecolor": "none"})
     sm = plt.cm.ScalarMappable(cmap=cmap, norm=plt.Normalize(vmin, vmax))
@@ -64,7 +65,7 @@ def plot_plan_terms(plan: pd.DataFrame, weights=None):
     ``weights`` is given).
     """
     t = plan.copy()
-    along = np.hypot(t["edge_x"] - t["edge_x"].min(), t["edge_y"] - t["edge_y"].min())
+    along = np.hypot(t["edge_x_um"] - t["edge_x_um"].min(), t["edge_y_um"] - t["edge_y_um"].min())
     t = t.assign(_s=along).sort_values("_s")
     terms = [c for c in t.columns if c.startswith("term_")]
     weights = dict(weights or {})
@@ -76,7 +77,7 @@ def plot_plan_terms(plan: pd.DataFrame, weights=None):
     colors = plt.get_cmap("tab10")
     for k, c in enumerate(terms):
         ax.plot(t["_s"], t[c], "-o", ms=3, color=colors(k), label=c.removeprefix("term_").replace("_", " "))
-    ax.plot(t["_s"], t["score"], "-", lw=2.5, color="black", label="score")
+    ax.plot(t["_s"], t["plan_score"], "-", lw=2.5, color="black", label="plan score")
     ax.set_ylabel("normalised term (–), 1 = best")
     ax.set_ylim(-0.05, 1.05)
     ax.legend(fontsize=7, ncol=2, loc="best")

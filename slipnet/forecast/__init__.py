@@ -12,7 +12,6 @@ from slipnet.forecast.crack import (
 )
 from slipnet.forecast.monte_carlo import (
     monte_carlo,
-    perturb_quats,
 )
 from slipnet.forecast.types import (
     CLASS_FACTORS,
@@ -31,6 +30,5 @@ __all__ = [
     "crack_plane_angles",
     "forecast_crack",
     "monte_carlo",
-    "perturb_quats",
     "rank_barriers",
 ]

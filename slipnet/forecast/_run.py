@@ -5,14 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from slipnet.forecast._core import (
-    _Crystal,
-    _distance_to_segments,
-    _field,
-    _Opts,
-    _sites,
-    _trace_all,
-)
+from slipnet.columns import FORECAST_ALTERNATIVES, SEGMENT_XY
+from slipnet.forecast._core import _distance_to_segments, _Opts, _trace_all
+from slipnet.forecast._geometry import _Crystal
+from slipnet.forecast._sites import _field, _sites
 from slipnet.forecast.barriers import rank_barriers
 
 
@@ -21,8 +17,7 @@ def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts
     cry = _Crystal(quats, load, planes, schmid)
     states, alt_cross = _trace_all(geo, cry, planes, float(tip[0]), float(tip[1]), grain0, opts)
     main = states[0]
-    seg_cols = ["grain", "x0", "y0", "x1", "y1", "length_um", "s_start_um", "system", "plane", "schmid", "stage",
-                "direction_deg", "leg", "end", "branch"]
+    seg_cols = list(FORECAST_ALTERNATIVES)
     path = pd.DataFrame(main.segments, columns=seg_cols).drop(columns="branch")
     alts = pd.DataFrame([s for st in states[1:] for s in st.segments], columns=seg_cols)
     crossings = pd.DataFrame(main.crossings + alt_cross)
@@ -37,9 +32,9 @@ def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts
         cand = cand[(dist <= opts.horizon + 0.5 * geo.ecd[cand]) | np.isin(cand, list(on))]
     sites, bands = _sites(geo, cry, planes, cand, amplitude, want_bands=want_field,
                           max_gap=min(opts.max_gap, 3.0 * geo.step))
-    segs = pd.concat([path[["x0", "y0", "x1", "y1"]], alts[["x0", "y0", "x1", "y1"]]]).to_numpy(float)
+    segs = pd.concat([path[list(SEGMENT_XY)], alts[list(SEGMENT_XY)]]).to_numpy(float)
     if len(sites) and len(segs):
-        dpath = _distance_to_segments(sites["x"].to_numpy(float), sites["y"].to_numpy(float), segs)
+        dpath = _distance_to_segments(sites["x_um"].to_numpy(float), sites["y_um"].to_numpy(float), segs)
         radius = site_radius if site_radius is not None else float(np.median(geo.ecd[path["grain"].to_numpy()]))
         sites = sites.assign(path_distance_um=dpath)[dpath <= radius].reset_index(drop=True)
         sites["rank"] = np.arange(1, len(sites) + 1)

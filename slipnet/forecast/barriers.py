@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from slipnet.columns import FORECAST_BARRIERS
 from slipnet.errors import ParameterError
 from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights
 
@@ -37,11 +38,11 @@ def rank_barriers(
     -------
     DataFrame
         One row per boundary (the main-path crossing when the boundary is on it, else its first
-        crossing by an alternative), sorted by ``score`` (descending), ``rank`` from 1.
+        crossing by an alternative), sorted by ``barrier_score`` (descending), ``rank`` from 1.
 
     Notes
     -----
-    ``score = relevance · Σ_k w_k·term_k / Σ_k w_k`` with ``term_twist = α/90°``,
+    ``barrier_score = relevance · Σ_k w_k·term_k / Σ_k w_k`` with ``term_twist = α/90°``,
     ``term_transmission = 1 − |m′|``, ``term_class`` from the boundary class and
     ``term_schmid_drop = max(0, m_eff,in − m_eff,out)/0.5``; every term lies in [0, 1].
     A boundary between identical orientations has twist 0, |m′| = 1 and no Schmid drop, so only
@@ -50,10 +51,7 @@ def rank_barriers(
     w = weights or BarrierWeights()
     cf = CLASS_FACTORS if class_factors is None else class_factors
     decay_length_um = _check_decay(decay_length_um)
-    cols = ["rank", "boundary_id", "grain_a", "grain_b", "score", "twist_deg", "tilt_deg", "m_prime",
-            "distance_um", "on_path", "term_twist", "term_transmission", "term_class", "term_schmid_drop",
-            "relevance", "weight_twist", "weight_transmission", "weight_class", "weight_schmid_drop",
-            "boundary_class", "misorientation_deg", "schmid_in", "schmid_out", "x", "y", "branches"]
+    cols = list(FORECAST_BARRIERS)
     if crossings is None or len(crossings) == 0:
         return pd.DataFrame({c: pd.Series(dtype=object if c in ("boundary_class", "branches") else float)
                              for c in cols})
@@ -80,7 +78,7 @@ def rank_barriers(
         "boundary_class": col["boundary_class"][idx].astype(str),
         "misorientation_deg": mis[idx].astype(float),
         "schmid_in": col["schmid_in"][idx].astype(float), "schmid_out": col["schmid_out"][idx].astype(float),
-        "x": col["x"][idx].astype(float), "y": col["y"][idx].astype(float),
+        "x_um": col["x_um"][idx].astype(float), "y_um": col["y_um"][idx].astype(float),
         "branches": [";".join(str(b) for b in sorted(seen[keys[i]])) for i in idx],
     })
     out["term_twist"] = np.clip(out["twist_deg"].to_numpy() / 90.0, 0.0, 1.0)
@@ -98,8 +96,9 @@ def rank_barriers(
         raise ParameterError(f"barrier weights should have a positive sum; got {w}")
     raw = (w.twist * out["term_twist"] + w.transmission * out["term_transmission"]
            + w.boundary_class * out["term_class"] + w.schmid_drop * out["term_schmid_drop"]) / wsum
-    out["score"] = out["relevance"] * raw
-    out = out.sort_values(["score", "distance_um"], ascending=[False, True], kind="stable").reset_index(drop=True)
+    out["barrier_score"] = out["relevance"] * raw
+    out = out.sort_values(["barrier_score", "distance_um"], ascending=[False, True], kind="stable")
+    out = out.reset_index(drop=True)
     out["rank"] = np.arange(1, len(out) + 1)
     return out[cols]
 

@@ -59,14 +59,8 @@ import numpy as np
 from slipnet._checks import check_positive, check_vector
 from slipnet.crystal.slip_systems import slip_systems
 from slipnet.errors import ParameterError
-from slipnet.forecast._core import (
-    _make_opts,
-    _parse_tip,
-    _Planes,
-    _start_grain,
-    crack_plane_angles,
-    geometry_of,
-)
+from slipnet.forecast._core import _make_opts, _parse_tip, _start_grain
+from slipnet.forecast._geometry import _Planes, crack_plane_angles, geometry_of
 from slipnet.forecast._run import run_forecast_pass
 from slipnet.forecast.barriers import _check_decay
 from slipnet.forecast.monte_carlo import monte_carlo

@@ -18,56 +18,11 @@ from dataclasses import fields, replace
 import numpy as np
 import pandas as pd
 
-from slipnet.crystal.orientation import quat_from_axis_angle
+from slipnet.crystal.perturb import perturb_sample
 from slipnet.forecast._core import _start_grain
 from slipnet.forecast._run import run_forecast_pass
 
-__all__ = ["monte_carlo", "perturb_quats"]
-
-
-def _qmul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Hamilton product of (n, 4) rows in plain numpy (cheaper than a threaded kernel for grains)."""
-    aw, ax, ay, az = a.T
-    bw, bx, by, bz = b.T
-    return np.stack([aw * bw - ax * bx - ay * by - az * bz, aw * bx + ax * bw + ay * bz - az * by,
-                     aw * by - ax * bz + ay * bw + az * bx, aw * bz + ax * by - ay * bx + az * bw], axis=-1)
-
-
-def perturb_quats(quats: np.ndarray, sigma_deg: float, rng: np.random.Generator) -> np.ndarray:
-    """Rotate each orientation by a normal(0, σ) angle about a uniformly random axis.
-
-    Parameters
-    ----------
-    quats : (n, 4) ndarray
-    sigma_deg
-        Standard deviation of the rotation angle, degrees.
-    rng
-        Random generator (consumed: 4 draws per orientation).
-
-    Returns
-    -------
-    (n, 4) ndarray
-    """
-    n = quats.shape[0]
-    axes = rng.normal(size=(n, 3))
-    angles = rng.normal(0.0, sigma_deg, size=n)
-    if sigma_deg <= 0 or n == 0:
-        return quats.copy()
-    dq = quat_from_axis_angle(axes, angles)
-    q = _qmul(dq, quats)
-    return np.where(q[:, :1] < 0, -q, q)
-
-
-def _perturb_axis(axis: np.ndarray, sigma_deg: float, rng: np.random.Generator) -> np.ndarray:
-    a = rng.normal(size=3)
-    ang = np.radians(rng.normal(0.0, sigma_deg))
-    a = a - (a @ axis) * axis
-    na = np.linalg.norm(a)
-    if sigma_deg <= 0 or na < 1e-12:
-        return axis.copy()
-    a /= na
-    out = axis * np.cos(ang) + np.cross(a, axis) * np.sin(ang)
-    return out / np.linalg.norm(out)
+__all__ = ["monte_carlo"]
 
 
 def _jitter(wobj, sigma: float, rng: np.random.Generator):
@@ -97,9 +52,10 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     site_top = dict.fromkeys(site_keys, 0)
     rows = []
     for s in range(samples):
-        q = perturb_quats(quats, noise.orientation_deg, rng)
-        ld = load if schmid is not None else _perturb_axis(load, noise.load_deg, rng)
-        t = tip + rng.normal(0.0, noise.tip_um, size=2)
+        q, ld, dt = perturb_sample(rng, quats, noise.orientation_deg, load, noise.load_deg, tip, noise.tip_um)
+        if schmid is not None:  # local factors come from a solve at the nominal load: no misalignment
+            ld = load
+        t = tip + dt
         pw = _jitter(opts.pw, noise.weights, rng)
         bws = _jitter(bw, noise.weights, rng)
         reset = geo.label_at(t[0], t[1]) < 0
@@ -123,14 +79,14 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                 site_top[k] += bool(rk <= top_k)
         path = res["path"]
         rows.append({
-            "sample": s, "tip_x": float(t[0]), "tip_y": float(t[1]), "tip_reset": bool(reset),
+            "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": bool(reset),
             "load_x": float(ld[0]), "load_y": float(ld[1]), "load_z": float(ld[2]),
             "path_length_um": float(path["length_um"].sum()), "n_crossings": int((res["crossings"].get(
                 "branch", pd.Series(dtype=int)) == 0).sum()) if len(res["crossings"]) else 0,
             "stop_reason": res["stop"],
             "top_barrier_id": int(b["boundary_id"].iloc[0]) if len(b) else -1,
-            "end_x": float(path["x1"].iloc[-1]) if len(path) else float(t[0]),
-            "end_y": float(path["y1"].iloc[-1]) if len(path) else float(t[1]),
+            "end_x_um": float(path["x1_um"].iloc[-1]) if len(path) else float(t[0]),
+            "end_y_um": float(path["y1_um"].iloc[-1]) if len(path) else float(t[1]),
         })
     n = float(samples)
     barriers = fc.barriers.copy()

@@ -96,29 +96,33 @@ class MonteCarloNoise:
 class CrackForecast:
     """Result of :func:`forecast_crack`.
 
+    Columns of every table: :mod:`slipnet.columns`.
+
     Attributes
     ----------
     path : DataFrame
-        Main path, one row per straight segment: ``grain``, ``x0``, ``y0``, ``x1``, ``y1`` (µm),
+        Main path, one row per straight segment: ``grain``, ``x0_um``, ``y0_um``, ``x1_um``,
+        ``y1_um``,
         ``length_um``, ``s_start_um`` (distance along the path from the tip), ``system`` (index
-        into the catalogue, −1 in stage II), ``plane`` (Miller label), ``schmid`` (effective
-        factor of that system in that grain), ``stage`` ("I"/"II"), ``direction_deg`` (from +x
+        into the catalogue, −1 in stage II), ``plane`` (Miller label), ``effective_schmid``
+        (of that system in that grain), ``stage`` ("I"/"II"), ``direction_deg`` (from +x
         towards +y), ``leg`` ("trace"/"zigzag"/"stage2"), ``end`` (what stopped the segment).
     crossings : DataFrame
         One row per boundary crossing of the main path and of the alternatives (``branch``):
-        ``boundary_id``, ``grain_a`` (from), ``grain_b`` (into), ``x``, ``y`` (µm),
+        ``boundary_id``, ``grain_a`` (from), ``grain_b`` (into), ``x_um``, ``y_um``,
         ``distance_um``, ``twist_deg``, ``tilt_deg``, ``m_prime``, ``schmid_in``, ``schmid_out``,
         the choice-score terms ``choice_*`` and ``choice_score``, ``n_close`` (other planes within
         the branch tolerance).
     barriers : DataFrame
         Ranked boundaries (``rank`` 1 = strongest): ``boundary_id``, ``grain_a``, ``grain_b``,
-        ``score``, ``twist_deg``, ``tilt_deg``, ``m_prime``, ``distance_um``, ``on_path``, the
+        ``barrier_score``, ``twist_deg``, ``tilt_deg``, ``m_prime``, ``distance_um``, ``on_path``, the
         terms ``term_*``, the weights ``weight_*``, ``relevance``, ``boundary_class``, ``branches``,
         and with Monte Carlo ``p_on_path``, ``p_top_k``.
     sites : DataFrame
-        Ranked localisation sites: ``rank``, ``x``, ``y`` (µm), ``score`` (MPa·µm), ``grain``,
+        Ranked localisation sites: ``rank``, ``x_um``, ``y_um``, ``site_score_mpa_um``,
+        ``grain``,
         ``blocking_grain``, ``boundary_id``, ``system``, ``plane``, ``resolved_shear_mpa``,
-        ``band_length_um``, ``transmission``; with Monte Carlo ``p_present``, ``p_top_k``.
+        ``band_length_um``, ``transmission_score``; with Monte Carlo ``p_present``, ``p_top_k``.
     alternatives : DataFrame
         Segments of the alternative paths (same columns as ``path`` plus ``branch`` ≥ 1).
     field : (ny, nx) ndarray or None

@@ -9,25 +9,35 @@ from slipnet.growth.calibration import (
     life_amplitude,
 )
 from slipnet.growth.model import (
-    GrowthParameters,
     GrowthResult,
-    barrier_strengths,
-    crossing_lengths,
     growth_profile,
-    plastic_zone_ratio,
     predicted_dips,
     simulate_growth,
-    sliding_displacement,
-    threshold_amplitudes,
-    zone_state,
 )
 from slipnet.growth.path import (
     GrowthPath,
     path_from_forecast,
     path_from_tables,
 )
+from slipnet.growth.strip_yield import (
+    GrowthParameters,
+    plastic_zone_ratio,
+    sliding_displacement,
+)
+from slipnet.growth.zones import (
+    ARRESTED,
+    BLOCKED,
+    SPREADING,
+    barrier_strengths,
+    crossing_lengths,
+    threshold_amplitudes,
+    zone_state,
+)
 
 __all__ = [
+    "ARRESTED",
+    "BLOCKED",
+    "SPREADING",
     "CalibrationResult",
     "GrowthParameters",
     "GrowthPath",

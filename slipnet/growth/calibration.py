@@ -22,18 +22,10 @@ from scipy import stats as sps
 
 from slipnet._checks import check_positive, check_range
 from slipnet.errors import NumericalError, ParameterError
-from slipnet.growth.model import (
-    GrowthParameters,
-    _as_stress,
-    _grid,
-    _integrate_cycles,
-    _params,
-    _run,
-    crossing_lengths,
-    threshold_amplitudes,
-    zone_state,
-)
+from slipnet.growth.model import _grid, _integrate_cycles, _run
 from slipnet.growth.path import GrowthPath
+from slipnet.growth.strip_yield import GrowthParameters, _as_stress, _params
+from slipnet.growth.zones import crossing_lengths, threshold_amplitudes, zone_state
 
 __all__ = ["CalibrationResult", "calibrate", "life_amplitude"]
 

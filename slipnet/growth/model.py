@@ -31,28 +31,23 @@ import numpy as np
 import pandas as pd
 from scipy import integrate
 
-from slipnet._checks import check_positive, check_range
+from slipnet._checks import check_positive
+from slipnet.columns import GROWTH_DIPS
 from slipnet.errors import NumericalError, ParameterError
 from slipnet.growth.path import GrowthPath, path_from_forecast, path_from_tables
+from slipnet.growth.strip_yield import GrowthParameters, _check_amplitude, _params
+from slipnet.growth.zones import (
+    ARRESTED,
+    BLOCKED,
+    SPREADING,
+    barrier_strengths,
+    crossing_lengths,
+    threshold_amplitudes,
+    zone_state,
+)
 
-__all__ = [
-    "GrowthParameters",
-    "GrowthResult",
-    "barrier_strengths",
-    "crossing_lengths",
-    "growth_profile",
-    "plastic_zone_ratio",
-    "predicted_dips",
-    "simulate_growth",
-    "sliding_displacement",
-    "threshold_amplitudes",
-    "zone_state",
-]
+__all__ = ["GrowthResult", "growth_profile", "predicted_dips", "simulate_growth"]
 
-#: Zone states written in the ``zone_state`` column.
-BLOCKED = "blocked"
-SPREADING = "spreading"
-ARRESTED = "arrested"
 
 
 # --------------------------------------------------------------------------------------------
@@ -60,103 +55,10 @@ ARRESTED = "arrested"
 # --------------------------------------------------------------------------------------------
 
 
-def _as_stress(stress, name: str = "stress") -> np.ndarray:
-    try:
-        s = np.asarray(stress, dtype=float)
-    except (TypeError, ValueError) as err:
-        raise ParameterError(f"{name} should be a number or array of numbers (MPa); got {stress!r}") from err
-    if not np.all(np.isfinite(s)):
-        raise ParameterError(f"{name} should be finite (MPa); got {stress!r}")
-    if np.any(s < 0):
-        raise ParameterError(f"{name} should be >= 0 MPa (an amplitude); got a negative value {s.min():g}")
-    return s
 
 
-def plastic_zone_ratio(stress, friction_stress: float) -> np.ndarray | float:
-    """Unblocked strip-yield ratio n = a/c = cos(πσ / (2σ_f)).
-
-    Bilby, Cottrell & Swinden (1963), Proc. R. Soc. A 272:304: a crack of half-length ``a`` with a
-    slip band (plastic zone) to ``c`` resisting slip with friction stress σ_f is in equilibrium
-    under the applied stress σ when the stress singularity at ``c`` vanishes.
-
-    Parameters
-    ----------
-    stress
-        Applied stress σ (MPa), scalar or array of any shape, 0 ≤ σ < σ_f.
-    friction_stress
-        Friction stress σ_f (MPa), > 0.
-
-    Returns
-    -------
-    float or ndarray
-        n in (0, 1], same shape as ``stress``.
-
-    Raises
-    ------
-    ParameterError
-        Negative stress, or σ ≥ σ_f (the zone would grow without bound: general yield).
-    """
-    sf = check_positive(friction_stress, "friction_stress")
-    s = _as_stress(stress)
-    if np.any(s >= sf):
-        raise ParameterError(
-            f"stress should be below friction_stress={sf:g} MPa (n = cos(πσ/2σ_f) is undefined at general "
-            f"yield); got {s.max():g} MPa"
-        )
-    n = np.cos(0.5 * np.pi * s / sf)
-    return float(n) if n.ndim == 0 else n
 
 
-def sliding_displacement(
-    crack_length,
-    zone_end,
-    stress,
-    friction_stress: float,
-    *,
-    shear_modulus: float = 82.0,
-    poisson_ratio: float = 0.29,
-) -> np.ndarray:
-    """Crack tip sliding displacement φ (µm) of a strip-yield crack whose zone ends at ``zone_end``.
-
-    φ = (2(1−ν)/G) · c · [ (2σ_f/π) n ln(1/n) + (σ − (2σ_f/π) arccos n) √(1 − n²) ],  n = a/c.
-
-    The first term is the Bilby–Cottrell–Swinden (1963) / Dugdale tip displacement of a zone in
-    equilibrium; the second adds the slip of the unbalanced stress σ − (2σ_f/π) arccos n carried by
-    a zone blocked at a barrier (Navarro & de los Rios 1988 structure). The constant was derived
-    here by superposing the two solutions (see ``docs/growth-model.md``), edge dislocations assumed.
-
-    Parameters
-    ----------
-    crack_length, zone_end
-        a and c (µm), broadcastable arrays, 0 < a ≤ c.
-    stress
-        Applied stress amplitude σ (MPa).
-    friction_stress
-        σ_f (MPa).
-    shear_modulus
-        G (GPa).
-    poisson_ratio
-        ν.
-
-    Returns
-    -------
-    ndarray
-        φ (µm), broadcast shape of the inputs; 0 where a = c.
-    """
-    a = np.asarray(crack_length, dtype=float)
-    c = np.asarray(zone_end, dtype=float)
-    s = _as_stress(stress)
-    sf = check_positive(friction_stress, "friction_stress")
-    g = check_positive(shear_modulus, "shear_modulus") * 1e3  # GPa → MPa
-    nu = check_range(poisson_ratio, "poisson_ratio", -1.0, 0.5, inclusive=False)
-    if np.any(a <= 0) or np.any(c < a):
-        raise ParameterError("crack_length should be > 0 µm and zone_end >= crack_length")
-    n = np.clip(a / c, 1e-300, 1.0)
-    unbalanced = s - (2.0 * sf / np.pi) * np.arccos(n)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        nlog = np.where(n < 1.0, -n * np.log(n), 0.0)
-    phi = (2.0 * (1.0 - nu) / g) * c * ((2.0 * sf / np.pi) * nlog + unbalanced * np.sqrt(np.clip(1.0 - n * n, 0, None)))
-    return np.clip(phi, 0.0, None)
 
 
 # --------------------------------------------------------------------------------------------
@@ -164,72 +66,10 @@ def sliding_displacement(
 # --------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class GrowthParameters:
-    """Constants of the growth model (defaults are illustrative, for a ferritic steel; calibrate them).
-
-    Attributes
-    ----------
-    friction_stress
-        σ_f, friction stress of the strip-yield zone (MPa, in applied-stress-amplitude units).
-    coefficient
-        C in da/dN = C φ^m (µm/cycle per µm^m).
-    exponent
-        m in da/dN = C φ^m.
-    barrier_stress
-        S_c, stress on a source beyond a neutral barrier (|m′| = 1, no twist, equal orientation factors)
-        needed to start slip there (MPa).
-    source_distance
-        r₀, distance of that source beyond the barrier (µm).
-    shear_modulus
-        G (GPa); α-iron about 82 GPa (from memory).
-    poisson_ratio
-        ν; iron about 0.29 (from memory).
-    transmission_weight
-        k_m: critical stress multiplied by 1 + k_m(1 − |m′|) + k_α sin(twist) (our coupling).
-    twist_weight
-        k_α of the same coupling.
-    """
-
-    friction_stress: float = 400.0
-    coefficient: float = 0.05
-    exponent: float = 1.5
-    barrier_stress: float = 500.0
-    source_distance: float = 1.0
-    shear_modulus: float = 82.0
-    poisson_ratio: float = 0.29
-    transmission_weight: float = 0.5
-    twist_weight: float = 0.5
-
-    def __post_init__(self) -> None:
-        for name in ("friction_stress", "coefficient", "exponent", "barrier_stress", "source_distance",
-                     "shear_modulus"):
-            object.__setattr__(self, name, check_positive(getattr(self, name), name))
-        for name in ("transmission_weight", "twist_weight"):
-            object.__setattr__(self, name, check_positive(getattr(self, name), name, allow_zero=True))
-        object.__setattr__(self, "poisson_ratio",
-                           check_range(self.poisson_ratio, "poisson_ratio", -1.0, 0.5, inclusive=False))
 
 
-def _params(params: GrowthParameters | None, **overrides) -> GrowthParameters:
-    base = params if params is not None else GrowthParameters()
-    given = {k: v for k, v in overrides.items() if v is not None}
-    return replace(base, **given) if given else base
 
 
-def _check_amplitude(stress_amplitude: float, p: GrowthParameters) -> float:
-    s = _as_stress(stress_amplitude, "stress_amplitude")
-    if s.ndim != 0:
-        raise ParameterError("stress_amplitude should be a single number (MPa)")
-    s = float(s)
-    if s <= 0:
-        raise ParameterError(f"stress_amplitude should be > 0 MPa; got {s:g}")
-    if s >= p.friction_stress:
-        raise ParameterError(
-            f"stress_amplitude should be below friction_stress={p.friction_stress:g} MPa (the strip-yield "
-            f"zone is unbounded at σ ≥ σ_f); got {s:g} MPa"
-        )
-    return s
 
 
 # --------------------------------------------------------------------------------------------
@@ -237,134 +77,12 @@ def _check_amplitude(stress_amplitude: float, p: GrowthParameters) -> float:
 # --------------------------------------------------------------------------------------------
 
 
-def barrier_strengths(path: GrowthPath, params: GrowthParameters | None = None) -> np.ndarray:
-    """Critical stress S_c,k (MPa) on the source beyond each barrier.
-
-    S_c,k = S_c · (f₀ / f_{k+1}) · (1 + k_m (1 − |m′_k|) + k_α sin α_k) · scale_k
-
-    with f the grain orientation factors (Schmid-type; the ratio follows the m_i/m_1 weighting of
-    Navarro & de los Rios 1988, written for Schmid rather than Taylor-type factors), |m′| of
-    Luster & Morris (1995) and the twist α of Zhai, Wilkinson & Martin (2000). The linear coupling to
-    |m′| and sin α is our own assumption.
-
-    Returns
-    -------
-    ndarray
-        (k,) MPa.
-    """
-    p = _params(params)
-    f = path.grain_factors
-    weight = 1.0 + p.transmission_weight * (1.0 - path.m_prime) + p.twist_weight * np.abs(
-        np.sin(np.radians(path.twist_deg)))
-    return p.barrier_stress * (f[0] / f[1:]) * weight * path.strength_scale
 
 
-def threshold_amplitudes(path: GrowthPath, params: GrowthParameters | None = None) -> np.ndarray:
-    """Stress amplitude (MPa) below which a crack that reaches barrier k arrests there.
-
-    With the zone blocked at c = d_k, the stress on the source at r₀ beyond it is, to leading order,
-    S = (σ − (2σ_f/π) arccos n) √(c / 2r₀) (Navarro & de los Rios 1988). It is largest as the tip
-    reaches the barrier (n → 1, arccos n → 0), so slip can cross only if σ √(d_k/2r₀) ≥ S_c,k:
-
-        σ_th,k = S_c,k √(2 r₀ / d_k)
-
-    (for equal barriers, the 1/√i fall with grain number i of Navarro & de los Rios 1988). The
-    condition is linear in σ, so no numerical root-finding is needed. The amplitude that lets a crack
-    pass barriers 0..k is ``np.maximum.accumulate`` of this.
-
-    Returns
-    -------
-    ndarray
-        (k,) MPa.
-    """
-    p = _params(params)
-    return barrier_strengths(path, p) * np.sqrt(2.0 * p.source_distance / path.barrier_positions_um)
 
 
-def crossing_lengths(path: GrowthPath, stress_amplitude: float, params: GrowthParameters | None = None) -> np.ndarray:
-    """Crack length (µm) at which slip crosses each barrier; ``inf`` where the crack arrests first.
-
-    Blocked at d_k, slip crosses when σ − (2σ_f/π) arccos(a/d_k) ≥ σ_th,k, i.e. at
-    a_k = d_k cos(π(σ − σ_th,k)/(2σ_f)). A barrier can only be reached once the earlier ones are
-    crossed, so the crossing lengths are the running maximum; after the first arrest all are ``inf``.
-
-    Returns
-    -------
-    ndarray
-        (k,) µm, nondecreasing.
-    """
-    p = _params(params)
-    s = _check_amplitude(stress_amplitude, p)
-    d = path.barrier_positions_um
-    sth = threshold_amplitudes(path, p)
-    with np.errstate(invalid="ignore"):
-        root = d * np.cos(0.5 * np.pi * (s - sth) / p.friction_stress)
-    root = np.where(s >= sth, root, np.inf)
-    return np.maximum.accumulate(root) if root.size else root
 
 
-def zone_state(
-    path: GrowthPath,
-    crack_length,
-    stress_amplitude: float,
-    params: GrowthParameters | None = None,
-    *,
-    crossings: np.ndarray | None = None,
-) -> dict[str, np.ndarray]:
-    """Where the plastic zone ends for each crack length, and the resulting CTSD and rate.
-
-    Parameters
-    ----------
-    path
-        The path.
-    crack_length
-        (p,) crack lengths a along the path (µm), > 0.
-    stress_amplitude
-        σ (MPa).
-    params
-        Model constants.
-    crossings
-        Precomputed :func:`crossing_lengths` (optional).
-
-    Returns
-    -------
-    dict
-        ``zone_end`` (p,) µm, ``n_ratio`` (p,), ``blocked`` (p,) bool, ``barrier`` (p,) int index of
-        the blocking barrier (−1 when spreading), ``grain_index`` (p,) index of the grain holding the tip,
-        ``ctsd`` (p,) µm, ``dadn`` (p,) µm/cycle, ``arrested`` (p,) bool (tip at or past an arrest barrier).
-    """
-    p = _params(params)
-    s = _check_amplitude(stress_amplitude, p)
-    a = np.asarray(crack_length, dtype=float).reshape(-1)
-    if a.size == 0 or np.any(~np.isfinite(a)) or np.any(a <= 0):
-        raise ParameterError("crack_length should be finite and > 0 µm")
-    d = path.barrier_positions_um
-    x = crossing_lengths(path, s, p) if crossings is None else crossings
-    c_eq = a / plastic_zone_ratio(s, p.friction_stress)
-    # first barrier the free zone would not reach, and first barrier not yet crossed: both indices are
-    # ≥ the grain holding the tip because every barrier behind the tip is at < a < c_eq and crossed.
-    k_free = np.searchsorted(d, c_eq, side="left")
-    k_block = np.searchsorted(x, a, side="right")
-    blocked = k_block < k_free
-    kb = np.minimum(k_block, max(d.size - 1, 0))
-    zone_end = np.where(blocked, d[kb] if d.size else c_eq, c_eq)
-    arrest_at = np.flatnonzero(~np.isfinite(x))
-    arrested = a >= d[arrest_at[0]] if arrest_at.size else np.zeros(a.shape, bool)
-    zone_end = np.where(arrested, a, np.maximum(zone_end, a))
-    ctsd = sliding_displacement(a, zone_end, s, p.friction_stress, shear_modulus=p.shear_modulus,
-                                poisson_ratio=p.poisson_ratio)
-    ctsd = np.where(arrested, 0.0, ctsd)
-    return {
-        "zone_end": zone_end,
-        "n_ratio": a / zone_end,
-        "blocked": blocked | arrested,
-        "barrier": np.where(blocked | arrested, np.where(arrested, arrest_at[0] if arrest_at.size else -1, k_block),
-                            -1),
-        "grain_index": np.searchsorted(d, a, side="right"),
-        "ctsd": ctsd,
-        "dadn": p.coefficient * ctsd**p.exponent,
-        "arrested": arrested,
-    }
 
 
 # --------------------------------------------------------------------------------------------
@@ -379,14 +97,14 @@ class GrowthResult:
     Attributes
     ----------
     profile
-        DataFrame, one row per crack length: ``crack_length`` (µm along the path), ``cycles`` (inf
-        after arrest), ``dadn`` (µm/cycle), ``ctsd_um``, ``zone_end_um``, ``n_ratio``, ``zone_state``
+        DataFrame, one row per crack length: ``crack_length_um`` (along the path), ``cycles`` (inf
+        after arrest), ``dadn_um_per_cycle``, ``ctsd_um``, ``zone_end_um``, ``n_ratio``, ``zone_state``
         ("spreading" | "blocked" | "arrested"), ``barrier`` (index of the blocking barrier or −1),
         ``grain`` (grain id, or the grain index along the path when ids are unknown), ``arrested``.
     barriers
         DataFrame per barrier: ``barrier``, ``position_um``, ``critical_stress_mpa``,
         ``threshold_amplitude_mpa``, ``pass_amplitude_mpa`` (needed to pass it and all before),
-        ``crossing_length_um`` (inf where arrested), ``dip_length_um``, ``dip_depth``, ``arrest`` and
+        ``crossing_length_um`` (inf where arrested), ``dip_length_um``, ``dip_depth_ratio``, ``arrest`` and
         the path factors.
     dips
         :func:`predicted_dips` of the profile.
@@ -451,9 +169,9 @@ def _profile_frame(path: GrowthPath, a: np.ndarray, st: dict, cycles: np.ndarray
     grain = np.where(path.grains[gidx] >= 0, path.grains[gidx], gidx)
     state = np.where(st["arrested"], ARRESTED, np.where(st["blocked"], BLOCKED, SPREADING))
     return pd.DataFrame({
-        "crack_length": a,
+        "crack_length_um": a,
         "cycles": cycles,
-        "dadn": st["dadn"],
+        "dadn_um_per_cycle": st["dadn"],
         "ctsd_um": st["ctsd"],
         "zone_end_um": st["zone_end"],
         "n_ratio": st["n_ratio"],
@@ -563,11 +281,11 @@ def simulate_growth(
     table["crossing_length_um"] = x
     table["arrest"] = ~np.isfinite(x) & (np.arange(x.size) == (np.argmax(~np.isfinite(x)) if x.size else 0))
     table["dip_length_um"] = np.nan
-    table["dip_depth"] = np.nan
+    table["dip_depth_ratio"] = np.nan
     if len(dips):
         idx = dips["barrier"].to_numpy()
-        table.loc[idx, "dip_length_um"] = dips["crack_length"].to_numpy()
-        table.loc[idx, "dip_depth"] = dips["depth"].to_numpy()
+        table.loc[idx, "dip_length_um"] = dips["crack_length_um"].to_numpy()
+        table.loc[idx, "dip_depth_ratio"] = dips["depth_ratio"].to_numpy()
     arrest = np.flatnonzero(~np.isfinite(x))
     arrest_len = float(d[arrest[0]]) if arrest.size and d[arrest[0]] <= a1 else math.inf
 
@@ -597,8 +315,8 @@ def growth_profile(
     Returns
     -------
     DataFrame
-        ``crack_length`` (µm along the path from its start, the strip-yield half-length a),
-        ``cycles`` (counts from ``initial_length``; ``inf`` once arrested), ``dadn`` (µm/cycle),
+        ``crack_length_um`` (along the path from its start, the strip-yield half-length a),
+        ``cycles`` (counts from ``initial_length``; ``inf`` once arrested), ``dadn_um_per_cycle``,
         ``grain``, ``zone_state``, ``n_ratio``, ``barrier``, ``ctsd_um``, ``zone_end_um``, ``arrested``.
     """
     return simulate_growth(forecast_or_path, stress_amplitude, friction_stress=friction_stress,
@@ -611,7 +329,7 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
 
     For each barrier k the zone was blocked at, the dip is the lowest rate after the rate's peak while
     blocked there (the rate falls as the tip nears the barrier, Navarro & de los Rios 1988); its
-    ``depth`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
+    ``depth_ratio`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
     crack arrests at k). Barriers still blocking at the end of the profile are left out.
 
     Parameters
@@ -622,16 +340,17 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
     Returns
     -------
     DataFrame
-        ``barrier`` (index), ``crack_length`` (µm at the dip minimum), ``dadn_min``, ``dadn_peak``
-        (highest rate while blocked), ``dadn_after`` (µm/cycle), ``depth``, ``crossing_length_um``
+        ``barrier`` (index), ``crack_length_um`` (at the dip minimum), ``dadn_min_um_per_cycle``,
+        ``dadn_peak_um_per_cycle`` (highest rate while blocked), ``dadn_after_um_per_cycle``,
+        ``depth_ratio``, ``crossing_length_um``
         (inf when arrested), ``arrest`` (bool).
     """
     prof = profile_or_result.profile if isinstance(profile_or_result, GrowthResult) else profile_or_result
-    need = {"crack_length", "dadn", "barrier", "zone_state"}
+    need = {"crack_length_um", "dadn_um_per_cycle", "barrier", "zone_state"}
     if not need.issubset(prof.columns):
         raise ParameterError(f"profile should have columns {sorted(need)}; got {list(prof.columns)}")
-    a = prof["crack_length"].to_numpy(float)
-    r = prof["dadn"].to_numpy(float)
+    a = prof["crack_length_um"].to_numpy(float)
+    r = prof["dadn_um_per_cycle"].to_numpy(float)
     b = prof["barrier"].to_numpy(np.int64)
     state = prof["zone_state"].to_numpy()
     pos = np.arange(a.size)
@@ -656,10 +375,10 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
             else:
                 after, cross = r[last + 1], a[last + 1]
                 depth = r[i_min] / after if after > 0 else math.nan
-            rows.append({"barrier": int(k), "crack_length": a[i_min], "dadn_min": r[i_min], "dadn_peak": r[i_peak],
-                         "dadn_after": after, "depth": depth, "crossing_length_um": cross, "arrest": arrest})
-    cols = ["barrier", "crack_length", "dadn_min", "dadn_peak", "dadn_after", "depth", "crossing_length_um", "arrest"]
-    return pd.DataFrame(rows, columns=cols)
+            rows.append({"barrier": int(k), "crack_length_um": a[i_min], "dadn_min_um_per_cycle": r[i_min],
+                         "dadn_peak_um_per_cycle": r[i_peak], "dadn_after_um_per_cycle": after, "depth_ratio": depth,
+                         "crossing_length_um": cross, "arrest": arrest})
+    return pd.DataFrame(rows, columns=list(GROWTH_DIPS))
 
 
 # --------------------------------------------------------------------------------------------
@@ -724,9 +443,9 @@ def _bands(paths: list[GrowthPath], s: float, p: GrowthParameters, a: np.ndarray
         idx = np.searchsorted(dense, a)
         cyc[i] = nd[idx]
         rate[i] = st["dadn"][idx]
-    out = {"crack_length": a}
+    out = {"crack_length_um": a}
     for q in (5, 50, 95):
         # "inverted_cdf" picks sample values, so arrested (inf) samples never produce NaN
         out[f"cycles_p{q:02d}"] = np.percentile(cyc, q, axis=0, method="inverted_cdf")
-        out[f"dadn_p{q:02d}"] = np.percentile(rate, q, axis=0, method="inverted_cdf")
+        out[f"dadn_um_per_cycle_p{q:02d}"] = np.percentile(rate, q, axis=0, method="inverted_cdf")
     return pd.DataFrame(out)

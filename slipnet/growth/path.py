@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._checks import check_positive
+from slipnet.columns import SEGMENT_XY
 from slipnet.errors import ParameterError
 
 __all__ = ["GrowthPath", "path_from_forecast", "path_from_tables"]
@@ -222,8 +223,9 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
     Parameters
     ----------
     path_table
-        One row per straight segment with columns ``grain``, ``x0``, ``y0``, ``x1``, ``y1`` (µm),
-        ``length_um``, ``s_start_um`` and ``schmid`` (the ``CrackForecast.path`` contract).
+        One row per straight segment with columns ``grain``, ``x0_um``, ``y0_um``, ``x1_um``,
+        ``y1_um``, ``length_um``, ``s_start_um`` and ``effective_schmid`` (the ``CrackForecast.path``
+        contract, :data:`slipnet.columns.FORECAST_PATH`).
     barrier_table
         ``CrackForecast.barriers``: ``grain_a``, ``grain_b``, ``m_prime``, ``twist_deg``,
         ``distance_um``, ``boundary_id``, ``on_path``.
@@ -239,11 +241,11 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
     Notes
     -----
     Barrier positions are the path distances where the grain changes; grain factors are the
-    length-weighted ``schmid`` of each grain's segments. |m′|, twist and boundary id are matched by
+    length-weighted ``effective_schmid`` of each grain's segments. |m′|, twist and boundary id are matched by
     grain pair (nearest distance first), from the crossings, then the barriers; an unmatched
     barrier gets neutral transmission (|m′| = 1, twist 0).
     """
-    need = {"grain", "x0", "y0", "x1", "y1", "length_um", "s_start_um", "schmid"}
+    need = {"grain", *SEGMENT_XY, "length_um", "s_start_um", "effective_schmid"}
     if path_table is None or len(path_table) == 0:
         raise ParameterError(f"{source} is empty: the forecast found no path to grow a crack along")
     missing = need - set(path_table.columns)
@@ -254,7 +256,7 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
     grain = t["grain"].to_numpy(np.int64)
     s0 = t["s_start_um"].to_numpy(float) + offset
     ln = t["length_um"].to_numpy(float)
-    schmid = np.abs(t["schmid"].to_numpy(float))
+    schmid = np.abs(t["effective_schmid"].to_numpy(float))
     change = np.flatnonzero(grain[1:] != grain[:-1]) + 1
     starts = np.concatenate([[0], change])
     ends = np.concatenate([change, [len(t)]])
@@ -278,8 +280,8 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
     _match_transmission(barrier_table, grains, positions, offset, "grain_a", "grain_b", mp, tw, bid, done)
     total = float(s0[-1] + ln[-1])
     poly_s = np.concatenate([s0, [total]])
-    poly_x = np.concatenate([t["x0"].to_numpy(float), [float(t["x1"].iloc[-1])]])
-    poly_y = np.concatenate([t["y0"].to_numpy(float), [float(t["y1"].iloc[-1])]])
+    poly_x = np.concatenate([t["x0_um"].to_numpy(float), [float(t["x1_um"].iloc[-1])]])
+    poly_y = np.concatenate([t["y0_um"].to_numpy(float), [float(t["y1_um"].iloc[-1])]])
     keep = np.concatenate([[True], np.diff(poly_s) > 0])
     return GrowthPath(barrier_positions_um=positions, grain_factors=gf, m_prime=np.clip(np.nan_to_num(mp, nan=1.0),
                       0, 1), twist_deg=np.nan_to_num(tw), length_um=total, grains=grains, boundary_ids=bid,
@@ -300,7 +302,7 @@ def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field
     stress_field
         Optional ``StressField``: the grain factors then come from the local grain Schmid factors
         (``slipnet.stress.grain_schmid_factors``) of the system the path follows in each grain
-        (the largest over systems in stage II) instead of the forecast's ``schmid`` column.
+        (the largest over systems in stage II) instead of the forecast's ``effective_schmid`` column.
     gg
         The ``GrainGraph`` of the map (needed with ``stress_field``).
     systems
@@ -323,7 +325,7 @@ def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field
 
 
 def _local_factors(table: pd.DataFrame, stress_field, gg, systems) -> pd.DataFrame:
-    """The path table with ``schmid`` replaced by local effective Schmid factors from a stress field."""
+    """The path table with ``effective_schmid`` replaced by local effective Schmid factors from a stress field."""
     if gg is None:
         raise ParameterError("gg should be given with stress_field (the local factors are grain means)")
     if "system" not in table.columns:
@@ -340,5 +342,6 @@ def _local_factors(table: pd.DataFrame, stress_field, gg, systems) -> pd.DataFra
     on_sys = eff[gi, np.clip(sysi, 0, eff.shape[1] - 1)]
     best = eff[gi].max(axis=1)
     out = table.copy()
-    out["schmid"] = np.where(ok, np.where(sysi >= 0, on_sys, best), table["schmid"].to_numpy(float))
+    old = table["effective_schmid"].to_numpy(float)
+    out["effective_schmid"] = np.where(ok, np.where(sysi >= 0, on_sys, best), old)
     return out

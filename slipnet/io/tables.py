@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from slipnet.columns import SEGMENT_XY
 from slipnet.errors import InputFileError
 
 __all__ = ["ForecastTables", "GrowthTables", "read_control_points", "read_csv_table", "read_forecast_folder",
@@ -48,20 +49,20 @@ def read_csv_table(path: str | os.PathLike, required: tuple[str, ...], what: str
 
 
 def read_forecast_tables(*, sites=None, path=None, barriers=None) -> ForecastTables:
-    """Read forecast tables written as CSV: sites (``x, y, score``), path (``x0, y0, x1, y1``),
-    barriers (``boundary_id, score``); any may be None."""
+    """Read forecast tables written as CSV: sites (``x_um, y_um``, optionally ``site_score_mpa_um``),
+    path (``x0_um, y0_um, x1_um, y1_um``), barriers (``boundary_id, barrier_score``); any may be None."""
     return ForecastTables(
-        read_csv_table(sites, ("x", "y"), "sites") if sites else None,
-        read_csv_table(path, ("x0", "y0", "x1", "y1"), "path") if path else None,
-        read_csv_table(barriers, ("boundary_id", "score"), "barriers") if barriers else None,
+        read_csv_table(sites, ("x_um", "y_um"), "sites") if sites else None,
+        read_csv_table(path, SEGMENT_XY, "path") if path else None,
+        read_csv_table(barriers, ("boundary_id", "barrier_score"), "barriers") if barriers else None,
     )
 
 
 def read_measured_path(path: str | os.PathLike) -> np.ndarray | pd.DataFrame:
-    """A measured crack path: CSV polyline (``x_um, y_um``) or segments (``x0, y0, x1, y1``), µm."""
+    """A measured crack path: CSV polyline (``x_um, y_um``) or segments (``x0_um, y0_um, x1_um, y1_um``)."""
     t = read_csv_table(path, (), "measured path")
-    if {"x0", "y0", "x1", "y1"} <= set(t.columns):
-        return read_csv_table(path, ("x0", "y0", "x1", "y1"), "measured path")
+    if set(SEGMENT_XY) <= set(t.columns):
+        return read_csv_table(path, SEGMENT_XY, "measured path")
     return read_csv_table(path, ("x_um", "y_um"), "measured path")[["x_um", "y_um"]].to_numpy(float)
 
 
@@ -95,8 +96,9 @@ def read_growth_folder(folder: str | os.PathLike) -> GrowthTables:
         raise InputFileError("should be a folder of growth tables", path=str(folder))
     dips = folder / "growth_dips.csv"
     prof = folder / "growth_profile.csv"
-    return GrowthTables(read_csv_table(dips, ("crack_length",), "growth dips") if dips.exists() else None,
-                        read_csv_table(prof, ("crack_length", "dadn"), "growth profile") if prof.exists() else None)
+    return GrowthTables(
+        read_csv_table(dips, ("crack_length_um",), "growth dips") if dips.exists() else None,
+        read_csv_table(prof, ("crack_length_um", "dadn_um_per_cycle"), "growth profile") if prof.exists() else None)
 
 
 _CP_COLUMNS = ("strain_x_um", "strain_y_um", "map_x_um", "map_y_um")

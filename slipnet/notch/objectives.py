@@ -9,27 +9,15 @@ from dataclasses import replace
 import numpy as np
 import pandas as pd
 
+from slipnet.crystal.perturb import perturb_sample
 from slipnet.crystal.slip_systems import effective_schmid, schmid_factors, slip_systems
 from slipnet.errors import SlipnetError
 from slipnet.forecast.crack import forecast_crack
-from slipnet.forecast.monte_carlo import perturb_quats
-from slipnet.growth.model import GrowthParameters, simulate_growth
+from slipnet.growth import GrowthParameters, simulate_growth
 from slipnet.notch.kt import full_field_kt, notch_stress_factor, peterson_kt
 from slipnet.notch.settings import OBJECTIVES, Candidate, PlanSettings
 
 __all__ = ["evaluate_candidate"]
-
-
-def _perturb_axis(axis: np.ndarray, sigma_deg: float, rng: np.random.Generator) -> np.ndarray:
-    a = rng.normal(size=3)
-    ang = math.radians(rng.normal(0.0, sigma_deg)) if sigma_deg > 0 else 0.0
-    a -= (a @ axis) * axis
-    na = np.linalg.norm(a)
-    if ang == 0.0 or na < 1e-12:
-        return axis.copy()
-    a /= na
-    out = axis * math.cos(ang) + np.cross(a, axis) * math.sin(ang)
-    return out / np.linalg.norm(out)
 
 
 def _start_point(gg, root: np.ndarray, normal: np.ndarray) -> np.ndarray | None:
@@ -68,7 +56,7 @@ def _objectives(gg, root, normal, load, s: PlanSettings, systems, kt: float, qua
         return out
     bar = fc.barriers
     on = bar[bar["on_path"].astype(bool) & (bar["distance_um"] <= s.window_um)] if len(bar) else bar
-    strength = (on["score"] / on["relevance"].clip(lower=1e-12)).clip(upper=1.0) if len(on) else pd.Series([])
+    strength = (on["barrier_score"] / on["relevance"].clip(lower=1e-12)).clip(upper=1.0) if len(on) else pd.Series([])
     out["barriers_in_window"] = len(on)
     out["barrier_strength_in_window"] = float(strength.sum()) if len(on) else 0.0
     strong = on["distance_um"][strength.to_numpy() >= s.strong_barrier] if len(on) else pd.Series([])
@@ -160,8 +148,8 @@ def evaluate_candidate(gg, cand: Candidate, s: PlanSettings, systems=None, *, sa
     root = np.array([cand.root_x, cand.root_y])
     normal = np.array([cand.normal_x, cand.normal_y])
     load = np.asarray(s.load_axis, dtype=float)
-    row = {"candidate": cand.index, "x": cand.root_x, "y": cand.root_y, "edge_x": cand.edge_x,
-           "edge_y": cand.edge_y, "normal_x": cand.normal_x, "normal_y": cand.normal_y, "kt": kt,
+    row = {"candidate": cand.index, "root_x_um": cand.root_x, "root_y_um": cand.root_y, "edge_x_um": cand.edge_x,
+           "edge_y_um": cand.edge_y, "normal_x": cand.normal_x, "normal_y": cand.normal_y, "kt": kt,
            "kt_chart": kt_chart}
     row.update(_objectives(gg, root, normal, load, s, systems, kt))
     row["samples"] = []
@@ -171,9 +159,8 @@ def evaluate_candidate(gg, cand: Candidate, s: PlanSettings, systems=None, *, sa
         tangent = np.array([-normal[1], normal[0]])
         base_q = np.asarray(gg.mean_quats)
         for _ in range(s.samples):
-            q = perturb_quats(base_q, s.orientation_noise_deg, rng)
-            ld = _perturb_axis(load, s.load_misalignment_deg, rng)
-            dr = rng.normal(0.0, s.position_error_um, size=2) if s.position_error_um > 0 else np.zeros(2)
+            q, ld, dr = perturb_sample(rng, base_q, s.orientation_noise_deg, load, s.load_misalignment_deg, root,
+                                       s.position_error_um)
             r = root + dr[0] * tangent + dr[1] * normal
             row["samples"].append(_objectives(gg, r, normal, ld, s, systems, kt, quats=q, all_sizes=False))
         samp = pd.DataFrame(row["samples"])

@@ -145,8 +145,8 @@ def plan_notch(
     Returns
     -------
     NotchPlan
-        ``table``: one row per candidate, best first: ``x``, ``y`` (notch root, µm), ``rank``,
-        ``score``, each objective's column, ``term_*`` / ``weight_*`` columns, ``kt``, the edge
+        ``table``: one row per candidate, best first: ``root_x_um``, ``root_y_um`` (notch root),
+        ``rank``, ``plan_score``, each objective's column, ``term_*`` / ``weight_*`` columns, ``kt``, the edge
         point and normal, the root grains, ``valid`` and ``reason``; ``settings``: the inputs.
 
     Examples
@@ -158,7 +158,7 @@ def plan_notch(
     >>> plan = plan_notch(gg, "left", (1, 0, 0), spacing_um=30.0, depth_um=10.0, root_radius_um=5.0,
     ...                   window_um=60.0, crack_sizes_um=(5.0,))
     >>> list(plan.table.columns[:4])
-    ['x', 'y', 'rank', 'score']
+    ['root_x_um', 'root_y_um', 'rank', 'plan_score']
     """
     s = PlanSettings(
         load_axis=tuple(np.asarray(load_axis, dtype=float).ravel()),

@@ -8,6 +8,7 @@ from collections.abc import Mapping, Sequence
 import numpy as np
 import pandas as pd
 
+from slipnet.columns import NOTCH_PLAN_LEADING
 from slipnet.errors import ParameterError
 from slipnet.notch.settings import NotchPlan, PlanSettings
 
@@ -75,11 +76,11 @@ def pareto_ranks(values: np.ndarray, larger_better: Sequence[bool]) -> np.ndarra
 
 
 def rank_candidates(table: pd.DataFrame, weights: Mapping[str, float], *, method: str = "weighted") -> pd.DataFrame:
-    """Add ``score``, the ``term_<objective>`` columns and ``rank`` (1 = best) to a candidate table.
+    """Add ``plan_score``, the ``term_<objective>`` columns and ``rank`` (1 = best) to a candidate table.
 
-    ``method="weighted"``: score = Σ |w| · normalised objective / Σ |w| (each objective mapped to
+    ``method="weighted"``: plan_score = Σ |w| · normalised objective / Σ |w| (each objective mapped to
     [0, 1] over the candidates, 1 = best). ``method="pareto"``: ``rank`` is the Pareto front number
-    (ties share a rank) and ``score`` the weighted score, used to order within a front.
+    (ties share a rank) and ``plan_score`` the weighted score, used to order within a front.
     """
     if method not in ("weighted", "pareto"):
         raise ParameterError(f"method should be 'weighted' or 'pareto'; got {method!r}")
@@ -87,14 +88,15 @@ def rank_candidates(table: pd.DataFrame, weights: Mapping[str, float], *, method
     valid = t["valid"].to_numpy(dtype=bool) if "valid" in t else np.ones(len(t), bool)
     z = _normalised(t[valid], weights)
     wsum = sum(abs(w) for n, w in weights.items() if n in z)
-    t["score"] = np.nan
+    t["plan_score"] = np.nan
     for name in z:
         t[f"term_{name}"] = np.nan
         t.loc[valid, f"term_{name}"] = z[name].to_numpy()
-        t.loc[valid, "score"] = t.loc[valid, "score"].fillna(0.0) + abs(weights[name]) * z[name].to_numpy() / wsum
+        add = abs(weights[name]) * z[name].to_numpy() / wsum
+        t.loc[valid, "plan_score"] = t.loc[valid, "plan_score"].fillna(0.0) + add
         t[f"weight_{name}"] = weights[name]
     if method == "weighted":
-        order = t["score"].rank(ascending=False, method="min", na_option="bottom")
+        order = t["plan_score"].rank(ascending=False, method="min", na_option="bottom")
         t["rank"] = order.astype(int)
     else:
         names = [n for n in weights if n in t and weights[n] != 0]
@@ -103,7 +105,7 @@ def rank_candidates(table: pd.DataFrame, weights: Mapping[str, float], *, method
             ranks[valid] = pareto_ranks(t.loc[valid, names].to_numpy(dtype=float), [weights[n] > 0 for n in names])
         t["pareto_front"] = ranks
         t["rank"] = ranks
-    return t.sort_values(["rank", "score"], ascending=[True, False], kind="stable").reset_index(drop=True)
+    return t.sort_values(["rank", "plan_score"], ascending=[True, False], kind="stable").reset_index(drop=True)
 
 
 def _sample_top_probability(rows: list[dict], weights: Mapping[str, float], top_k: int) -> np.ndarray:
@@ -129,7 +131,7 @@ def finish_plan(rows: list[dict], s: PlanSettings, *, method: str = "weighted", 
     if p_top is not None:
         table["p_top_k"] = p_top
     ranked = rank_candidates(table, s.weights, method=method)
-    front = ["x", "y", "rank", "score"]
+    front = list(NOTCH_PLAN_LEADING)
     ranked = ranked[front + [c for c in ranked.columns if c not in front]]
     notes = []
     ratio = s.notch.depth_um / s.notch.root_radius_um

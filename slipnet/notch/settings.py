@@ -162,7 +162,7 @@ class NotchPlan:
     Attributes
     ----------
     table : DataFrame
-        One row per candidate, best first: ``x``, ``y`` (notch root, µm), ``rank``, ``score``, each
+        One row per candidate, best first: ``root_x_um``, ``root_y_um`` (notch root), ``rank``, ``plan_score``, each
         objective's column, ``term_*`` / ``weight_*`` columns, ``kt``, the edge point and normal,
         the root grains, ``valid`` and ``reason``.
     settings : PlanSettings

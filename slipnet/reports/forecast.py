@@ -65,12 +65,12 @@ def write_forecast(fc: CrackForecast, folder: str | os.PathLike, gg=None, *, fig
         "Strongest barriers (rank, boundary, grains, score, twist°, tilt°, |m′|, distance µm):",
     ]
     for r in fc.barriers.head(5).itertuples():
-        lines.append(f"- {r.rank}: boundary {r.boundary_id} ({r.grain_a}→{r.grain_b}) score {r.score:.3f}, "
+        lines.append(f"- {r.rank}: boundary {r.boundary_id} ({r.grain_a}→{r.grain_b}) score {r.barrier_score:.3f}, "
                      f"twist {r.twist_deg:.1f}, tilt {r.tilt_deg:.1f}, m′ {r.m_prime:.2f}, at {r.distance_um:.1f}")
-    lines += ["", "Top localisation sites (rank, x, y µm, score MPa·µm):"]
+    lines += ["", "Top localisation sites (rank, x, y µm, site score MPa·µm):"]
     for r in fc.sites.head(5).itertuples():
-        lines.append(f"- {r.rank}: ({r.x:.1f}, {r.y:.1f}) score {r.score:.0f}, grain {r.grain} against "
-                     f"{r.blocking_grain}")
+        lines.append(f"- {r.rank}: ({r.x_um:.1f}, {r.y_um:.1f}) score {r.site_score_mpa_um:.0f}, grain {r.grain} "
+                     f"against {r.blocking_grain}")
     if fc.samples is not None:
         lines += ["", f"Monte Carlo: {len(fc.samples)} samples, seed {st['seed']}; probabilities in the "
                   "barrier and site tables (p_on_path, p_present, p_top_k)."]

@@ -59,8 +59,8 @@ def write_growth(result: GrowthResult, folder: str | os.PathLike, gg=None, *, fi
         f"Path: {result.path.n_barriers} barriers over {result.path.length_um:.1f} µm.",
         (f"The crack arrests at {result.arrest_length_um:.1f} µm (barrier strength exceeds what the blocked zone "
          f"can deliver); cycles are infinite beyond." if math.isfinite(result.arrest_length_um)
-         else f"No arrest up to {prof['crack_length'].iloc[-1]:.1f} µm; {fin.iloc[-1]:.3g} cycles from "
-              f"{prof['crack_length'].iloc[0]:.2f} µm."),
+         else f"No arrest up to {prof['crack_length_um'].iloc[-1]:.1f} µm; {fin.iloc[-1]:.3g} cycles from "
+              f"{prof['crack_length_um'].iloc[0]:.2f} µm."),
         f"Amplitude needed to pass every barrier on the path: "
         f"{float(result.barriers['threshold_amplitude_mpa'].max()) if len(result.barriers) else 0.0:.1f} MPa "
         "(microstructural fatigue-limit estimate).",

@@ -16,8 +16,8 @@ from slipnet.reports.writer import Outputs, markdown_table
 __all__ = ["write_batch", "write_plan"]
 
 #: Columns of the best-candidates table in the summary.
-_SUMMARY_COLUMNS = ("rank", "x", "y", "score", "initiation_drive", "barrier_strength_in_window", "first_barrier_um",
-                    "log10_cycles_to_window", "arrest_probability", "p_top_k")
+_SUMMARY_COLUMNS = ("rank", "root_x_um", "root_y_um", "plan_score", "initiation_drive", "barrier_strength_in_window",
+                    "first_barrier_um", "log10_cycles_to_window", "arrest_probability", "p_top_k")
 
 
 def write_plan(plan: NotchPlan, gg: GrainGraph, folder: str | os.PathLike, *, figures: bool = True,

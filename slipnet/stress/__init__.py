@@ -4,6 +4,17 @@ crystal plasticity (monotonic explicit, and cyclic implicit with FIPs and slip b
 
 from __future__ import annotations
 
+from slipnet.stress.constants import (
+    AUSTENITE_CONSTANTS,
+    DEFAULT_CONSTANTS,
+    IRON_CONSTANTS,
+    CubicConstants,
+    directional_modulus,
+    from_mandel,
+    rotate_stiffness,
+    to_mandel,
+    voigt_reuss_hill,
+)
 from slipnet.stress.cyclic import (
     CyclicField,
     CyclicMaterial,
@@ -12,17 +23,9 @@ from slipnet.stress.cyclic import (
     solve_monotonic,
 )
 from slipnet.stress.elastic import (
-    AUSTENITE_CONSTANTS,
-    IRON_CONSTANTS,
-    CubicConstants,
     StressField,
     assumptions_text,
-    directional_modulus,
-    from_mandel,
-    rotate_stiffness,
     solve_elastic,
-    to_mandel,
-    voigt_reuss_hill,
 )
 from slipnet.stress.local import (
     default_systems,
@@ -40,6 +43,7 @@ from slipnet.stress.plasticity import (
 
 __all__ = [
     "AUSTENITE_CONSTANTS",
+    "DEFAULT_CONSTANTS",
     "IRON_CONSTANTS",
     "CubicConstants",
     "CyclicField",

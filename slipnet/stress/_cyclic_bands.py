@@ -183,10 +183,16 @@ def slip_bands(labels: np.ndarray, valid: np.ndarray, omap, mean_quats: np.ndarr
     return table
 
 
+#: Columns of the ranked slip-band table (snake_case, units as suffixes; FIP and slip are dimensionless).
+BAND_COLUMNS = ("rank", "grain", "system", "label", "family", "band", "n_points", "fip_mean", "slip_range_mean",
+                "x_um", "y_um", "trace_angle_deg", "width_um", "area_um2")
+#: Columns of the per-grain response table.
+GRAIN_RESPONSE_COLUMNS = ("grain", "n_points", "accumulated_slip_mean", "slip_range_mean", "plastic_strain_axial",
+                          "ratchet_strain_per_cycle", "response")
+
+
 def _empty_bands() -> pd.DataFrame:
-    cols = ["rank", "grain", "system", "label", "family", "band", "n_points", "fip_mean", "slip_range_mean", "x_um",
-            "y_um", "trace_angle_deg", "width_um", "area_um2"]
-    return pd.DataFrame({c: [] for c in cols})
+    return pd.DataFrame({c: [] for c in BAND_COLUMNS})
 
 
 def grain_response(labels: np.ndarray, valid: np.ndarray, cycle_ends: list, srange_max: np.ndarray,

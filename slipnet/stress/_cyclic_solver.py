@@ -279,7 +279,7 @@ def integrate(prob: Problem, segments: list[Segment], rate: float, control: str,
             totals["newton"] += nits + 1
             totals["cg"] += cgits
             row = {"increment": inc, "cycle": seg.cycle, "segment": seg.name, "time_s": t,
-                   "load": target, "stress_mpa": mean_axial(sig), "strain": mean_axial(eps),
+                   "stress_mpa": mean_axial(sig), "strain": mean_axial(eps),
                    "plastic_strain": mean_axial(ep), "max_slip_increment": dgmax,
                    "newton_iterations": nits + 1, "cg_iterations": cgits}
             out.rows.append(row)

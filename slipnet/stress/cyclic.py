@@ -46,24 +46,23 @@ from slipnet.maps.orientation_map import OrientationMap
 from slipnet.stress import _cyclic_bands as _bands
 from slipnet.stress import _cyclic_kernels as _ck
 from slipnet.stress import _cyclic_solver as _solver
-from slipnet.stress.elastic import (
-    SCHEMES,
-    UNINDEXED_MODES,
-    _numba_threads,
-    _prepare,
-    _workers,
-    assumptions_text,
-    from_mandel,
-    to_mandel,
-    voigt_reuss_hill,
-)
+from slipnet.stress._threads import _numba_threads, _workers
+from slipnet.stress.constants import from_mandel, to_mandel, voigt_reuss_hill
+from slipnet.stress.elastic import SCHEMES, UNINDEXED_MODES, _prepare, assumptions_text
 from slipnet.stress.local import default_systems
 
-__all__ = ["CyclicField", "CyclicMaterial", "cyclic_assumptions", "solve_cyclic", "solve_monotonic"]
+__all__ = ["BAND_COLUMNS", "GRAIN_RESPONSE_COLUMNS", "HISTORY_COLUMNS", "CyclicField", "CyclicMaterial",
+           "cyclic_assumptions", "solve_cyclic", "solve_monotonic"]
 
 #: Taylor factor of an untextured cubic polycrystal for {111}<110> / pencil glide, about 3.06
 #: (Taylor 1938, J. Inst. Met. 62:307; from memory): the default σ_y is this times τ₀.
 RANDOM_TAYLOR_FACTOR = 3.06
+#: Columns of :attr:`CyclicField.history` (one row per increment), of :attr:`CyclicField.bands` and
+#: of :attr:`CyclicField.grain_response` (snake_case, units as suffixes).
+HISTORY_COLUMNS = ("increment", "cycle", "segment", "time_s", "stress_mpa", "strain", "plastic_strain",
+                   "max_slip_increment", "newton_iterations", "cg_iterations")
+BAND_COLUMNS = _bands.BAND_COLUMNS
+GRAIN_RESPONSE_COLUMNS = _bands.GRAIN_RESPONSE_COLUMNS
 #: Map edges that can be declared free surfaces or given an elastic buffer, and the width of the
 #: compliant gap or isotropic elastic layer added beyond each (points).
 EDGES = ("left", "right", "top", "bottom")
@@ -164,7 +163,7 @@ class CyclicField:
         ``area_um2``.
     history : pandas.DataFrame
         One row per increment: ``increment``, ``cycle`` (0 = first loading), ``segment`` (``ramp``,
-        ``unload``, ``reload``), ``time_s``, ``load``, ``stress_mpa`` and ``strain`` (mean along the load
+        ``unload``, ``reload``), ``time_s``, ``stress_mpa`` and ``strain`` (mean along the load
         axis: the macroscopic hysteresis loop, means over the periodic cell including any free gap or
         buffer added beyond the edges), ``plastic_strain``, ``max_slip_increment``,
         ``newton_iterations``, ``cg_iterations``.
@@ -448,7 +447,7 @@ def _printer(progress, total_cycles: int):
         if key != state["key"]:
             state["key"] = key
             print(f"cyclic: cycle {row['cycle']}/{total_cycles} {row['segment']}", flush=True)
-        print(f"  increment {row['increment']}: load {row['load']:.4g}, stress {row['stress_mpa']:.1f} MPa, "
+        print(f"  increment {row['increment']}: stress {row['stress_mpa']:.1f} MPa, "
               f"strain {row['strain']:.3e}, {row['newton_iterations']} Newton / {row['cg_iterations']} CG "
               "iterations", flush=True)
 
@@ -723,7 +722,7 @@ def _solve(omap, load_axis, control, segments, rate, amp, top, bottom, crack, ed
                                  elastic_floor=max(1e-12, 10.0 * numer.rate_floor * mat.reference_rate
                                                    * abs(segments[-1].end - segments[-1].start) / rate),
                                  ratchet_fraction=0.1)
-    history = pd.DataFrame(out.rows)
+    history = pd.DataFrame(out.rows, columns=list(HISTORY_COLUMNS))
     settings = {
         "control": control, "amplitude": amp, "max_load": top, "min_load": bottom, "load_axis": axis.tolist(),
         **extra, "material": mat.as_dict(), "n_systems": ns, "fip_k": k_fs, "yield_stress_mpa": sy,

@@ -39,17 +39,9 @@ from slipnet._checks import check_positive, check_range
 from slipnet.errors import NumericalError, ParameterError
 from slipnet.maps.orientation_map import OrientationMap
 from slipnet.stress import _kernels as _k
-from slipnet.stress.elastic import (
-    StressField,
-    _check_common,
-    _numba_threads,
-    _prepare,
-    _Spectral,
-    _workers,
-    assumptions_text,
-    from_mandel,
-    to_mandel,
-)
+from slipnet.stress._threads import _numba_threads, _workers
+from slipnet.stress.constants import from_mandel, to_mandel
+from slipnet.stress.elastic import StressField, _check_common, _prepare, _Spectral, assumptions_text
 from slipnet.stress.local import default_systems
 
 __all__ = ["PlasticField", "solve_plastic"]
