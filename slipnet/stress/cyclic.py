@@ -570,6 +570,18 @@ def solve_cyclic(
     NumericalError
         A Newton step that does not converge after ``max_cutbacks`` cut-backs; the message says in
         which cycle, increment, time and load, and at which point. Nothing is returned or written.
+
+    Notes
+    -----
+    Backward Euler is first order in time: halving ``max_slip_increment`` (5e-4 → 2.5e-4) changes
+    grain-mean accumulated slip by about 1.5 % on a notched 100² cell, refining the grid 100² → 200²
+    by about 3 % (tests); the peak at a crack tip does not converge under grid refinement (a slit
+    one cell wide is a mesh-dependent singularity). Matching an explicit solver to 2 % on a
+    monotonic ramp needs about 2.5e-5. Cost per increment: a few global Newton iterations, each one
+    per-point update (numba, parallel over points) and one CG solve; measured on a shared two-core
+    machine (``benchmarks/bench_cyclic.py``), 3 cycles at ±170 MPa on a notched 128² map take about
+    9 s (≈ 95 elastic solves), 256² about 30 s and 512² about 110 s at 1.4 GiB peak memory.
+    Inputs are plain objects and there is no module state, so calls can run in Dask workers.
     """
     control, amp, top, bottom = _amplitudes(stress_amplitude, strain_amplitude, ratio)
     n_cycles = _count(cycles, "cycles")
