@@ -105,7 +105,7 @@ def _prm(k=5e-5, n=20.0, slip_floor=1e-9):
 
 def _scratch(ns):
     return ([np.empty(ns, np.int64)] + [np.empty(ns) for _ in range(7)]
-            + [np.empty((ns, ns)) for _ in range(3)] + [np.empty((ns, 6)), np.empty(ns), np.empty(ns)])
+            + [np.empty((ns, ns)) for _ in range(3)] + [np.empty((ns, 6)), np.empty(ns), np.empty(ns), np.empty(ns)])
 
 
 @pytest.mark.parametrize("seed", [0, 1, 2, 3])

@@ -212,7 +212,7 @@ def _start(al, tau, x, g, rev, amat, prm):
 
 @nb.njit(cache=True)
 def point_return(tau_tr, x_n, g_n, v_n, rev, amat, hmat, prm, max_it, dg, idx, tau, x, g, dh, hp, sgn, f, jac,
-                 jsym, jwork, rhs, dtrial, gfix):
+                 jsym, jwork, rhs, dtrial, gfix, f0):
     """Backward-Euler slip increments of one point (in place in ``dg``), active-set Newton.
 
     The residual rows are the stationarity conditions of the (strictly convex, without latent
@@ -281,31 +281,33 @@ def point_return(tau_tr, x_n, g_n, v_n, rev, amat, hmat, prm, max_it, dg, idx, t
             for j in range(na):
                 dtrial[j] = dg[idx[j]]
                 gfix[j] = g[idx[j]]
-            # backtracking on the incremental potential (convex with frozen resistances): unlike the
-            # residual norm it does not let opposite slips drift along the null space of A
-            p0 = _potential(tau_tr, x_n, rev, amat, prm, dg, idx, na, gfix)
-            slope = 0.0
+                f0[j] = f[j]
+            # a full Newton step that cuts the residual four-fold is taken at once; otherwise backtrack
+            # on the incremental potential (convex with frozen resistances): unlike the residual
+            # norm it does not let opposite slips drift along the null space of A
             for j in range(na):
-                slope += f[j] * rhs[j, 0]
-            lam = 1.0
-            ok = False
-            for _ls in range(40):
-                for j in range(na):
-                    dg[idx[j]] = dtrial[j] + lam * rhs[j, 0]
-                p1 = _potential(tau_tr, x_n, rev, amat, prm, dg, idx, na, gfix)
-                if p1 <= p0 + 1e-4 * lam * min(slope, 0.0):
-                    ok = True
-                    break
-                if lam == 1.0:
-                    # near the solution the potential stalls in round-off: take a full step that
-                    # halves the residual
-                    _evaluate(tau_tr, x_n, g_n, v_n, amat, hmat, prm, dg, idx, na, tau, x, g, dh, hp, sgn, False)
-                    if _build(tau, x, g, rev, amat, hmat, prm, dg, idx, na, hp, sgn, f, jac, jsym) <= 0.25 * merit:
-                        ok = True
-                        break
-                lam *= 0.5
+                dg[idx[j]] = dtrial[j] + rhs[j, 0]
             _evaluate(tau_tr, x_n, g_n, v_n, amat, hmat, prm, dg, idx, na, tau, x, g, dh, hp, sgn, False)
             m_new = _build(tau, x, g, rev, amat, hmat, prm, dg, idx, na, hp, sgn, f, jac, jsym)
+            ok = m_new <= 0.25 * merit
+            if not ok:
+                for j in range(na):
+                    dg[idx[j]] = dtrial[j]
+                p0 = _potential(tau_tr, x_n, rev, amat, prm, dg, idx, na, gfix)
+                slope = 0.0
+                for j in range(na):
+                    slope += f0[j] * rhs[j, 0]
+                lam = 1.0
+                for _ls in range(40):
+                    for j in range(na):
+                        dg[idx[j]] = dtrial[j] + lam * rhs[j, 0]
+                    p1 = _potential(tau_tr, x_n, rev, amat, prm, dg, idx, na, gfix)
+                    if p1 <= p0 + 1e-4 * lam * min(slope, 0.0):
+                        ok = True
+                        break
+                    lam *= 0.5
+                _evaluate(tau_tr, x_n, g_n, v_n, amat, hmat, prm, dg, idx, na, tau, x, g, dh, hp, sgn, False)
+                m_new = _build(tau, x, g, rev, amat, hmat, prm, dg, idx, na, hp, sgn, f, jac, jsym)
             if not ok:
                 if m_new <= 1e4 * tol * tol:
                     converged = True  # stalled in round-off close to the solution
@@ -364,6 +366,7 @@ def return_map(eps, ep, qrot, cs, pidx, cc, cp, amat, hmat, rev, x_n, g_n, v_n, 
         rhs = np.empty((ns, 6))
         dvec = np.empty(ns)
         gfix = np.empty(ns)
+        f0 = np.empty(ns)
         ctc = np.empty((6, 6))
         tmp = np.empty((6, 6))
         sc = np.empty(6)
@@ -407,7 +410,7 @@ def return_map(eps, ep, qrot, cs, pidx, cc, cp, amat, hmat, rev, x_n, g_n, v_n, 
                 info[p] = 0
                 continue
             na, its = point_return(tau_tr, x_n[p], g_n[p], v_n[p], rev, amat[ph], hmat, prm, max_it, dg[p], idx,
-                                   tau, x, g, dh, hp, sgn, f, jac, jsym, jwork, rhs, dvec, gfix)
+                                   tau, x, g, dh, hp, sgn, f, jac, jsym, jwork, rhs, dvec, gfix, f0)
             if its < 0:
                 info[p] = -1
                 for al in range(ns):
