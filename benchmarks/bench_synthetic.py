@@ -26,7 +26,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from slipnet.synthetic import make_specimen
-from slipnet.synthetic.specimen import _grid_xy, _power_cells
+from slipnet.synthetic._geometry import _grid_xy, _power_cells
 
 
 def peak_mib() -> float:

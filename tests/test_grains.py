@@ -8,6 +8,7 @@ import networkx as nx
 import numpy as np
 import pandas as pd
 import pytest
+from _reference import kam_sums, pair_disorientation
 from scipy import sparse, stats
 from scipy.optimize import linear_sum_assignment
 from scipy.sparse.csgraph import connected_components
@@ -28,7 +29,9 @@ from slipnet.crystal import (
     random_quats,
 )
 from slipnet.errors import ParameterError
-from slipnet.grains import _kernels as gk
+from slipnet.grains import _boundary_kernels as bk
+from slipnet.grains import _pair_kernels as pk
+from slipnet.grains import _sum_kernels as sk
 from slipnet.grains import build_grain_graph
 from slipnet.grains._steps import _neighbour_pairs
 from slipnet.maps import OrientationMap, Phase
@@ -182,13 +185,13 @@ def test_neighbour_pairs_are_the_nearest_grid_points(grid):
     phase = np.zeros(q.shape[0], np.int32)
     a2, b2, ang = _neighbour_pairs(om.shape, grid, q, valid, phase)
     ref = np.empty(a.size, np.float32)
-    gk.pair_disorientation(q, valid, phase, a, b, ref)
+    pair_disorientation(q, valid, phase, a, b, ref)
     assert np.array_equal(a, a2) and np.array_equal(b, b2)
     np.testing.assert_array_equal(ang, ref)
-    offsets = gk.FORWARD_OFFSETS[grid]
-    start = np.concatenate(([0], np.cumsum(gk.row_pair_counts(*om.shape, offsets))))
+    offsets = pk.FORWARD_OFFSETS[grid]
+    start = np.concatenate(([0], np.cumsum(pk.row_pair_counts(*om.shape, offsets))))
     a3, b3, ang3 = np.empty_like(a), np.empty_like(b), np.empty_like(ang)
-    gk.fill_pairs_with_angles.py_func(*om.shape, offsets, start[:-1], q, valid, phase, a3, b3, ang3)
+    pk.fill_pairs_with_angles.py_func(*om.shape, offsets, start[:-1], q, valid, phase, a3, b3, ang3)
     assert np.array_equal(a3, a) and np.array_equal(b3, b)
     np.testing.assert_allclose(ang3, ang, atol=1e-4)
 
@@ -212,8 +215,8 @@ def test_union_kernels_py_func_agree_with_compiled():
     ang = rng.uniform(0, 20, 80).astype(np.float32)
     p1 = np.arange(n, dtype=np.int32)
     p2 = p1.copy()
-    gk.union_below(p1, a, b, ang, np.float32(10.0))
-    gk.union_below.py_func(p2, a, b, ang, np.float32(10.0))
+    pk.union_below(p1, a, b, ang, np.float32(10.0))
+    pk.union_below.py_func(p2, a, b, ang, np.float32(10.0))
     assert np.array_equal(p1, p2)
     # roots are the smallest member: the union with scipy's connected components partitions alike
     j = ang < 10
@@ -223,7 +226,7 @@ def test_union_kernels_py_func_agree_with_compiled():
     out1 = np.empty(n, np.int32)
     out2 = np.empty(n, np.int32)
     keep = rng.random(n) > 0.2
-    assert gk.compact_labels(p1, keep, out1) == gk.compact_labels.py_func(p1, keep, out2)
+    assert pk.compact_labels(p1, keep, out1) == pk.compact_labels.py_func(p1, keep, out2)
     assert np.array_equal(out1, out2)
 
 
@@ -240,8 +243,8 @@ def test_pair_disorientation_kernel_against_orix():
     b = np.arange(1, 50, dtype=np.int32)
     out = np.empty(49, np.float32)
     out_py = np.empty(49, np.float32)
-    gk.pair_disorientation(q, valid, phase, a, b, out)
-    gk.pair_disorientation.py_func(q, valid, phase, a, b, out_py)
+    pair_disorientation(q, valid, phase, a, b, out)
+    pair_disorientation.py_func(q, valid, phase, a, b, out_py)
     # orix Orientation.angle_with with point group 432 (Johnstone et al., orix, J. Appl. Cryst. 2020)
     ref = Orientation(q[a], symmetry=O).angle_with(Orientation(q[b], symmetry=O), degrees=True)
     bad = ~valid[a] | ~valid[b] | (phase[a] != phase[b])
@@ -501,7 +504,7 @@ def test_hex_triple_junctions_at_lattice_triangle_centres():
     assert len({int(gg.labels.ravel()[k]) for k in np.argsort(d)[:3]}) == 3
     # kernel and pure-Python versions agree
     args = (gg.labels.ravel().astype(np.int32), 14, 14, True, 1.0, om0.row_spacing, 64)
-    for u, v in zip(gk.triple_junctions(*args), gk.triple_junctions.py_func(*args), strict=True):
+    for u, v in zip(bk.triple_junctions(*args), bk.triple_junctions.py_func(*args), strict=True):
         np.testing.assert_array_equal(u, v)
 
 
@@ -547,7 +550,7 @@ def test_mean_orientation_is_symmetry_aware_and_kernel_matches_vectorised_refere
     assert disorientation_angle(gg.mean_quats[0], q0) < 1.0
     acc = np.zeros((1, 10))
     lab = np.zeros(n, np.int32)
-    gk.quat_moment_sums.py_func(pts, np.ones(n, bool), lab, pts[:1].copy(), np.ones(1, bool), CUBIC_OPERATORS, acc)
+    sk.quat_moment_sums.py_func(pts, np.ones(n, bool), lab, pts[:1].copy(), np.ones(1, bool), CUBIC_OPERATORS, acc)
     np.testing.assert_allclose(acc[0], m[np.triu_indices(4)], atol=1e-12)
 
 
@@ -599,12 +602,12 @@ def test_min_quality_leaves_points_out_and_fill_restores_them():
 def test_fill_kernel_majority_and_py_func():
     lab = np.array([[0, 1, 1], [0, -1, 1], [2, 1, 1]], dtype=np.int32).ravel()
     lab2 = lab.copy()
-    n1, s1 = gk.fill_majority(lab, 3, 3, gk.ALL_OFFSETS["square"], 10)
-    n2, s2 = gk.fill_majority.py_func(lab2, 3, 3, gk.ALL_OFFSETS["square"], 10)
+    n1, s1 = pk.fill_majority(lab, 3, 3, pk.ALL_OFFSETS["square"], 10)
+    n2, s2 = pk.fill_majority.py_func(lab2, 3, 3, pk.ALL_OFFSETS["square"], 10)
     assert lab[4] == 1 and (n1, s1) == (n2, s2) == (1, 2)  # neighbours 0, 1, 1, 1: majority 1
     assert np.array_equal(lab, lab2)
     tie = np.array([[-1, 3, -1], [5, -1, 5], [-1, 3, -1]], dtype=np.int32).ravel()
-    gk.fill_majority(tie, 3, 3, gk.ALL_OFFSETS["square"], 1)
+    pk.fill_majority(tie, 3, 3, pk.ALL_OFFSETS["square"], 1)
     assert tie[4] == 3  # 3, 3, 5, 5: a tie goes to the smaller id
 
 
@@ -634,7 +637,7 @@ def test_chain_kernel_py_func_agrees():
     bstart = np.append(bstart, key.size)
     *_, v0, v1, _, _ = _edge_geometry(ea, eb, om)
     outs = []
-    for fn in (gk.chain_edges, gk.chain_edges.py_func):
+    for fn in (bk.chain_edges, bk.chain_edges.py_func):
         res = [np.empty(ea.size, np.int64), np.zeros(ea.size, bool), np.zeros(ea.size, np.int64),
                np.zeros(ea.size, np.int64)]
         fn(bstart, v0, v1, *res)
@@ -782,21 +785,21 @@ def test_chunked_parallel_sums_equal_serial(grid):
         fn(lab, valid, phase, 30, 40, 1.0, om.row_spacing, grid == "hex", n, *out, *extra)
         return out
 
-    for u, v in zip(geometry(gk.grain_point_sums), geometry(gk.grain_point_sums_parallel, 3), strict=True):
+    for u, v in zip(geometry(sk.grain_point_sums), geometry(sk.grain_point_sums_parallel, 3), strict=True):
         np.testing.assert_allclose(u, v, rtol=1e-12)
     a, b, ang = _neighbour_pairs(om.shape, grid, q, valid, phase)
-    start = np.concatenate(([0], np.cumsum(gk.row_pair_counts(30, 40, gk.FORWARD_OFFSETS[grid]))))
+    start = np.concatenate(([0], np.cumsum(pk.row_pair_counts(30, 40, pk.FORWARD_OFFSETS[grid]))))
     k1 = [np.zeros(lab.size), np.zeros(lab.size, np.int32)]
-    gk.kam_sums(a, b, ang, lab, np.float32(15.0), *k1)
+    kam_sums(a, b, ang, lab, np.float32(15.0), *k1)
     with np.errstate(invalid="ignore", divide="ignore"):
         ref = (k1[0] / k1[1]).astype(np.float32)
-    for fn in (gk.kam_rows, gk.kam_rows.py_func):
+    for fn in (sk.kam_rows, sk.kam_rows.py_func):
         kam = np.empty(lab.size, np.float32)
         fn(a, b, ang, np.float32(15.0), start, 40, kam)
         np.testing.assert_allclose(kam, ref, rtol=1e-6)
     np.testing.assert_allclose(gg.kam_deg.ravel(), ref, rtol=1e-6)
     acc1, acc3 = np.zeros((n, 10)), np.zeros((n, 10))
     sel = np.ones(n, bool)
-    gk.quat_moment_sums(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc1)
-    gk.quat_moment_sums_parallel(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc3, 3)
+    sk.quat_moment_sums(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc1)
+    sk.quat_moment_sums_parallel(q, valid, lab, gg.mean_quats, sel, CUBIC_OPERATORS, acc3, 3)
     np.testing.assert_allclose(acc1, acc3, rtol=1e-12)

@@ -399,7 +399,7 @@ def test_power_cell_kernel_matches_a_lifted_nearest_neighbour_query(grid):
     from scipy.spatial import cKDTree
 
     from slipnet.synthetic import _kernels as _synthetic_kernels
-    from slipnet.synthetic.specimen import _grid_xy, _power_cells
+    from slipnet.synthetic._geometry import _grid_xy, _power_cells
 
     rng = np.random.default_rng(0)
     lo, hi = np.array([-30.0, -30.0]), np.array([160.0, 130.0])

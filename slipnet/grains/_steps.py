@@ -1,8 +1,9 @@
 """Building blocks of :func:`slipnet.grains.build_grain_graph`: neighbour pairs, label compaction,
 grain mean orientations, small-grain merging, boundary edge geometry.
 
-Private helpers split out of :mod:`slipnet.grains` (which imports them); hot loops are in
-:mod:`slipnet._grain_kernels`.
+Private helpers of :mod:`slipnet.grains.build` (and of :mod:`slipnet.grains._boundaries`,
+:mod:`slipnet.grains._tables`); hot loops are in :mod:`slipnet.grains._pair_kernels`,
+:mod:`slipnet.grains._sum_kernels` and :mod:`slipnet.grains._boundary_kernels`.
 """
 
 from __future__ import annotations
@@ -12,7 +13,9 @@ import math
 import numpy as np
 
 from slipnet.crystal.orientation import CUBIC_OPERATORS, disorientation_angle
-from slipnet.grains import _kernels as _k
+from slipnet.grains import _boundary_kernels as _bk
+from slipnet.grains import _pair_kernels as _pk
+from slipnet.grains import _sum_kernels as _sk
 from slipnet.maps.orientation_map import OrientationMap
 
 
@@ -24,23 +27,24 @@ def _neighbour_pairs(shape: tuple[int, int], grid: str, quats=None, valid=None, 
     computed in the same kernel pass.
     """
     ny, nx_ = shape
-    offsets = _k.FORWARD_OFFSETS[grid]
-    counts = _k.row_pair_counts(ny, nx_, offsets)
+    offsets = _pk.FORWARD_OFFSETS[grid]
+    counts = _pk.row_pair_counts(ny, nx_, offsets)
     start = np.zeros(ny + 1, dtype=np.int64)
     np.cumsum(counts, out=start[1:])
     a = np.empty(int(start[-1]), dtype=np.int32)
     b = np.empty(int(start[-1]), dtype=np.int32)
     if quats is None:
-        _k.fill_pairs(ny, nx_, offsets, start[:-1], a, b)
+        _pk.fill_pairs(ny, nx_, offsets, start[:-1], a, b)
         return a, b
     ang = np.empty(a.size, dtype=np.float32)
-    _k.fill_pairs_with_angles(ny, nx_, offsets, start[:-1], quats, valid, phase, a, b, ang)
+    _pk.fill_pairs_with_angles(ny, nx_, offsets, start[:-1], quats, valid, phase, a, b, ang)
     return a, b, ang
 
 
 def _compact(labels: np.ndarray) -> tuple[np.ndarray, int]:
+    """Root labels (−1 for none) renumbered 0..n−1 in raster order of each grain's first point; and n."""
     out = np.empty(labels.shape[0], dtype=np.int32)
-    n = _k.compact_labels(labels, labels >= 0, out)
+    n = _pk.compact_labels(labels, labels >= 0, out)
     return out, int(n)
 
 
@@ -56,7 +60,7 @@ def _mean_orientations(qflat: np.ndarray, valid: np.ndarray, labels: np.ndarray,
     """
     sel = np.ones(n, dtype=np.bool_) if only is None else only
     acc = np.zeros((n, 10))
-    _k.quat_moment_sums_parallel(qflat, valid, labels, np.ascontiguousarray(ref), sel, CUBIC_OPERATORS, acc,
+    _sk.quat_moment_sums_parallel(qflat, valid, labels, np.ascontiguousarray(ref), sel, CUBIC_OPERATORS, acc,
                                  _n_chunks(labels.size))
     iu = np.triu_indices(4)
     mat = np.zeros((n, 4, 4))
@@ -70,6 +74,7 @@ def _mean_orientations(qflat: np.ndarray, valid: np.ndarray, labels: np.ndarray,
 
 
 def _grain_means(qflat, valid, labels, n, first):
+    """Mean orientation per grain, referenced to its first point, redone from the mean where that lay far."""
     ref = qflat[np.maximum(first, 0)]
     mean = _mean_orientations(qflat, valid, labels, n, ref)
     # second pass, with the first mean as reference, for grains whose first point lay far from
@@ -118,7 +123,7 @@ def _merge_small(labels: np.ndarray, a: np.ndarray, b: np.ndarray, phase_flat: n
         first = np.concatenate(([True], s[1:] != s[:-1]))
         s, d = s[first], d[first]
         parent = np.arange(n, dtype=np.int32)
-        _k.union_pairs(parent, s.astype(np.int32), d.astype(np.int32), np.ones(s.size, dtype=np.bool_))
+        _pk.union_pairs(parent, s.astype(np.int32), d.astype(np.int32), np.ones(s.size, dtype=np.bool_))
         m = labels >= 0
         labels[m] = parent[labels[m]]
         merged_total += int(s.size)
@@ -142,7 +147,7 @@ def _edge_geometry(ea: np.ndarray, eb: np.ndarray, omap: OrientationMap):
     # vertices sit on a lattice: x in multiples of step/2; y in multiples of step/2 (square) or rs/3 (hex)
     ys, off = (3.0 / rs, 3) if hexg else (2.0 / step, 2)
     width = 2 * nx_ + 8
-    _k.edge_geometry(ea, eb, nx_, step, hexg, half, ys, off, width, mx, my, tx, ty, v0, v1)
+    _bk.edge_geometry(ea, eb, nx_, step, hexg, half, ys, off, width, mx, my, tx, ty, v0, v1)
 
     def vxy(v):
         r, c = np.divmod(v, width)

@@ -90,6 +90,7 @@ def _structure_of(phase) -> tuple[str | None, str]:
 
 
 def _lattice_nm(phase, structure: str) -> tuple[float, bool]:
+    """Lattice parameter of an orix phase in nm, and whether it was known (else a default)."""
     try:
         a = float(phase.structure.lattice.a)
     except AttributeError:
@@ -138,26 +139,12 @@ def from_orix(
     InputFileError
         Coordinates that do not form one complete uniform grid, or a missing ``quality_prop``.
     """
-    if grid is not None and grid not in GRIDS:
-        raise ParameterError(f"grid should be one of {', '.join(GRIDS)} or None; got {grid!r}")
-    if step is not None and not (math.isfinite(float(step)) and float(step) > 0):
-        raise ParameterError(f"step should be a positive number of µm or None; got {step!r}")
+    _check_options(step, grid)
     n = int(xmap.size)
     if n == 0:
         raise InputFileError("the crystal map holds no points", path=path)
     meta: dict = {"source": "orix"}
-    unit = str(xmap.scan_unit or "px")
-    scale = _UNIT_TO_UM.get(unit)
-    if scale is None:
-        raise InputFileError(
-            f"scan unit {unit!r} is not a length slipnet knows; accepted: {', '.join(_UNIT_TO_UM)}", path=path
-        )
-    if unit == "px":
-        meta["note_scan_unit"] = "orix scan unit was 'px'; coordinates taken as µm"
-    x = xmap.x
-    y = xmap.y
-    x = np.zeros(n) if x is None else np.asarray(x, dtype=np.float64) * scale
-    y = np.zeros(n) if y is None else np.asarray(y, dtype=np.float64) * scale
+    x, y = _coordinates_um(xmap, n, meta, path)
     if grid is None or step is None:
         try:
             g, s = detect_grid(x, y, step=step)
@@ -171,14 +158,43 @@ def from_orix(
         return f"point {k} of the crystal map", None
 
     place = place_points(x, y, step, grid, where=where, path=path)
-    ny, nx = place.shape
-
     rot = np.asarray(xmap.rotations.data, dtype=np.float64)
     if rot.ndim == 3:  # several candidate rotations per point: the first is the best match
         rot = rot[:, 0, :]
     rot = rot.reshape(n, 4)
-    pid = np.asarray(xmap.phase_id, dtype=np.int64).reshape(n)
+    phases, new_pid = _cubic_phases(xmap, n, meta, path)
+    qual = _quality(xmap, n, quality_prop, meta, path)
+    return _build_map(place, rot, new_pid, qual, step, grid, phases, meta)
 
+
+def _check_options(step, grid) -> None:
+    """Check the ``step`` and ``grid`` options of :func:`from_orix`."""
+    if grid is not None and grid not in GRIDS:
+        raise ParameterError(f"grid should be one of {', '.join(GRIDS)} or None; got {grid!r}")
+    if step is not None and not (math.isfinite(float(step)) and float(step) > 0):
+        raise ParameterError(f"step should be a positive number of µm or None; got {step!r}")
+
+
+def _coordinates_um(xmap, n: int, meta: dict, path: str | None) -> tuple[np.ndarray, np.ndarray]:
+    """The point coordinates in µm from orix's ``scan_unit`` (zeros where orix has none)."""
+    unit = str(xmap.scan_unit or "px")
+    scale = _UNIT_TO_UM.get(unit)
+    if scale is None:
+        raise InputFileError(
+            f"scan unit {unit!r} is not a length slipnet knows; accepted: {', '.join(_UNIT_TO_UM)}", path=path
+        )
+    if unit == "px":
+        meta["note_scan_unit"] = "orix scan unit was 'px'; coordinates taken as µm"
+    x = xmap.x
+    y = xmap.y
+    x = np.zeros(n) if x is None else np.asarray(x, dtype=np.float64) * scale
+    y = np.zeros(n) if y is None else np.asarray(y, dtype=np.float64) * scale
+    return x, y
+
+
+def _cubic_phases(xmap, n: int, meta: dict, path: str | None) -> tuple[list[Phase], np.ndarray]:
+    """The cubic orix phases as slipnet phases (renumbered 0..k−1) and each point's new phase id (−1 for none)."""
+    pid = np.asarray(xmap.phase_id, dtype=np.int64).reshape(n)
     phases: list[Phase] = []
     lookup: dict[int, int] = {}
     dropped, notes = [], []
@@ -211,24 +227,32 @@ def from_orix(
         meta["unindexed_non_cubic_phases"] = dropped
     if notes:
         meta["notes"] = notes
+    return phases, new_pid
 
+
+def _quality(xmap, n: int, quality_prop: str | None, meta: dict, path: str | None) -> np.ndarray:
+    """Per-point quality from ``xmap.prop`` (``quality_prop``, else ``"quality"`` if present, else 1)."""
     props = list(xmap.prop.keys())
     if quality_prop is None:
         quality_prop = "quality" if "quality" in props else None
     if quality_prop is None:
-        qual = np.ones(n)
         meta["quality_source"] = "none (set to 1)"
-    else:
-        if quality_prop not in props:
-            raise InputFileError(
-                f"the crystal map has no property {quality_prop!r}; it has {', '.join(props) or 'none'} "
-                "(choose one with quality_prop=)",
-                path=path,
-                column=quality_prop,
-            )
-        qual = np.asarray(xmap.prop[quality_prop], dtype=np.float64).reshape(n)
-        meta["quality_source"] = quality_prop
+        return np.ones(n)
+    if quality_prop not in props:
+        raise InputFileError(
+            f"the crystal map has no property {quality_prop!r}; it has {', '.join(props) or 'none'} "
+            "(choose one with quality_prop=)",
+            path=path,
+            column=quality_prop,
+        )
+    meta["quality_source"] = quality_prop
+    return np.asarray(xmap.prop[quality_prop], dtype=np.float64).reshape(n)
 
+
+def _build_map(place, rot: np.ndarray, new_pid: np.ndarray, qual: np.ndarray, step: float, grid: str,
+               phases: list[Phase], meta: dict) -> OrientationMap:
+    """Scatter the flat points onto the grid: unit quaternions where indexed, NaN and phase −1 elsewhere."""
+    ny, nx = place.shape
     indexed = (new_pid >= 0) & np.all(np.isfinite(rot), axis=1)
     norm = np.linalg.norm(rot, axis=1, keepdims=True)
     rot = np.where(indexed[:, None], rot / np.where(norm > 0, norm, 1.0), np.nan)

@@ -238,6 +238,16 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
     path = str(path)
     with open(path, encoding="utf-8", newline=None) as fh:
         settings, columns, col_line = _header(path, fh)
+    phases = _check_header(path, settings, columns, col_line)
+    df = _read_rows(path, columns, col_line)
+    where = _row_locator(path, col_line)
+    cols = {c: df[c].to_numpy() for c in COLUMNS}
+    indexed = _check_values(path, cols, len(phases), where)
+    return _build_map(path, settings, phases, cols, indexed, where)
+
+
+def _check_header(path: str, settings: dict, columns: list[str], col_line: int) -> tuple[Phase, ...]:
+    """Check that the header gives grid, step, nx, ny and numbered phases and the column line every column once."""
     for key in ("grid", "step", "nx", "ny"):
         if key not in settings:
             hk = "step_um" if key == "step" else key
@@ -274,6 +284,11 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
     if len(set(columns)) != len(columns):
         dup = next(c for c in columns if columns.count(c) > 1)
         raise InputFileError(f"column {dup!r} is named twice", path=path, line=col_line, column=dup)
+    return phases
+
+
+def _read_rows(path: str, columns: list[str], col_line: int) -> pd.DataFrame:
+    """Read the data rows with pandas' C reader; on failure, find and name the first bad line."""
     try:
         df = pd.read_csv(
             path,
@@ -293,7 +308,11 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
         df = pd.DataFrame(columns=columns, dtype=np.float64)
     if len(df) == 0:
         raise InputFileError("the table has a header but no data rows; give one row per map point", path=path)
+    return df
 
+
+def _row_locator(path: str, col_line: int):
+    """``where(k)``: the name and file line of data row ``k``, the line numbers read on first use only."""
     line_cache: list[list[int]] = []
 
     def where(k: int) -> tuple[str, int]:
@@ -301,7 +320,11 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
             line_cache.append(_data_line_numbers(path, col_line))
         return f"data row {k + 1}", line_cache[0][k]
 
-    cols = {c: df[c].to_numpy() for c in COLUMNS}
+    return where
+
+
+def _check_values(path: str, cols: dict, n_phases: int, where) -> np.ndarray:
+    """Check every value is finite, every phase known, every angle in range and in degrees; the indexed rows."""
     for c in COLUMNS:
         bad = ~np.isfinite(cols[c])
         if bad.any():
@@ -314,11 +337,11 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
                 column=c,
             )
     ph = cols["phase"]
-    bad = (ph != np.rint(ph)) | (ph < -1) | (ph >= len(phases))
+    bad = (ph != np.rint(ph)) | (ph < -1) | (ph >= n_phases)
     if bad.any():
         k = int(np.flatnonzero(bad)[0])
         raise InputFileError(
-            f"unknown phase {float(ph[k])!r}; phases are the whole numbers 0..{len(phases) - 1} listed in the header "
+            f"unknown phase {float(ph[k])!r}; phases are the whole numbers 0..{n_phases - 1} listed in the header "
             "('# phase N = ...'), or -1 for unindexed points",
             path=path,
             line=where(k)[1],
@@ -346,6 +369,12 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
                 path=path,
                 column="phi1_deg",
             )
+    return indexed
+
+
+def _build_map(path: str, settings: dict, phases: tuple[Phase, ...], cols: dict, indexed: np.ndarray,
+               where) -> OrientationMap:
+    """Place the rows on the grid and build the map once (quaternions from the Bunge angles)."""
     ny, nx = settings["ny"], settings["nx"]
     place = place_points(
         cols["x_um"], cols["y_um"], settings["step"], settings["grid"], shape=(ny, nx), where=where, path=path
@@ -358,7 +387,7 @@ def read_text(path: str | os.PathLike) -> OrientationMap:
         np.column_stack([cols["phi1_deg"][indexed], cols["Phi_deg"][indexed], cols["phi2_deg"][indexed]])
     )
     phase = np.full(n, -1, np.int32)
-    phase[place.flat] = ph.astype(np.int32)
+    phase[place.flat] = cols["phase"].astype(np.int32)
     quality = np.zeros(n)
     quality[place.flat] = cols["quality"]
     ind = np.zeros(n, bool)

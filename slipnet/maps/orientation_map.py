@@ -266,11 +266,6 @@ class OrientationMap:
         out[self.indexed] = euler_from_quat(self.quats[self.indexed], degrees=degrees)
         return out
 
-    def structure_of(self) -> np.ndarray:
-        """Crystal structure name per point (``""`` where unindexed), shape ``(ny, nx)``."""
-        names = np.array([p.structure for p in self.phases] + [""], dtype=object)
-        return names[self.phase]
-
     def crop(self, x_min: float, x_max: float, y_min: float, y_max: float) -> OrientationMap:
         """The points whose centres lie inside the µm box (inclusive), as a new map.
 
@@ -310,10 +305,6 @@ class OrientationMap:
         if keep.shape != self.shape:
             raise ParameterError(f"keep should be a boolean mask of shape {self.shape}; got {keep.shape}")
         return replace(self, indexed=self.indexed & keep, meta=dict(self.meta))
-
-    def with_quality_threshold(self, minimum: float) -> OrientationMap:
-        """Unindex points whose quality is below ``minimum``."""
-        return self.select(self.quality >= float(minimum))
 
 
 def apply_frame_rotation(omap: OrientationMap, rotation) -> OrientationMap:
