@@ -280,9 +280,8 @@ def _union_grains(a, b, ang, valid, thr: float, cleanup: bool, log) -> tuple[np.
         n = int(_pk.compact_labels(labels, valid, lab_c))
         labels = lab_c
     del parent
-    # NB: counts union-find roots only when labels are roots (a clean-up follows); with
-    # consecutive ids it counts the ids equal to their point index (kept as it was)
-    n_raw = int(np.count_nonzero(labels == np.arange(npts, dtype=np.int32)))
+    # roots before a clean-up (labels are still point indices), consecutive ids otherwise
+    n_raw = int(np.count_nonzero(labels == np.arange(npts, dtype=np.int32))) if cleanup else int(n)
     log(f"union-find below {thr:g}°: {n_raw} grains")
     return labels, n
 
