@@ -5,8 +5,8 @@ Submodules are imported on demand (``import slipnet.grains``), so importing the 
 """
 
 from slipnet.cautions import CAUTION
-from slipnet.errors import InputFileError, NumericalError, ParameterError, SlipnetError
+from slipnet.errors import InputFileError, NumericalError, OutputError, ParameterError, SlipnetError
 
 __version__ = "0.1.0"
 
-__all__ = ["CAUTION", "InputFileError", "NumericalError", "ParameterError", "SlipnetError"]
+__all__ = ["CAUTION", "InputFileError", "NumericalError", "OutputError", "ParameterError", "SlipnetError"]
