@@ -279,9 +279,11 @@ class OutputRun:
             ident = _identity(real)
             for inp in self._inputs:
                 if real == inp.real or (ident is not None and ident == inp.identity):
+                    kind = "folder" if what == "the output folder" else "name"
                     raise ParameterError(
                         f"{what} {os.fspath(path)} should not be an input of the run; got the input "
-                        f"{inp.given} itself. Choose another name: slipnet never writes over what it reads")
+                        f"{inp.given} itself. Choose another {kind}: slipnet never writes over or into what it "
+                        "reads")
                 if inp.real.is_relative_to(real):
                     raise ParameterError(
                         f"{what} {os.fspath(path)} should not hold an input of the run; got the input "
@@ -619,8 +621,11 @@ def _undo(entries: list[dict]) -> tuple[int, int, list[str]]:
                 os.unlink(path)
                 removed += 1
             elif op == "backup" and path and e.get("backup") and os.path.lexists(e["backup"]):
-                os.replace(e["backup"], path)
-                restored += 1
+                if os.path.lexists(path) and os.path.samefile(e["backup"], path):
+                    os.unlink(e["backup"])  # a hard link to the untouched file: rename would do nothing
+                else:
+                    os.replace(e["backup"], path)
+                    restored += 1
             elif op == "mkdir" and path and os.path.isdir(path) and not os.listdir(path):
                 os.rmdir(path)
         except OSError as err:
