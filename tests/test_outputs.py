@@ -500,3 +500,14 @@ def test_python_callers_give_allow_remote_for_a_remote_scheduler(small_map):
     kw = dict(spacing_um=20.0, depth_um=8.0, root_radius_um=3.0, window_um=20.0, crack_sizes_um=(4.0,))
     with pytest.raises(ParameterError, match="allow_remote=True"):
         plan_notch(gg, "top", (1, 0, 0), scheduler="tcp://127.0.0.1:9", **kw)
+
+
+def test_remote_schedulers_are_documented_as_trusted_only(capsys):
+    from slipnet.notch import sweep
+
+    doc = (ROOT / "docs" / "outputs.md").read_text(encoding="utf-8")
+    assert "trusted machines only" in doc.lower() and "unpickled" in doc
+    assert "trusted machines only" in sweep.__doc__.replace("\n", " ")
+    with pytest.raises(SystemExit):
+        main(["notch", "--help"])
+    assert "trusted machines only" in " ".join(capsys.readouterr().out.split())
