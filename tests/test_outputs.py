@@ -511,3 +511,14 @@ def test_remote_schedulers_are_documented_as_trusted_only(capsys):
     with pytest.raises(SystemExit):
         main(["notch", "--help"])
     assert "trusted machines only" in " ".join(capsys.readouterr().out.split())
+
+
+def test_demo_refuses_a_folder_holding_a_demo_of_another_seed(tmp_path, capsys):
+    # the demo folder had 98 grains in one table and 101 in another: two seeds mixed
+    out = tmp_path / "demo"
+    with OutputRun(out, options={"seed": 7, "quick": True}, command="demo"):
+        write_json({"grains": 98}, out / "grains.json")
+    before = _tree(out)
+    assert main(["demo", "--quick", "--seed", "8", "--out", str(out)]) == 2  # refused before any work
+    assert "with other options (seed)" in capsys.readouterr().err
+    assert _tree(out) == before
