@@ -8,10 +8,10 @@ unless ``NUMBA_CACHE_DIR`` is set.
 
 from slipnet._cache import use_user_numba_cache
 from slipnet.cautions import CAUTION
-from slipnet.errors import InputFileError, NumericalError, ParameterError, SlipnetError
+from slipnet.errors import InputFileError, NumericalError, OutputError, ParameterError, SlipnetError
 
 use_user_numba_cache()  # before any submodule imports numba
 
 __version__ = "0.1.0"
 
-__all__ = ["CAUTION", "InputFileError", "NumericalError", "ParameterError", "SlipnetError"]
+__all__ = ["CAUTION", "InputFileError", "NumericalError", "OutputError", "ParameterError", "SlipnetError"]

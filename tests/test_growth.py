@@ -488,8 +488,10 @@ def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):
     capsys.readouterr()
     assert main(["growth", "--barriers", str(tmp_path / "missing.csv"), "--stress-amplitude", "200"]) == 2
     assert "not found" in capsys.readouterr().err
-    assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "-5", "--out", str(out)]) == 2
+    # a fresh folder: --out OUT would be refused first, as it holds the complete run above
+    assert main(["growth", "--barriers", str(bars), "--stress-amplitude", "-5", "--out", str(tmp_path / "bad")]) == 2
     assert ">= 0" in capsys.readouterr().err
+    assert not (tmp_path / "bad").exists()
 
 
 def test_growth_figures_mark_barriers_and_arrest():

@@ -184,7 +184,7 @@ def test_bad_inputs_give_clear_errors(bands):
     with pytest.raises(ParameterError, match="unknown objective"):
         plan_notch(gg, "top", (1, 0, 0), objectives={"fastest": 1.0}, **kw)
     with pytest.raises(ParameterError, match="could not reach the dask scheduler"):
-        plan_notch(gg, "top", (1, 0, 0), scheduler="tcp://127.0.0.1:9", **kw)
+        plan_notch(gg, "top", (1, 0, 0), scheduler="tcp://127.0.0.1:9", allow_remote=True, **kw)
     with pytest.raises(ParameterError, match="scheduler should be"):
         plan_notch(gg, "top", (1, 0, 0), scheduler="cloud", **kw)
     with pytest.raises(ParameterError, match="target"):

@@ -9,8 +9,10 @@ command. Register a new subcommand in :data:`SUBCOMMANDS`.
 from __future__ import annotations
 
 import argparse
+import contextlib
+import signal
 import sys
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 
 from slipnet import __version__
 from slipnet.cautions import CAUTION
@@ -41,15 +43,46 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+@contextlib.contextmanager
+def _terminate_as_exit() -> Iterator[None]:
+    """Turn SIGTERM (``kill PID``) into SystemExit, so an output run rolls back instead of dying mid-write."""
+    def stop(signum, frame):
+        raise SystemExit(128 + signum)
+
+    try:
+        previous = signal.signal(signal.SIGTERM, stop)
+    except (ValueError, OSError):  # not the main thread, or no such signal here
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point of the ``slipnet`` console script."""
+    """Entry point of the ``slipnet`` console script.
+
+    Returns 0 on success and 2 for an error slipnet explains (one line on stderr, no traceback),
+    including a full disk or a read-only output folder; 130 when interrupted (Ctrl-C). A failed or
+    interrupted command leaves its output folder as it was.
+    """
     parser = build_parser()
     args = parser.parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     try:
-        return int(args.func(args) or 0)
+        with _terminate_as_exit():
+            return int(args.func(args) or 0)
     except SlipnetError as err:
         print(f"slipnet {args.command}: error: {err}", file=sys.stderr)
         return 2
+    except OSError as err:  # an operating-system failure no step explained: still one line, no traceback
+        print(f"slipnet {args.command}: error: {err}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"slipnet {args.command}: interrupted; its output folder was left as it was before the run",
+              file=sys.stderr)
+        return 130
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -2,6 +2,10 @@
 
 A subcommand module defines ``add(sub, parents)`` (register its parser) and ``run(args)`` (call the
 library); nothing here computes anything beyond turning arguments into library inputs.
+
+Every command that writes does so inside :func:`output_run` (a :class:`slipnet.runs.OutputRun`):
+its outputs are checked against its inputs, the folder is locked while it runs, a failed run
+leaves the folder as it was, and ``manifest.json`` is written last.
 """
 
 from __future__ import annotations
@@ -10,7 +14,8 @@ import argparse
 
 from slipnet.errors import ParameterError
 
-__all__ = ["Parents", "grain_graph_from_args", "parents", "read_map_from_args", "solve_local_stress"]
+__all__ = ["Parents", "grain_graph_from_args", "out_folder", "output_run", "parents", "read_map_from_args",
+           "solve_local_stress"]
 
 
 class Parents:
@@ -45,9 +50,19 @@ class Parents:
         g.add_argument("--load-axis", nargs=3, type=float, required=True, metavar=("X", "Y", "Z"),
                        help="uniaxial load axis in the map frame (required; x right, y down, z into the specimen)")
 
-        self.output = argparse.ArgumentParser(add_help=False)
+        self.run_folder = argparse.ArgumentParser(add_help=False)
+        g = self.run_folder.add_argument_group("output folder")
+        g.add_argument("--overwrite", action="store_true",
+                       help="replace an earlier run of another command, options or inputs in the output folder (its "
+                       "files are removed once this run succeeds; the same run again needs no flag)")
+        g.add_argument("--break-lock", action="store_true",
+                       help="clear a lock left in the output folder by a run that cannot be checked from here (on "
+                       "another machine), rolling back its partial files; a run still alive here is never broken")
+
+        self.output = argparse.ArgumentParser(add_help=False, parents=[self.run_folder])
         g = self.output.add_argument_group("output")
-        g.add_argument("--out", help="output folder (default: slipnet-<command>)")
+        g.add_argument("--out", help="output folder (default: slipnet-<command>); never one holding an input; "
+                       "manifest.json, written last, lists what the run read and wrote")
         g.add_argument("--no-figures", action="store_true", help="write tables and summary only")
 
         self.local_stress = argparse.ArgumentParser(add_help=False)
@@ -68,6 +83,36 @@ def parents() -> Parents:
 def out_folder(args) -> str:
     """``--out``, or ``slipnet-<command>``."""
     return args.out or f"slipnet-{args.command}"
+
+
+#: Namespace entries that are not options of the run (argparse plumbing).
+_NOT_OPTIONS = frozenset({"func", "argv", "command"})
+
+
+def output_run(args, *inputs, outputs=(), folder: str | bool | None = True):
+    """The :class:`slipnet.runs.OutputRun` of a command: its inputs, outputs and options from ``args``.
+
+    Parameters
+    ----------
+    args
+        The parsed command line (``--overwrite``, ``--break-lock`` and ``--out`` are read from it).
+    *inputs
+        Every file or folder the command reads (None entries skipped); ``--graph`` is added.
+    outputs
+        Files written outside the output folder's usual names; ``--save-graph`` is added.
+    folder
+        The output folder; True (default) for :func:`out_folder`, None for a command that writes
+        only ``outputs`` (``slipnet map``).
+    """
+    from slipnet.runs import OutputRun
+
+    options = {k: v for k, v in vars(args).items() if k not in _NOT_OPTIONS}
+    return OutputRun(out_folder(args) if folder is True else folder,
+                     inputs=[*inputs, getattr(args, "graph", None)],
+                     outputs=[*outputs, getattr(args, "save_graph", None)], options=options,
+                     command=str(getattr(args, "command", "python")), argv=getattr(args, "argv", None),
+                     overwrite=bool(getattr(args, "overwrite", False)),
+                     break_lock=bool(getattr(args, "break_lock", False)), echo=print)
 
 
 def read_map_from_args(args, path: str):

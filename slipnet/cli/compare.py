@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, out_folder
+from slipnet.cli._common import grain_graph_from_args, output_run
 
 
 def add(sub, parents) -> None:
@@ -46,17 +46,20 @@ def run(args) -> int:
     from slipnet.compare import compare_files
     from slipnet.reports.compare import write_comparison
 
-    gg = grain_graph_from_args(args, args.map_path) if (args.map_path or args.graph) else None
-    comp = compare_files(
-        args.strain, points=args.control_points, kind=args.kind, gg=gg,
-        forecast_folder=args.forecast, sites=args.sites, path=args.path, barriers=args.barriers,
-        measured_path=args.measured_path, record=args.record, growth_folder=args.growth, load_axis=args.load_axis,
-        step=args.load_step, strain_method=args.method, window=args.window,
-        peak_threshold=None if args.peak_threshold is None else args.peak_threshold / 100.0,
-        peak_distance_um=args.peak_distance, site_tol_um=args.site_tol, path_tol_um=args.path_tol,
-        band_tol_deg=args.band_tol, dip_tol_um=args.dip_tol, max_sites=args.max_sites)
-    out = out_folder(args)
-    write_comparison(comp, out, figures=not args.no_figures)
+    inputs = (args.strain, args.control_points, args.map_path, args.forecast, args.sites, args.path, args.barriers,
+              args.measured_path, args.record, args.growth)
+    with output_run(args, *inputs) as run:
+        gg = grain_graph_from_args(args, args.map_path) if (args.map_path or args.graph) else None
+        comp = compare_files(
+            args.strain, points=args.control_points, kind=args.kind, gg=gg,
+            forecast_folder=args.forecast, sites=args.sites, path=args.path, barriers=args.barriers,
+            measured_path=args.measured_path, record=args.record, growth_folder=args.growth,
+            load_axis=args.load_axis, step=args.load_step, strain_method=args.method, window=args.window,
+            peak_threshold=None if args.peak_threshold is None else args.peak_threshold / 100.0,
+            peak_distance_um=args.peak_distance, site_tol_um=args.site_tol, path_tol_um=args.path_tol,
+            band_tol_deg=args.band_tol, dip_tol_um=args.dip_tol, max_sites=args.max_sites)
+        write_comparison(comp, run.folder, figures=not args.no_figures)
+    out = run.folder
     if comp.transform is not None:
         print(f"compare: registration {comp.transform.kind}, RMS residual {comp.transform.rms:.3g} µm "
               f"over {len(comp.transform.residuals)} control points")

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, out_folder, solve_local_stress
+from slipnet.cli._common import grain_graph_from_args, output_run, solve_local_stress
 from slipnet.errors import ParameterError
 
 
@@ -49,15 +49,16 @@ def run(args) -> int:
     from slipnet.forecast import forecast_crack
     from slipnet.reports.forecast import write_forecast
 
-    tip = _tip(args)
-    gg = grain_graph_from_args(args, args.input)
-    fc = forecast_crack(gg, tip, args.direction, args.load_axis, args.horizon, stress_amplitude=args.stress,
-                        stress_ratio=args.ratio, samples=args.samples, seed=args.seed, top_k=args.top_k,
-                        stage2_after_um=args.stage2_after, zigzag_tol=args.zigzag_tol,
-                        max_branches=args.max_branches, boundary_inclination_deg=args.boundary_inclination,
-                        stress_field=solve_local_stress(args, gg.omap, args.stress))
-    out = out_folder(args)
-    write_forecast(fc, out, gg, figures=not args.no_figures)
+    with output_run(args, args.input, args.crack) as run:
+        tip = _tip(args)
+        gg = grain_graph_from_args(args, args.input)
+        fc = forecast_crack(gg, tip, args.direction, args.load_axis, args.horizon, stress_amplitude=args.stress,
+                            stress_ratio=args.ratio, samples=args.samples, seed=args.seed, top_k=args.top_k,
+                            stage2_after_um=args.stage2_after, zigzag_tol=args.zigzag_tol,
+                            max_branches=args.max_branches, boundary_inclination_deg=args.boundary_inclination,
+                            stress_field=solve_local_stress(args, gg.omap, args.stress))
+        write_forecast(fc, run.folder, gg, figures=not args.no_figures)
+    out = run.folder
     print(f"forecast: path {fc.length_um:.1f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} "
           f"grains (stopped: {fc.stop_reason}), {len(fc.barriers)} barriers, {len(fc.sites)} sites; load axis "
           f"({', '.join(f'{v:.3f}' for v in fc.settings['load_axis'])}); outputs written to {out}")

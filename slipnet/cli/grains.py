@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, out_folder
+from slipnet.cli._common import grain_graph_from_args, output_run
 
 
 def add(sub, parents) -> None:
@@ -20,9 +20,10 @@ def add(sub, parents) -> None:
 def run(args) -> int:
     from slipnet.reports.grains import write_grains
 
-    gg = grain_graph_from_args(args, args.input, progress=True)
-    out = out_folder(args)
-    write_grains(gg, out, figures=not args.no_figures, progress=True)
+    with output_run(args, args.input) as run:
+        gg = grain_graph_from_args(args, args.input, progress=True)
+        write_grains(gg, run.folder, figures=not args.no_figures, progress=True)
+    out = run.folder
     print(f"grains: {gg.n_grains} grains, {len(gg.boundaries)} boundaries, {len(gg.triple_junctions)} triple "
           f"junctions; outputs written to {out}")
     return 0

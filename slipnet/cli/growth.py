@@ -6,7 +6,7 @@ import json
 from dataclasses import replace
 from pathlib import Path
 
-from slipnet.cli._common import out_folder
+from slipnet.cli._common import output_run
 from slipnet.errors import InputFileError, ParameterError
 
 
@@ -79,9 +79,21 @@ def _path_from_forecast_folder(folder: Path, local_stress: bool):
 
 
 def run(args) -> int:
+    from slipnet.reports.growth import write_growth
+
+    with output_run(args, args.barriers, args.forecast, args.record) as run:
+        path, res, fit = _simulate(args)
+        write_growth(res, run.folder, figures=not args.no_figures, calibration=fit)
+    arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
+              else "no arrest on the path")
+    print(f"growth: {path.n_barriers} barriers, {len(res.dips)} dips, {arrest}; outputs written to {run.folder}")
+    return 0
+
+
+def _simulate(args):
+    """The growth path, the simulated growth and the calibration (or None) the arguments ask for."""
     from slipnet.growth import GrowthParameters, GrowthPath, calibrate, life_amplitude, simulate_growth
     from slipnet.io import read_csv_table
-    from slipnet.reports.growth import write_growth
 
     amplitude, samples, seed, settings = args.stress_amplitude, args.samples, args.seed, {}
     if args.barriers and args.local_stress:
@@ -122,9 +134,4 @@ def run(args) -> int:
         res = replace(res, notes=(*res.notes, "Grain factors: LOCAL Schmid factors of the forecast's full-field "
                                   "stress solve. Local stress assumptions: "
                                   f"{settings.get('stress_assumptions') or 'not recorded by that forecast'}"))
-    out = out_folder(args)
-    write_growth(res, out, figures=not args.no_figures, calibration=fit)
-    arrest = (f"arrests at {res.arrest_length_um:.1f} µm" if res.arrest_length_um < float("inf")
-              else "no arrest on the path")
-    print(f"growth: {path.n_barriers} barriers, {len(res.dips)} dips, {arrest}; outputs written to {out}")
-    return 0
+    return path, res, fit

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import read_map_from_args
+from slipnet.cli._common import output_run, read_map_from_args
 from slipnet.errors import ParameterError
 
 
@@ -16,7 +16,7 @@ def add(sub, parents) -> None:
     p.add_argument("input", metavar="IN", help="map file to read")
     p.add_argument("output", metavar="OUT", nargs="?", help="file to write (.txt, .tsv or .npz)")
     p.add_argument("--info", action="store_true", help="print shape, grid, step, phases and indexed fraction")
-    p.add_argument("--no-overwrite", action="store_true", help="refuse to replace an existing OUT")
+    p.add_argument("--no-overwrite", action="store_true", help="refuse to replace an existing OUT (OUT is never IN)")
     p.set_defaults(func=run)
 
 
@@ -25,10 +25,15 @@ def run(args) -> int:
 
     if args.output is None and not args.info:
         raise ParameterError("map: give an output file OUT, or --info to print a summary")
-    omap = read_map_from_args(args, args.input)
-    if args.info:
+    if args.output is None:
+        omap = read_map_from_args(args, args.input)
         print("\n".join(map_summary(omap)))
-    if args.output is not None:
+        return 0
+    # one file out, no folder: the run checks OUT against IN and leaves OUT as it was on failure
+    with output_run(args, args.input, outputs=[args.output], folder=None):
+        omap = read_map_from_args(args, args.input)
+        if args.info:
+            print("\n".join(map_summary(omap)))
         path = write_map(omap, args.output, overwrite=not args.no_overwrite)
-        print(f"map written to {path}")
+    print(f"map written to {path}")
     return 0

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, name_value_pairs, out_folder, read_map_from_args
+from slipnet.cli._common import grain_graph_from_args, name_value_pairs, output_run, read_map_from_args
 from slipnet.errors import ParameterError
 
 
@@ -35,7 +35,10 @@ def add(sub, parents) -> None:
     p.add_argument("--samples", type=int, default=0, help="Monte Carlo samples per candidate (0)")
     p.add_argument("--seed", type=int, default=0, help="seed of every random draw (0)")
     p.add_argument("--scheduler", default=None,
-                   help="synchronous | threads | processes | tcp://host:port of a dask.distributed scheduler")
+                   help="synchronous | threads | processes | tcp://host:port of a dask.distributed scheduler; "
+                   "overrides the study's. A remote address is used only when named here, never from a study "
+                   "file, and is announced: trusted machines only (its workers run the tasks and their results "
+                   "are unpickled here)")
     p.add_argument("--workers", type=int, default=None, help="local workers (default: all cores)")
     p.set_defaults(func=run)
 
@@ -54,19 +57,38 @@ def run(args) -> int:
     from slipnet.notch import iter_batch, plan_notch, run_study
     from slipnet.reports.notch import write_batch, write_plan
 
-    out = out_folder(args)
-    if args.batch:
-        if not args.study:
-            raise ParameterError("--batch needs --study FILE")
-        files = write_batch(iter_batch(args.batch, args.study, scheduler=args.scheduler, progress=True), out,
-                            figures=not args.no_figures)
-        print(f"batch: {sum(1 for k in files if k.endswith('/summary'))} specimens planned; written to {out}")
-        return 0
+    if args.batch and not args.study:
+        raise ParameterError("--batch needs --study FILE")
+    st = None
     if args.study:
-        from slipnet.grains import build_grain_graph
         from slipnet.io import read_study
 
         st = read_study(args.study)
+    # the study's own map is read too (unless a batch folder replaces it)
+    inputs = (args.map, args.study, args.batch, None if st is None or args.batch else st.map_path)
+    with output_run(args, *inputs) as run:
+        out = run.folder
+        if args.batch:
+            files = write_batch(iter_batch(args.batch, st, scheduler=args.scheduler, progress=True), out,
+                                figures=not args.no_figures)
+        else:
+            gg, plan = _plan(args, st, plan_notch, run_study)
+            write_plan(plan, gg, out, figures=not args.no_figures)
+    if args.batch:
+        print(f"batch: {sum(1 for k in files if k.endswith('/summary'))} specimens planned; written to {out}")
+        return 0
+    best = plan.table.iloc[0]
+    print(f"best notch root at x = {best['root_x_um']:.1f} µm, y = {best['root_y_um']:.1f} µm (plan score "
+          f"{best['plan_score']:.3f}); load axis "
+          f"({', '.join(f'{v:.3f}' for v in plan.settings.load_axis)}); plan written to {out}")
+    return 0
+
+
+def _plan(args, st, plan_notch, run_study):
+    """The grain graph and the notch plan of a single specimen (a study file, or the options)."""
+    if st is not None:
+        from slipnet.grains import build_grain_graph
+
         if args.graph:
             gg = grain_graph_from_args(args, None)
         elif st.map_path is not None:
@@ -74,22 +96,18 @@ def run(args) -> int:
             gg = build_grain_graph(read_map_from_args(args, str(st.map_path)), **st.grain_options)
         else:
             gg = grain_graph_from_args(args, args.map)
-        plan = run_study(st, gg=gg, scheduler=args.scheduler, progress=True)
-    else:
-        if args.load_axis is None:
-            raise ParameterError("notch: give --load-axis X Y Z (the uniaxial load axis in the map frame)")
-        gg = grain_graph_from_args(args, args.map)
-        plan = plan_notch(gg, _edge(args), args.load_axis, spacing_um=args.spacing, stress_amplitude=args.stress,
-                          stress_ratio=args.ratio, depth_um=args.depth, root_radius_um=args.root_radius,
-                          opening_deg=args.opening, window_um=args.window, crack_sizes_um=args.crack_sizes,
-                          objectives=name_value_pairs(args.objective, "--objective", "initiation_drive=1",
-                                                      default=1.0) or None,
-                          method="pareto" if args.pareto else "weighted", samples=args.samples, seed=args.seed,
-                          concentration="full_field" if args.full_field else "peterson",
-                          scheduler=args.scheduler or "synchronous", workers=args.workers, progress=True)
-    write_plan(plan, gg, out, figures=not args.no_figures)
-    best = plan.table.iloc[0]
-    print(f"best notch root at x = {best['root_x_um']:.1f} µm, y = {best['root_y_um']:.1f} µm (plan score "
-          f"{best['plan_score']:.3f}); load axis "
-          f"({', '.join(f'{v:.3f}' for v in plan.settings.load_axis)}); plan written to {out}")
-    return 0
+        # a remote --scheduler named on this command line is the user's consent; one in the file is refused
+        return gg, run_study(st, gg=gg, scheduler=args.scheduler, progress=True)
+    if args.load_axis is None:
+        raise ParameterError("notch: give --load-axis X Y Z (the uniaxial load axis in the map frame)")
+    gg = grain_graph_from_args(args, args.map)
+    plan = plan_notch(gg, _edge(args), args.load_axis, spacing_um=args.spacing, stress_amplitude=args.stress,
+                      stress_ratio=args.ratio, depth_um=args.depth, root_radius_um=args.root_radius,
+                      opening_deg=args.opening, window_um=args.window, crack_sizes_um=args.crack_sizes,
+                      objectives=name_value_pairs(args.objective, "--objective", "initiation_drive=1",
+                                                  default=1.0) or None,
+                      method="pareto" if args.pareto else "weighted", samples=args.samples, seed=args.seed,
+                      concentration="full_field" if args.full_field else "peterson",
+                      scheduler=args.scheduler or "synchronous", workers=args.workers, progress=True,
+                      allow_remote=args.scheduler is not None)
+    return gg, plan

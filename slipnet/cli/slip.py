@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, name_value_pairs, out_folder, solve_local_stress
+from slipnet.cli._common import grain_graph_from_args, name_value_pairs, output_run, solve_local_stress
 
 
 def add(sub, parents) -> None:
@@ -35,15 +35,16 @@ def run(args) -> int:
     from slipnet.slip import slip_activity
 
     crss = name_value_pairs(args.relative_crss, "--relative-crss", "{112}<111>=1.05", form="FAMILY=VALUE")
-    gg = grain_graph_from_args(args, args.input)
-    structure = args.structure or gg.omap.phases[0].structure
-    families = args.families[0] if args.families and args.families == ["all"] else args.families
-    systems = slip_systems(structure, families, crss, twinning_asymmetry=args.twinning_asymmetry)
-    act = slip_activity(gg, args.load_axis, systems, boundary_inclination_deg=args.boundary_inclination,
-                        taylor=not args.no_taylor,
-                        stress_field=solve_local_stress(args, gg.omap, args.local_stress_mpa))
-    out = out_folder(args)
-    write_slip(act, gg, out, figures=not args.no_figures)
+    with output_run(args, args.input) as run:
+        gg = grain_graph_from_args(args, args.input)
+        structure = args.structure or gg.omap.phases[0].structure
+        families = args.families[0] if args.families and args.families == ["all"] else args.families
+        systems = slip_systems(structure, families, crss, twinning_asymmetry=args.twinning_asymmetry)
+        act = slip_activity(gg, args.load_axis, systems, boundary_inclination_deg=args.boundary_inclination,
+                            taylor=not args.no_taylor,
+                            stress_field=solve_local_stress(args, gg.omap, args.local_stress_mpa))
+        write_slip(act, gg, run.folder, figures=not args.no_figures)
+    out = run.folder
     print(f"slip: {len(act.grains)} grains, {len(act.transmission) // 2} boundaries; load axis "
           f"({', '.join(f'{v:.3f}' for v in act.load_axis)}); outputs written to {out}")
     return 0

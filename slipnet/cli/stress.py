@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, out_folder, read_map_from_args
+from slipnet.cli._common import grain_graph_from_args, output_run, read_map_from_args
 
 
 def add(sub, parents) -> None:
@@ -58,22 +58,23 @@ def run(args) -> int:
     from slipnet.reports.stress import write_stress
     from slipnet.stress import solve_elastic, solve_plastic, stress_concentration
 
-    omap = read_map_from_args(args, args.input)
-    if args.cyclic:
-        return _run_cyclic(args, omap)
-    common = {"tol": args.tol, "max_iter": args.max_iter, "scheme": args.scheme, "unindexed": args.unindexed,
-              "compliant_ratio": args.compliant_ratio}
-    plastic = None
-    if args.plastic:
-        plastic = solve_plastic(omap, args.load_axis, args.stress, crss_mpa=args.crss_mpa,
-                                increments=args.increments, **common)
-        field = plastic.field
-    else:
-        field = solve_elastic(omap, args.load_axis, args.stress, **common)
-    gg = grain_graph_from_args(args, args.input)
-    out = out_folder(args)
-    write_stress(field, out, gg, notch_root=args.concentration_at, radius_um=args.search_radius,
-                 figures=not args.no_figures, plastic=plastic)
+    with output_run(args, args.input) as run:
+        omap = read_map_from_args(args, args.input)
+        if args.cyclic:
+            return _run_cyclic(args, omap, run.folder)
+        common = {"tol": args.tol, "max_iter": args.max_iter, "scheme": args.scheme, "unindexed": args.unindexed,
+                  "compliant_ratio": args.compliant_ratio}
+        plastic = None
+        if args.plastic:
+            plastic = solve_plastic(omap, args.load_axis, args.stress, crss_mpa=args.crss_mpa,
+                                    increments=args.increments, **common)
+            field = plastic.field
+        else:
+            field = solve_elastic(omap, args.load_axis, args.stress, **common)
+        gg = grain_graph_from_args(args, args.input)
+        write_stress(field, run.folder, gg, notch_root=args.concentration_at, radius_um=args.search_radius,
+                     figures=not args.no_figures, plastic=plastic)
+    out = run.folder
     print(f"stress: {field.iterations} iterations, residual {field.residual:.2e}, apparent modulus "
           f"{field.apparent_modulus:.1f} GPa along the load axis "
           f"({', '.join(f'{v:.3f}' for v in field.load_axis)})")
@@ -86,7 +87,7 @@ def run(args) -> int:
     return 0
 
 
-def _run_cyclic(args, omap) -> int:
+def _run_cyclic(args, omap, out) -> int:
     from slipnet.errors import ParameterError
     from slipnet.reports.cyclic import write_cyclic
     from slipnet.stress import CyclicMaterial, solve_cyclic
@@ -106,7 +107,6 @@ def _run_cyclic(args, omap) -> int:
                           max_iter=max(args.max_iter, 3000), max_newton=args.max_newton,
                           max_cutbacks=args.max_cutbacks, scheme=args.scheme, unindexed=args.unindexed,
                           compliant_ratio=args.compliant_ratio, progress=True)
-    out = out_folder(args)
     write_cyclic(result, out, figures=not args.no_figures)
     s = result.settings
     print(f"cyclic: {s['increments']} increments, {s['newton_iterations']} Newton / {s['cg_iterations']} CG "

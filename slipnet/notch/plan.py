@@ -92,6 +92,7 @@ def plan_notch(
     scheduler: str = "synchronous",
     workers: int | None = None,
     progress: bool = False,
+    allow_remote: bool = False,
 ) -> NotchPlan:
     """Rank candidate notch positions along a specimen edge.
 
@@ -141,6 +142,10 @@ def plan_notch(
         ``"processes"`` or the address of a running ``dask.distributed`` scheduler
         (``"tcp://host:port"``); number of local workers; show a progress bar.
         The same seed gives the same table on every scheduler.
+    allow_remote
+        Consent to use a remote scheduler address (refused without it). Trusted machines only:
+        its workers run the tasks and their results are unpickled here
+        (:mod:`slipnet.notch.sweep`).
 
     Returns
     -------
@@ -184,7 +189,7 @@ def plan_notch(
         raise ParameterError(f"method should be 'weighted' or 'pareto'; got {method!r}")
     cands = candidate_positions(gg, edge, spacing_um, s.notch)
     rows = run_sweep(gg, cands, s, systems=systems, scheduler=scheduler, workers=workers,
-                     progress=progress)
+                     progress=progress, allow_remote=allow_remote)
     return finish_plan(rows, s, method=method, top_k=top_k)
 
 

@@ -4,11 +4,19 @@ Candidates are split into chunks, each chunk evaluated by one task
 (:func:`slipnet.notch.evaluate_candidate` per candidate). Each candidate's Monte Carlo draws come
 from its own seed (``SeedSequence([seed, candidate index])``), and results are put back in
 candidate order, so the table is the same on every scheduler and with any number of workers.
+
+A remote ``dask.distributed`` scheduler (``"tcp://host:port"``, ``"tls://…"``) is used only when the
+caller asks for it (``allow_remote=True``; on the command line, ``--scheduler ADDRESS``), never
+because a study file names one, and the connection is announced on stderr. Use it with trusted
+machines only: the scheduler and its workers run the sweep's tasks, and what they send back is
+unpickled on this machine, so a hostile scheduler can run code here. Only an in-process cluster
+(``"inproc://…"``) needs no such consent.
 """
 
 from __future__ import annotations
 
 import os
+import sys
 
 import numpy as np
 
@@ -16,9 +24,20 @@ from slipnet.errors import ParameterError
 from slipnet.notch.objectives import evaluate_candidate
 from slipnet.notch.settings import Candidate, PlanSettings
 
-__all__ = ["LOCAL_SCHEDULERS", "run_sweep"]
+__all__ = ["LOCAL_SCHEDULERS", "is_remote_scheduler", "run_sweep"]
 
 LOCAL_SCHEDULERS = ("synchronous", "threads", "processes")
+
+
+def is_remote_scheduler(scheduler: str | None) -> bool:
+    """Whether ``scheduler`` is the address of a ``dask.distributed`` scheduler outside this process.
+
+    Examples
+    --------
+    >>> is_remote_scheduler("tcp://10.0.0.5:8786"), is_remote_scheduler("processes")
+    (True, False)
+    """
+    return scheduler is not None and "://" in str(scheduler) and not str(scheduler).startswith("inproc://")
 
 
 def _eval_chunk(gg, chunk: list[Candidate], s: PlanSettings, systems) -> list[dict]:
@@ -40,7 +59,7 @@ def _chunks(items: list, n: int) -> list[list]:
 
 
 def run_sweep(gg, candidates: list[Candidate], s: PlanSettings, *, systems=None, scheduler: str = "synchronous",
-              workers: int | None = None, progress: bool = False) -> list[dict]:
+              workers: int | None = None, progress: bool = False, allow_remote: bool = False) -> list[dict]:
     """Evaluate every candidate on a Dask scheduler; rows come back in candidate order.
 
     Parameters
@@ -55,16 +74,21 @@ def run_sweep(gg, candidates: list[Candidate], s: PlanSettings, *, systems=None,
         Slip systems (default: those of the map's first phase).
     scheduler
         ``"synchronous"``, ``"threads"``, ``"processes"`` or a ``dask.distributed`` scheduler
-        address (``"tcp://host:port"``).
+        address (``"tcp://host:port"``; only with ``allow_remote=True``).
     workers
         Local workers (default: the machine's cores); ignored for a cluster address.
     progress
         Show a progress bar.
+    allow_remote
+        Consent to send the sweep to a remote scheduler address. Trusted machines only: the
+        scheduler and its workers run the tasks, and their results are unpickled here. The
+        connection is announced on stderr.
 
     Raises
     ------
     ParameterError
-        For an unknown scheduler name or an unreachable scheduler address.
+        For an unknown scheduler name, a remote address without ``allow_remote``, or an
+        unreachable scheduler address.
     """
     if not candidates:
         raise ParameterError("no candidate notch positions to evaluate")
@@ -102,6 +126,14 @@ def run_sweep(gg, candidates: list[Candidate], s: PlanSettings, *, systems=None,
             if pool is not None:
                 pool.shutdown()
     elif "://" in sched:
+        if is_remote_scheduler(sched):
+            if not allow_remote:
+                raise ParameterError(
+                    f"scheduler {sched!r} is a remote dask scheduler, which runs the sweep's tasks and sends back "
+                    "data unpickled here; it should be asked for explicitly: --scheduler ADDRESS on the command "
+                    "line or allow_remote=True in Python (trusted machines only); got it without that consent")
+            print(f"notch: connecting to the remote dask scheduler {sched} (trusted machines only: its workers run "
+                  "the sweep's tasks and their results are unpickled on this machine)", file=sys.stderr)
         parts = _run_distributed(gg, candidates, s, systems, sched, progress)
     else:
         raise ParameterError(

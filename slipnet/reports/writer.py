@@ -4,7 +4,10 @@ Every step's writer (``slipnet.reports.<step>``) collects its files through an :
 and returns ``Outputs.files``: a ``{name: Path}`` dict, the one return shape of every writer.
 Each file is written to a temporary name beside its target and renamed when complete
 (:func:`slipnet._files.atomic_path`), so an interrupted run never leaves a half-written file,
-and every summary ends with the caution (:data:`slipnet.cautions.CAUTION`).
+and every summary ends with the caution (:data:`slipnet.cautions.CAUTION`). Inside a
+:class:`slipnet.runs.OutputRun` every file is also checked against the run's inputs, kept for a
+roll-back and listed in the run's manifest; a full disk or a read-only folder raises
+:class:`~slipnet.errors.OutputError`.
 """
 
 from __future__ import annotations
