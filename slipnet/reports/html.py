@@ -91,7 +91,7 @@ def column_header(name: str, dtype=None) -> str:
         if name.endswith(suffix):
             return f"{name[: -len(suffix)].replace('_', ' ')} ({unit})"
     words = name.replace("_", " ")
-    if dtype is not None and (np.dtype(dtype) == bool or not np.issubdtype(np.dtype(dtype), np.number)):
+    if dtype is not None and (pd.api.types.is_bool_dtype(dtype) or not pd.api.types.is_numeric_dtype(dtype)):
         return words
     if name.startswith("p_") or "probability" in name:
         return f"{words} (0–1)"

@@ -57,6 +57,11 @@ SECTIONS: tuple[tuple[str, str], ...] = (
 )
 
 
+def _figure(r, make, caption: str) -> str:
+    """``make()`` drawn and embedded, unless the report is asked without pictures."""
+    return figure_html(make(), caption) if getattr(r, "figures", True) else ""
+
+
 def _n(v, digits: int = 3) -> str:
     return format_cell(v, digits)[0]
 
@@ -128,7 +133,7 @@ def _expectation(r) -> list[str]:
                                      "boundary", "site_score_mpa_um", "p_present"], max_rows=6))
     parts.append(html_table(r.tables[f"{name}_dips"], caption=f"Expected growth-rate dips ({name})",
                             note="depth ratio = lowest rate before the barrier / rate just after crossing it."))
-    parts.append(figure_html(plot_study_growth(r, 0),
+    parts.append(_figure(r, lambda: plot_study_growth(r, 0),
                              f"Growth from {name}: rate and crack length against cycles, with the 5–95 % Monte "
                              "Carlo bands; dotted lines are the barriers (B = boundary id)."))
     return parts
@@ -142,13 +147,12 @@ def _candidates(r) -> list[str]:
                         note="arrest probability: share of Monte Carlo draws in which the crack arrests on the "
                              "forecast path; cycles to window p50: median cycles to grow through the plan's "
                              f"observation window ({r.plan.settings.window_um:g} µm)."),
-             figure_html(plot_candidate_growth(r), "Growth rate from each candidate notch (central values).")]
+             _figure(r, lambda: plot_candidate_growth(r), "Growth rate from each candidate notch (central values).")]
     return parts
 
 
 def _map_section(r) -> list[str]:
     g = r.options.grains
-    ax = plot_ipf_map(r.omap, title="Orientation map: IPF colouring, normal direction z")
     return [html_table(r.tables["map"], caption="The map and what the clean-up kept"),
             _p(f"Clean-up: grain boundary threshold {g.threshold_deg:g}°"
                + (f", sub-grain threshold {g.subgrain_deg:g}°" if g.subgrain_deg else "")
@@ -156,14 +160,15 @@ def _map_section(r) -> list[str]:
                + (", unlabelled points filled from their neighbours" if g.fill_unindexed else "")
                + (f", grains under {g.min_grain_size} points merged" if g.min_grain_size else "")
                + (f", grains under {g.min_grain_area_um2:g} µm² merged" if g.min_grain_area_um2 else "") + "."),
-            figure_html(ax.figure, "The map as read, in IPF colours (normal direction z); unindexed points dark.")]
+            _figure(r, lambda: plot_ipf_map(r.omap, title="Orientation map: IPF colouring, normal direction z").figure,
+                    "The map as read, in IPF colours (normal direction z); unindexed points dark.")]
 
 
 def _grains_section(r) -> list[str]:
     gg = r.gg
     cls = gg.boundaries["boundary_class"].value_counts().rename_axis("boundary_class").reset_index(name="count")
-    return [figure_html(plot_grain_map(gg), "Grains coloured by mean orientation, boundaries by class."),
-            figure_html(plot_misorientation_histogram(gg), "Boundary misorientation, length weighted."),
+    return [_figure(r, lambda: plot_grain_map(gg), "Grains coloured by mean orientation, boundaries by class."),
+            _figure(r, lambda: plot_misorientation_histogram(gg), "Boundary misorientation, length weighted."),
             html_table(cls, caption="Boundary classes"),
             html_table(r.tables["grains"], caption="Grains (G = grain id)", max_rows=40),
             html_table(r.tables["boundaries"], caption="Boundaries (B = boundary id)", max_rows=40)]
@@ -174,9 +179,9 @@ def _slip_section(r) -> list[str]:
     return [_p(f"Structure {act.systems.structure}, families {', '.join(act.systems.family_names)} "
                f"({len(act.systems)} systems), uniform uniaxial load along the load axis. Transmission: Luster–Morris "
                "m′ weighted by the outgoing system's effective Schmid factor."),
-            figure_html(plot_schmid_map(gg, act.grains["schmid_max"].to_numpy()),
+            _figure(r, lambda: plot_schmid_map(gg, act.grains["schmid_max"].to_numpy()),
                         "Largest Schmid factor per grain (dimensionless, 0–0.5)."),
-            figure_html(plot_transmission(gg, act.transmission),
+            _figure(r, lambda: plot_transmission(gg, act.transmission),
                         "Slip transmission score per boundary (dimensionless, 0–1).")]
 
 
@@ -193,8 +198,9 @@ def _stress_section(r) -> list[str]:
                       ("load-axis normal stress, max", f"{np.max(ns):.1f}", "MPa")],
                      columns=["item", "value", "unit"])
     return [html_table(t, caption="Full-field elastic solve"),
-            figure_html(plot_stress_component(f), "Local normal stress along the load axis (MPa)."),
-            figure_html(plot_max_local_schmid(f, r.slip.systems), "Largest local Schmid factor (dimensionless)."),
+            _figure(r, lambda: plot_stress_component(f), "Local normal stress along the load axis (MPa)."),
+            _figure(r, lambda: plot_max_local_schmid(f, r.slip.systems),
+                    "Largest local Schmid factor (dimensionless)."),
             _p("Assumptions: " + f.assumptions, "meta")]
 
 
@@ -209,7 +215,8 @@ def _forecast_section(r) -> list[str]:
                      f"{len(fc.barriers)} boundaries ranked (main and alternative paths), {len(fc.sites)} sites; "
                      f"{len(fc.samples) if fc.samples is not None else 0} Monte Carlo samples (seed "
                      f"{fc.settings.get('seed')})."),
-                  figure_html(plot_notch_forecast(r, i), f"{name}: forecast path, barriers and sites over the "
+                  _figure(r, lambda i=i: plot_notch_forecast(r, i),
+                          f"{name}: forecast path, barriers and sites over the "
                               "predicted localisation field."),
                   html_table(r.tables[f"{name}_barriers"], caption=f"{name}: barriers on the path"),
                   html_table(r.tables[f"{name}_sites"], caption=f"{name}: localisation sites", max_rows=12)]
@@ -226,7 +233,8 @@ def _growth_section(r) -> list[str]:
     for i, o in enumerate(r.outcomes):
         name = notch_label(o.rank)
         if i:
-            parts.append(figure_html(plot_study_growth(r, i), f"Growth from {name} with the 5–95 % Monte Carlo bands."))
+            parts.append(_figure(r, lambda i=i: plot_study_growth(r, i),
+                                 f"Growth from {name} with the 5–95 % Monte Carlo bands."))
         parts.append(html_table(r.tables[f"{name}_dips"], caption=f"{name}: growth-rate dips"))
     return parts
 
@@ -243,7 +251,8 @@ def _notch_section(r) -> list[str]:
                f"{s.notch.depth_um:g} µm, root radius {s.notch.root_radius_um:g} µm, opening {s.notch.opening_deg:g}°; "
                f"stress concentration: {s.concentration}; ranking {r.plan.method}; observation window "
                f"{s.window_um:g} µm."),
-            figure_html(plot_candidate_map(r), "Every candidate (edge → root) coloured by plan score; N = rank."),
+            _figure(r, lambda: plot_candidate_map(r),
+                    "Every candidate (edge → root) coloured by plan score; N = rank."),
             html_table(plan, caption="All candidates, best first", columns=_PLAN_COLUMNS, max_rows=40),
             *(_p("Note: " + n, "meta") for n in r.plan.notes)]
 
@@ -262,7 +271,7 @@ def _comparison_section(r) -> list[str]:
     if comp.transform is not None:
         parts.append(html_table(comp.transform.table(), caption="Control points and their residuals"))
     parts.append(html_table(r.tables["comparison_scores"], caption="Scores of the forecast"))
-    for fname, fig in comparison_figures(comp).items():
+    for fname, fig in (comparison_figures(comp) if getattr(r, "figures", True) else {}).items():
         parts.append(figure_html(fig, fname.removesuffix(".png").replace("_", " ")))
     if r.calibration is not None:
         parts.append(html_table(r.tables["calibration"], caption="Growth constants fitted to the record (95 % "
@@ -307,7 +316,8 @@ def study_report_html(r) -> str:
                          _p("None: no step had to guess or fall back.")], first=True))
     body.append(section("answer", "The answer", [
         f"<p class=\"lead\">{esc(_answer_paragraph(r))}</p>",
-        figure_html(plot_study_answer(r), f"Where to cut: the candidate notches (outlines, N = rank), the forecast "
+        _figure(r, lambda: plot_study_answer(r),
+                f"Where to cut: the candidate notches (outlines, N = rank), the forecast "
                     f"path from each, and for {name} the barriers (B = boundary id), the localisation sites and "
                     "where the Monte Carlo paths end."),
         *_expectation(r)]))

@@ -92,6 +92,7 @@ class StudyResult:
     validation: pd.DataFrame | None = None
     assumptions: list[str] = field(default_factory=list)
     caution: str = CAUTION
+    figures: bool = True
 
     @property
     def recommended(self):
@@ -143,7 +144,7 @@ def _printer(progress: bool) -> Callable[[str, str], None]:
 
 def run_study(options: StudyOptions, out: str | os.PathLike, *, progress: bool = False,
               on_warning: Callable[[str, str], None] | None = None, title: str = "slipnet study",
-              description: str = "", cache: bool = True, write: bool = True,
+              description: str = "", cache: bool = True, write: bool = True, figures: bool = True,
               extra_assumptions: tuple[str, ...] = ()) -> StudyResult:
     """Run every step of a study on one map and write its report into ``out``.
 
@@ -165,6 +166,8 @@ def run_study(options: StudyOptions, out: str | os.PathLike, *, progress: bool =
         Reuse and store step results under ``out/.cache``.
     write
         Write the report and tables (False: compute only, e.g. before measurements exist).
+    figures
+        Draw the report's pictures (False: tables and text only).
     extra_assumptions
         Further assumptions to list in the report (the demo's synthetic data, say).
 
@@ -274,7 +277,7 @@ def run_study(options: StudyOptions, out: str | os.PathLike, *, progress: bool =
         result = StudyResult(options=opts, omap=omap, gg=gg, slip=slip, stress_field=field_, plan=plan,
                              outcomes=outcomes, comparison=comp, calibration=cal, warnings=warnings,
                              log=c.table(), title=title, description=description,
-                             validation=validation_standing(),
+                             validation=validation_standing(), figures=figures,
                              assumptions=_assumptions(opts, field_, outcomes, extra_assumptions))
         result.tables = _tables(result)
         if write:
