@@ -34,13 +34,21 @@ def _colour(i: int) -> str:
     return NOTCH_COLOURS[i % len(NOTCH_COLOURS)]
 
 
+def _grain_edges(labels: np.ndarray) -> np.ndarray:
+    """Points on a boundary between two grains (specks of unindexed points are not outlined)."""
+    edges = np.zeros(labels.shape, bool)
+    h = (labels[:, :-1] != labels[:, 1:]) & (labels[:, :-1] >= 0) & (labels[:, 1:] >= 0)
+    v = (labels[:-1, :] != labels[1:, :]) & (labels[:-1, :] >= 0) & (labels[1:, :] >= 0)
+    edges[:, :-1] |= h
+    edges[:-1, :] |= v
+    return edges
+
+
 def _background(ax: Axes, gg) -> tuple[float, float, float, float]:
     """Grains in light grey, unindexed points darker, boundaries black."""
     labels = np.asarray(gg.labels)
-    edges = np.zeros(labels.shape, bool)
-    edges[:, :-1] |= labels[:, :-1] != labels[:, 1:]
-    edges[:-1, :] |= labels[:-1, :] != labels[1:, :]
-    shade = np.where(labels >= 0, 0.93, 0.62) - 0.65 * edges
+    edges = _grain_edges(labels)
+    shade = np.where(labels >= 0, 0.93, 0.78) - 0.65 * edges
     ext = map_extent(gg.omap)
     ax.imshow(shade, extent=ext, origin="upper", cmap="gray", vmin=0, vmax=1, interpolation="nearest")
     return ext
@@ -52,9 +60,7 @@ def _notch_outline(ax: Axes, gg, row, shape: NotchShape, colour: str, lw: float)
     m = notch_mask(x, y, (float(row["edge_x_um"]), float(row["edge_y_um"])),
                    (float(row["normal_x"]), float(row["normal_y"])), shape, behind_um=om.step)
     if m.any():
-        ext = map_extent(om)
-        ax.contour(m.astype(float), levels=[0.5], colors=[colour], linewidths=lw, extent=(ext[0], ext[1], ext[3],
-                                                                                          ext[2]), origin="upper")
+        ax.contour(x, y, m.astype(float), levels=[0.5], colors=[colour], linewidths=lw)
 
 
 def _path_xy(path) -> tuple[np.ndarray, np.ndarray]:
@@ -157,9 +163,7 @@ def plot_notch_forecast(result, index: int, *, n_sites: int = 8, margin_um: floa
     field = fc.field if fc.field is not None else np.zeros(np.asarray(gg.labels).shape)
     im = ax.imshow(field, extent=ext, origin="upper", cmap=SCALAR_CMAP, vmin=0, vmax=1, interpolation="nearest")
     labels = np.asarray(gg.labels)
-    edges = np.zeros(labels.shape, bool)
-    edges[:, :-1] |= labels[:, :-1] != labels[:, 1:]
-    edges[:-1, :] |= labels[:-1, :] != labels[1:, :]
+    edges = _grain_edges(labels)
     ax.imshow(np.ma.masked_where(~edges, np.ones(labels.shape)), extent=ext, origin="upper", cmap="gray_r",
               vmin=0, vmax=1.2, alpha=0.9, interpolation="nearest")
     fig.colorbar(im, ax=ax, shrink=0.8, label="predicted localisation (normalised, 0–1)")

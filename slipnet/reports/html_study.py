@@ -74,6 +74,13 @@ def _xy(x, y) -> str:
     return f"({float(x):.0f}, {float(y):.0f}) µm"
 
 
+def _edge_text(edge) -> str:
+    if isinstance(edge, str):
+        return f"the {edge} edge of the map"
+    pts = " – ".join(f"({float(x):.0f}, {float(y):.0f})" for x, y in edge)
+    return f"the edge {pts} µm"
+
+
 def _answer_paragraph(r) -> str:
     best = r.recommended
     row = best.row
@@ -82,8 +89,7 @@ def _answer_paragraph(r) -> str:
     others = t.iloc[1:]
     weights = ", ".join(f"{k.replace('_', ' ')} (weight {v:g})" for k, v in r.plan.settings.weights.items())
     why = (f"It has the best plan score, {_n(c0['plan_score'])}, of the {len(r.plan.table)} candidate positions "
-           f"along the {', '.join(str(e) if isinstance(e, str) else 'given polyline' for e in r.options.notch.edges)} "
-           f"edge(s), ranked by {weights}")
+           f"along {' and '.join(_edge_text(e) for e in r.options.notch.edges)}, ranked by {weights}")
     if len(others):
         why += "; next " + ", ".join(f"{o['notch']} {_n(o['plan_score'])}" for _, o in others.iterrows())
     why += "."
@@ -98,7 +104,7 @@ def _answer_paragraph(r) -> str:
                      f"{s['distance_from_root_um']:.0f} µm (barrier score {_n(s['barrier_score'])})")
     kt = f", K_t ≈ {_n(row['kt'])}" if "kt" in row and np.isfinite(row["kt"]) else ""
     return (f"Cut the notch {notch_label(best.rank)}: from {_xy(row['edge_x_um'], row['edge_y_um'])} on the "
-            f"{row.get('edge', 'chosen')} edge, {r.plan.settings.notch.depth_um:g} µm deep along "
+            f"edge, {r.plan.settings.notch.depth_um:g} µm deep along "
             f"({float(row['normal_x']):.2f}, {float(row['normal_y']):.2f}), root radius "
             f"{r.plan.settings.notch.root_radius_um:g} µm, opening {r.plan.settings.notch.opening_deg:g}°, so its "
             f"root lies at {_xy(row['root_x_um'], row['root_y_um'])}{kt}. {why}{first}{strongest}. Load axis "
