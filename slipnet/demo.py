@@ -62,7 +62,7 @@ def demo_options(map_path: str | os.PathLike, extent: tuple[float, float, float,
     seed
         Seed of the Monte Carlo draws.
     """
-    x0, x1, y0, y1 = (float(v) for v in extent)
+    _, x1, y0, y1 = (float(v) for v in extent)
     edge = ((x1, y0 + 100.0), (x1, y1 - 100.0))
     return StudyOptions(
         map=MapOptions(path=str(Path(map_path).resolve())),
