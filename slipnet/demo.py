@@ -123,8 +123,11 @@ def run_demo(out: str | os.PathLike = DEMO_FOLDER, *, seed: int = 7, quick: bool
     first = run_study(opts, out, progress=progress, write=False, on_warning=lambda step, message: None)
     compare = _write_measurements(first, folder, seed)
     ny, nx = spec.omap.shape
+    computed = first.log[first.log["status"] == "computed"]
     description = (f"{spec.description} The map ({ny} × {nx} points at {spec.omap.step:g} µm) is in input/"
-                   f"{map_path.name}; the study plans a second notch along the uncut right edge.")
+                   f"{map_path.name}; the study plans a second notch along the uncut right edge. A first pass "
+                   f"computed {len(computed)} steps in {computed['seconds'].sum():.0f} s; this pass reuses them "
+                   "and adds the comparison with the invented measurements.")
     return run_study(replace(opts, compare=compare), out, progress=progress, on_warning=on_warning,
                      title=f"slipnet demo: {spec.name}", description=description,
                      extra_assumptions=(_SYNTHETIC_NOTE,))
