@@ -57,8 +57,8 @@ MANIFEST_NAME = "manifest.json"
 LOCK_NAME = ".slipnet-run.lock"
 MANIFEST_FORMAT = "slipnet-run-manifest"
 MANIFEST_VERSION = 1
-#: Options that only say how to treat the folder; they do not make a run different.
-_FOLDER_OPTIONS = frozenset({"overwrite", "break_lock", "out"})
+#: Options that only say how to treat the folder or the console; they do not make a run different.
+_FOLDER_OPTIONS = frozenset({"overwrite", "break_lock", "out", "quiet"})
 
 logger = logging.getLogger("slipnet")
 
@@ -198,6 +198,14 @@ class OutputRun:
         The command's name (``"grains"``, ``"notch"``, …), recorded in the manifest.
     argv
         The command line, recorded in the manifest.
+    keep
+        Subfolders of ``folder`` holding a store the run reuses across runs (the study's step cache):
+        their files are written as usual but are not the run's files (not in the manifest, not rolled
+        back, never removed as an earlier run's leftovers).
+    revise
+        A complete earlier run of the same command may be replaced without ``overwrite`` even with
+        other options or inputs (a study revised step by step); its files not written again are
+        removed once this run succeeds, so the runs never mix.
     overwrite
         Replace a complete earlier run of another command/options/inputs in ``folder``, and files
         in it that no run recorded.
@@ -242,8 +250,11 @@ class OutputRun:
     def __init__(self, folder: str | os.PathLike | None, *, inputs: Iterable = (), outputs: Iterable = (),
                  options: Mapping | None = None, command: str = "python", argv: Iterable[str] | None = None,
                  overwrite: bool = False, break_lock: bool = False,
-                 echo: Callable[[str], object] | None = None) -> None:
+                 echo: Callable[[str], object] | None = None, keep: Iterable[str] = (),
+                 revise: bool = False) -> None:
         self.folder = None if folder is None else Path(folder)
+        self.keep = tuple(str(k) for k in keep)
+        self.revise = bool(revise)
         self.command = str(command)
         self.options = _plain(dict(options or {}))
         self.argv = None if argv is None else [str(a) for a in argv]
@@ -442,7 +453,8 @@ class OutputRun:
                 and _input_key(old.get("inputs")) == _input_key(self._input_records))
         what = (f"a complete '{old.get('command')}' run finished {old.get('finished')}" if old
                 else f"an unreadable {MANIFEST_NAME}")
-        if not same and not self.overwrite:
+        revised = self.revise and old.get("command") == self.command
+        if not same and not self.overwrite and not revised:
             raise ParameterError(
                 f"the output folder {self.folder} should hold no other run; got {what}{_differences(old, self)}. "
                 "Choose a new output folder, or pass --overwrite (overwrite=True) to replace that run: its files "
@@ -453,7 +465,8 @@ class OutputRun:
             if isinstance(rel, str) and not os.path.isabs(rel):
                 self._old_files[_where(path.parent / rel)] = rec
         self._say(f"re-running the same '{self.command}' run in {self.folder}: its files are replaced" if same
-                  else f"replacing {what} in {self.folder} (--overwrite)")
+                  else f"revising the earlier '{self.command}' run in {self.folder}: its files are replaced"
+                  if revised else f"replacing {what} in {self.folder} (--overwrite)")
         self._set_aside(path)
 
     def _set_aside(self, where: Path, *, move: bool = True) -> Path:
@@ -475,10 +488,20 @@ class OutputRun:
         return bak
 
     # ------------------------------------------------------------------ hooks called by atomic_path
+    def _kept(self, where: Path) -> bool:
+        """True inside a ``keep`` subfolder: a store the run reuses, not one of the run's files."""
+        if not self.keep or self.folder is None:
+            return False
+        folder = _real(self.folder)
+        return any(where.is_relative_to(folder / k) for k in self.keep)
+
     def before_write(self, target: Path) -> None:
         """Check and prepare a write onto ``target`` (called by :func:`slipnet._files.atomic_path`)."""
         where = _where(target)
         self._check_output(target)
+        if self._kept(where):
+            where.parent.mkdir(parents=True, exist_ok=True)  # the store outlives the run: not journaled
+            return
         if where in self._touched:
             return
         folder = None if self.folder is None else _real(self.folder)
@@ -501,6 +524,8 @@ class OutputRun:
     def after_write(self, target: Path) -> None:
         """Record that ``target`` is complete (called by :func:`slipnet._files.atomic_path`)."""
         where = _where(target)
+        if self._kept(where):
+            return
         self.files.pop(where, None)
         self.files[where] = Path(target)
 

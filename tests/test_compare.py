@@ -513,26 +513,21 @@ def test_cli_compare(tmp_path, capsys):
     assert "no such file" in capsys.readouterr().err
 
 
-def test_demo_step_on_hand_built_context(tmp_path):
-    from slipnet.demo import _step_compare
+def test_synthetic_measurements_of_a_hand_built_scenario_are_scored_and_marked(tmp_path):
+    from slipnet.compare import compare_forecast, demo_measurement, fit_transform
+    from slipnet.reports.compare import write_comparison
 
     gg, forecast, _ = _scenario()
-    ctx = {"out": tmp_path, "seed": 1, "quick": True, "omap": gg.omap, "grain_graph": gg, "forecast": forecast,
-           "log": []}
-    _step_compare(ctx)
-    folder = tmp_path / "compare"
-    text = (folder / "summary.md").read_text()
+    meas = demo_measurement(gg, forecast, load_axis=(1.0, 0.0, 0.0), seed=1)
+    sm = meas.strain
+    comp = compare_forecast(sm.series, forecast=forecast, gg=gg, transform=fit_transform(sm.strain_points,
+                            sm.map_points, "affine"), window=5, measured_path=meas.measured_path,
+                            growth_record=meas.growth_record)
+    comp.settings["synthetic"] = True
+    write_comparison(comp, tmp_path / "compare")
+    text = (tmp_path / "compare" / "summary.md").read_text()
     assert "SYNTHETIC" in text and CAUTION in text
-    assert (folder / "measured_strain_synthetic.npz").exists()
-    assert "sites_f1" in ctx["comparison"].scores
-
-
-def test_demo_step_skips_without_forecast(tmp_path):
-    from slipnet.demo import _step_compare
-
-    ctx = {"out": tmp_path, "seed": 1, "quick": True, "log": []}
-    _step_compare(ctx)
-    assert "skipped" in ctx["notes"][0] and not (tmp_path / "compare").exists()
+    assert "sites_f1" in comp.scores
 
 
 def test_documented_text_example_parses(tmp_path):

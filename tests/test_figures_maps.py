@@ -1,4 +1,4 @@
-"""Tests of IPF colouring, the IPF map figure and the demo steps that write the specimen."""
+"""Tests of IPF colouring and the IPF map figure."""
 
 from __future__ import annotations
 
@@ -6,8 +6,6 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-from slipnet import demo
-from slipnet.cautions import CAUTION
 from slipnet.crystal import CUBIC_OPERATORS, quat_multiply, random_quats
 from slipnet.errors import ParameterError
 from slipnet.figures._common import save_figure
@@ -124,22 +122,6 @@ def test_plot_hex_map_places_shifted_rows_and_draws_polylines(tmp_path):
     save_figure(ax.figure, tmp_path / "hex.png")
     with pytest.raises(ParameterError, match="labels"):
         plot_ipf_map(om, labels=np.zeros((2, 2), int))
-
-
-def test_demo_writes_specimen_files_picture_and_caution(tmp_path, monkeypatch):
-    from slipnet.io import read_map
-
-    mine = [s for s in demo.STEPS if s[0] in ("specimen", "files")]
-    assert [s[0] for s in mine] == ["specimen", "files"]
-    monkeypatch.setattr(demo, "STEPS", mine)
-    ctx = demo.run_demo(tmp_path, quick=True)
-    for name in ("specimen.txt", "specimen.npz", "ipf_map.png", "summary.md"):
-        assert (tmp_path / name).stat().st_size > 0
-    summary = (tmp_path / "summary.md").read_text(encoding="utf-8")
-    assert CAUTION in summary and ctx["specimen"].name in summary
-    back = read_map(tmp_path / "specimen.npz")
-    assert np.array_equal(back.indexed, ctx["omap"].indexed)
-    assert np.allclose(back.quats[back.indexed], ctx["omap"].quats[back.indexed])
 
 
 @pytest.mark.parametrize("grid", ["square", "hex"])

@@ -527,15 +527,14 @@ def test_forecast_refuses_a_crafted_pickle_as_graph(tmp_path, capsys):
     assert code == 2 and "code ran" not in captured.out and "pickled" in captured.err
 
 
-def test_demo_step_stores_a_forecast(tmp_path):
-    from slipnet.demo import _step_forecast
+def test_forecast_writer_from_a_notch_root(tmp_path):
+    from slipnet.reports.forecast import write_forecast
     from slipnet.synthetic import make_specimen
 
     spec = make_specimen((80, 100), 2.0, grain_size_um=30.0, notch={"depth_um": 20.0, "root_radius_um": 4.0}, seed=2)
     gg = build_grain_graph(spec.omap)
-    ctx = {"out": tmp_path, "seed": 1, "quick": True, "specimen": spec, "grain_graph": gg, "omap": spec.omap}
-    _step_forecast(ctx)
-    fc = ctx["forecast"]
+    fc = forecast_crack(gg, spec.notch_root, spec.notch_direction, spec.load_axis, 120.0, samples=8, seed=1)
+    write_forecast(fc, tmp_path / "forecast", gg)
     assert fc.length_um > 0 and fc.samples is not None and len(fc.samples) == 8
     assert (tmp_path / "forecast" / "summary.md").exists()
 

@@ -437,12 +437,11 @@ def test_path_from_forecast_uses_crossings_and_the_existing_crack_length():
         path_from_forecast(object())
 
 
-def test_demo_step_writes_growth_outputs(tmp_path):
-    from slipnet.demo import _step_growth
+def test_growth_writer_writes_tables_pictures_and_caution(tmp_path):
+    from slipnet.reports.growth import write_growth
 
-    ctx = {"out": tmp_path, "seed": 2, "quick": True, "forecast": _fake_forecast()}
-    _step_growth(ctx)
-    res = ctx["growth"]
+    res = simulate_growth(_fake_forecast(), 220.0, n_points=800, seed=2)
+    write_growth(res, tmp_path / "growth")
     assert res.stress_amplitude == 220.0
     for name in ("growth_profile.csv", "growth_barriers.csv", "growth_dips.csv", "growth_rate.png",
                  "growth_map.png", "growth_cycles.png", "summary.md"):
@@ -452,9 +451,6 @@ def test_demo_step_writes_growth_outputs(tmp_path):
     assert CAUTION in (tmp_path / "growth" / "summary.md").read_text(encoding="utf-8")
     prof = pd.read_csv(tmp_path / "growth" / "growth_profile.csv")
     assert {"crack_length_um", "cycles", "dadn_um_per_cycle"} <= set(prof.columns)
-    ctx2 = {"out": tmp_path / "none", "seed": 2, "quick": True}
-    _step_growth(ctx2)
-    assert "growth" not in ctx2 and "skipped" in ctx2["notes"][0]
 
 
 def test_cli_growth_from_a_barrier_table_and_a_record(tmp_path, capsys):

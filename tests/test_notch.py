@@ -167,7 +167,7 @@ def test_same_seed_same_table_on_a_local_distributed_cluster(bands):
     kw = dict(spacing_um=30.0, depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,),
               samples=2, seed=3)
     a = plan_notch(gg, "top", (1, 0, 0), scheduler="threads", workers=2, **kw)
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=":0") as cluster:
         b = plan_notch(gg, "top", (1, 0, 0), scheduler=cluster.scheduler_address, **kw)
     pd.testing.assert_frame_equal(a.table, b.table)
 

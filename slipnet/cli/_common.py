@@ -89,7 +89,7 @@ def out_folder(args) -> str:
 _NOT_OPTIONS = frozenset({"func", "argv", "command"})
 
 
-def output_run(args, *inputs, outputs=(), folder: str | bool | None = True):
+def output_run(args, *inputs, outputs=(), folder: str | bool | None = True, keep=(), revise: bool = False):
     """The :class:`slipnet.runs.OutputRun` of a command: its inputs, outputs and options from ``args``.
 
     Parameters
@@ -103,6 +103,8 @@ def output_run(args, *inputs, outputs=(), folder: str | bool | None = True):
     folder
         The output folder; True (default) for :func:`out_folder`, None for a command that writes
         only ``outputs`` (``slipnet map``).
+    keep, revise
+        As :class:`slipnet.runs.OutputRun` (the study keeps its step cache and revises its own run).
     """
     from slipnet.runs import OutputRun
 
@@ -112,7 +114,7 @@ def output_run(args, *inputs, outputs=(), folder: str | bool | None = True):
                      outputs=[*outputs, getattr(args, "save_graph", None)], options=options,
                      command=str(getattr(args, "command", "python")), argv=getattr(args, "argv", None),
                      overwrite=bool(getattr(args, "overwrite", False)),
-                     break_lock=bool(getattr(args, "break_lock", False)), echo=print)
+                     break_lock=bool(getattr(args, "break_lock", False)), echo=print, keep=keep, revise=revise)
 
 
 def read_map_from_args(args, path: str):
