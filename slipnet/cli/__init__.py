@@ -14,7 +14,7 @@ from collections.abc import Sequence
 
 from slipnet import __version__
 from slipnet.cautions import CAUTION
-from slipnet.cli import compare, demo, forecast, grains, growth, notch, slip, stress
+from slipnet.cli import compare, demo, forecast, grains, growth, notch, slip, stress, validate
 from slipnet.cli import map as map_command
 from slipnet.cli._common import parents
 from slipnet.errors import SlipnetError
@@ -22,7 +22,7 @@ from slipnet.errors import SlipnetError
 __all__ = ["SUBCOMMANDS", "build_parser", "main"]
 
 #: Subcommand modules in the order of the pipeline.
-SUBCOMMANDS = (demo, map_command, grains, slip, stress, forecast, growth, notch, compare)
+SUBCOMMANDS = (demo, map_command, grains, slip, stress, forecast, growth, notch, compare, validate)
 
 
 def build_parser() -> argparse.ArgumentParser:
