@@ -72,7 +72,7 @@ def _distributed(fn, items, args, address: str, nw: int, progress: bool, desc: s
     cluster = None
     try:
         if address == "local":
-            cluster = LocalCluster(n_workers=nw, threads_per_worker=1, processes=True, dashboard_address=None)
+            cluster = LocalCluster(n_workers=nw, threads_per_worker=1, processes=True, dashboard_address=":0")
             client = Client(cluster, set_as_default=False)
             client.run(_single_threaded_worker)
         else:
