@@ -99,7 +99,8 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         t = tip + dt
         pw = _jitter(opts.pw, noise.weights, rng)
         bws = _jitter(bw, noise.weights, rng)
-        rep = int(rng.integers(n_rep)) if n_rep else None
+        draw = int(rng.integers(max(n_rep, 1)))  # always drawn, so switching it off shifts no other draw
+        rep = draw if n_rep and noise.fitted_weights else None
         reset = geo.label_at(t[0], t[1]) < 0
         if reset:
             t = tip.copy()

@@ -83,13 +83,17 @@ class MonteCarloNoise:
     tip_um
         Gaussian jitter of each tip coordinate, µm.
     weights
-        Log-normal relative jitter of every score weight.
+        Log-normal relative jitter of every path-choice and resistance weight.
+    fitted_weights
+        Draw one bootstrap replicate of the fitted weights per sample (the fit's own uncertainty);
+        False keeps the fitted weights.
     """
 
     orientation_deg: float = 1.5
     load_deg: float = 2.0
     tip_um: float = 1.0
     weights: float = 0.2
+    fitted_weights: bool = True
 
 
 @dataclass(frozen=True, eq=False)

@@ -288,10 +288,11 @@ def simulate_growth(
     table["arrest"] = ~np.isfinite(x) & (np.arange(x.size) == (np.argmax(~np.isfinite(x)) if x.size else 0))
     table["dip_length_um"] = np.nan
     table["dip_depth_ratio"] = np.nan
-    if len(dips):
-        idx = dips["barrier"].to_numpy()
-        table.loc[idx, "dip_length_um"] = dips["crack_length_um"].to_numpy()
-        table.loc[idx, "dip_depth_ratio"] = dips["depth_ratio"].to_numpy()
+    bdips = dips[dips["kind"] == "boundary"] if len(dips) else dips
+    if len(bdips):
+        idx = bdips["barrier"].to_numpy()
+        table.loc[idx, "dip_length_um"] = bdips["crack_length_um"].to_numpy()
+        table.loc[idx, "dip_depth_ratio"] = bdips["depth_ratio"].to_numpy()
     arrest = np.flatnonzero(~np.isfinite(x))
     arrest_len = float(d[arrest[0]]) if arrest.size and d[arrest[0]] <= a1 else math.inf
 
