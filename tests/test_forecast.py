@@ -629,3 +629,63 @@ def test_one_perturbation_stream_for_forecast_and_notch():
     np.testing.assert_array_equal(c[0], a[0])
     np.testing.assert_array_equal(c[2], a[2])
     assert c[1].tolist() == [0.0, 1.0, 0.0]
+
+
+# ------------------------------------------------------------------------- the rebuilt predictor
+@pytest.fixture(scope="module")
+def notched():
+    from slipnet.maps import NotchShape
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((40, 40), 3.0, grain_size_um=20.0, notch=NotchShape(24.0, 7.0), notch_side="left",
+                         load_axis=(0.0, 1.0, 0.0), seed=2)
+    root = np.asarray(spec.notch_root)
+    crack = np.stack([root, root + 9.0 * np.asarray(spec.notch_direction)])
+    return build_grain_graph(spec.omap), crack
+
+
+def test_elastic_mode_cuts_the_crack_in_and_peaks_ahead_of_its_tip(notched):
+    gg, crack = notched
+    fc = forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 60.0, stress_amplitude=150.0)
+    st = fc.settings
+    assert st["mode"] == "elastic" and st["crack_cut_in"] and st["free_edges"] == ["left"]
+    assert "slit" in st["stress_assumptions"] and "not a validation" not in st["mode_note"]
+    f = fc.field
+    assert 0.0 <= f.min() and f.max() <= 1.0
+    top = fc.sites.iloc[0]
+    # the strongest site lies near the crack tip, within a couple of grains (the notch-tip field)
+    assert math.hypot(top["x_um"] - crack[-1, 0], top["y_um"] - crack[-1, 1]) < 40.0
+    assert fc.barriers["barrier_score"].between(0, 1).all()
+    assert fc.barriers["barrier_score"].is_monotonic_decreasing
+    # the same solve given back as stress_field gives the same forecast
+    from slipnet.forecast import crack_aware_stress
+
+    solved = crack_aware_stress(gg.omap, (0.0, 1.0, 0.0), 150.0, crack=crack)
+    again = forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 60.0, stress_amplitude=150.0, stress_field=solved)
+    assert again.field == pytest.approx(f)
+    with pytest.raises(ParameterError, match="mode='map'"):
+        forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 60.0, mode="map", stress_field=object())
+    with pytest.raises(ParameterError, match="mode"):
+        forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 60.0, mode="plastic")
+
+
+def test_monte_carlo_probabilities_are_seeded_and_bounded_in_the_elastic_mode(notched):
+    gg, crack = notched
+    kw = dict(samples=3, stress_amplitude=150.0)
+    a = forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 60.0, seed=2, **kw)
+    b = forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 60.0, seed=2, **kw)
+    assert a.sites["p_hit"].equals(b.sites["p_hit"]) and a.barriers["p_drop"].equals(b.barriers["p_drop"])
+    for col in ("p_hit", "p_present", "p_top_k"):
+        assert a.sites[col].between(0, 1).all()
+    assert a.barriers["p_drop"].between(0, 1).all()
+
+
+def test_growth_along_a_forecast_lists_boundary_and_zone_dips(notched):
+    from slipnet.growth import simulate_growth
+
+    gg, crack = notched
+    fc = forecast_crack(gg, crack, None, (0.0, 1.0, 0.0), 90.0, stress_amplitude=150.0)
+    g = simulate_growth(fc, 150.0, n_points=300, samples=0)
+    assert set(g.dips["kind"]) == {"boundary", "zone"}  # this path meets both kinds
+    assert g.path.n_zones >= 1  # the field reaches 0.5 somewhere on the path ahead of the crack
+    assert (g.profile["zone_factor"] <= 1.0).all() and (g.profile["zone_factor"] > 0.0).all()

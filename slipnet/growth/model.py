@@ -339,7 +339,8 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
     ``depth_ratio`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
     crack arrests at k). Barriers still blocking at the end of the profile are left out. For each
     localisation zone on the path (``kind`` "zone", its index in ``zone``) the dip is the lowest rate in
-    the zone's window, its ``depth_ratio`` that rate over the rate just past the window.
+    the zone's window where the zone slows it most (its centre), its ``depth_ratio`` that rate over the
+    rate just past the window.
 
     Parameters
     ----------
@@ -389,19 +390,26 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
                          "dadn_peak_um_per_cycle": r[i_peak], "dadn_after_um_per_cycle": after, "depth_ratio": depth,
                          "crossing_length_um": cross, "arrest": arrest, "kind": "boundary", "zone": -1})
     if "zone" in prof.columns:
-        rows += _zone_dips(a, r, prof["zone"].to_numpy(np.int64), state)
+        fac = prof["zone_factor"].to_numpy(float) if "zone_factor" in prof.columns else np.ones(a.size)
+        rows += _zone_dips(a, r, prof["zone"].to_numpy(np.int64), state, fac)
     rows.sort(key=lambda d: d["crack_length_um"])
     return pd.DataFrame(rows, columns=list(GROWTH_DIPS))
 
 
-def _zone_dips(a: np.ndarray, r: np.ndarray, zone: np.ndarray, state: np.ndarray) -> list[dict]:
-    """One dip per localisation zone whose window the profile passes through (a few zones per path)."""
+def _zone_dips(a: np.ndarray, r: np.ndarray, zone: np.ndarray, state: np.ndarray, factor: np.ndarray
+               ) -> list[dict]:
+    """One dip per localisation zone whose window the profile passes through (a few zones per path).
+
+    The dip sits where the zone slows the crack most (the smallest zone factor, the zone's centre):
+    the unretarded rate itself grows with the crack length, so the lowest rate in the window can lie
+    at its start.
+    """
     rows = []
     for z in np.unique(zone[zone >= 0]):
         idx = np.flatnonzero((zone == z) & (state != ARRESTED))
         if idx.size < 3 or idx[-1] + 1 >= a.size:
             continue  # the window is cut by the profile's end or an arrest: no recovery seen
-        i_min = int(idx[np.argmin(r[idx])])
+        i_min = int(idx[np.argmin(factor[idx])])
         before = idx[idx <= i_min]
         i_peak = int(before[np.argmax(r[before])])
         after = float(r[idx[-1] + 1])
