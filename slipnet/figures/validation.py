@@ -30,7 +30,8 @@ def plot_validation_scores(summary: pd.DataFrame, *, title: str = "Held-out scor
         ax.set_yticks(range(len(preds)))
         ax.set_yticklabels(preds if ax is axes[0] else [""] * len(preds), fontsize=8)
         ax.invert_yaxis()
-        ax.set_xlim(min(0.0, np.nanmin(mean) - 0.1) if np.isfinite(np.nanmin(mean)) else 0.0, 1.0)
+        finite = np.asarray(mean, float)[np.isfinite(mean)]
+        ax.set_xlim(min(0.0, float(finite.min()) - 0.1) if finite.size else 0.0, 1.0)
         ax.set_title(label, fontsize=9)
         if m.startswith("auc"):
             ax.axvline(0.5, color="0.6", lw=0.8, ls=":")

@@ -52,9 +52,10 @@ def peak_sites(geo, cry, planes, inputs: FieldInputs, field: np.ndarray, weights
     x, y = _coords(geo)
     region = inputs.solid & (np.hypot(x - tip[0], y - tip[1]) <= horizon)
     cols = list(FORECAST_SITES)
-    if not region.any():
-        return pd.DataFrame({c: pd.Series(dtype=float) for c in cols})
-    pk = field_peaks(field, region, _GridShim(x, y), k, weights.site_separation_um)
+    pk = field_peaks(field, region, _GridShim(x, y), k, weights.site_separation_um) if region.any() and k > 0 \
+        else np.zeros((0, 2))
+    if len(pk) == 0:
+        return pd.DataFrame({c: pd.Series(dtype=object if c == "plane" else float) for c in cols})
     rows = []
     for sx, sy in pk:  # per site: ten at most
         i = round((sy - omap_y0) / geo.rs)

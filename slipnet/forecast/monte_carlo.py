@@ -7,10 +7,11 @@ grain), a misalignment of the load axis, a jitter of the tip, a log-normal jitte
 resistance weights, and one bootstrap replicate of the fitted weights (the fit's own uncertainty:
 the weights refitted on the training specimens resampled with replacement).
 
-Per sample the point features are recomputed (with a new elastic solve in the elastic and cyclic
-modes when the forecast made its own; a given ``stress_field`` or ``cyclic_field`` is kept, and load
-misalignment is then not sampled), the field follows from the replicate's weights, and the nominal
-sites and barriers are scored again. The reported probabilities are the sample means:
+Per sample the point features are recomputed on the perturbed orientations and tip: the nominal
+elastic solve is kept and its stress resolved on the rotated crystals (``MonteCarloNoise.resolve_stress``
+solves again per sample instead), a given ``cyclic_field`` is kept; the load misalignment then moves
+the path passes only. The field follows from the replicate's weights, and the nominal sites and
+barriers are scored again. The reported probabilities are the sample means:
 
 * sites: ``p_hit`` (mean site probability at the nominal site), ``p_present`` (share of samples with a
   field peak within the hit radius of it) and ``p_top_k`` (… among the sample's top k);
@@ -49,21 +50,26 @@ def _pair(a, b) -> tuple[int, int]:
     return (min(int(a), int(b)), max(int(a), int(b)))
 
 
-def _rotated_graph(gg, q_new: np.ndarray):
-    """The grain graph with every point of grain g rotated by q_new[g] · q_mean[g]⁻¹."""
+def _rotated_quats(omap, gg, q_new: np.ndarray) -> np.ndarray:
+    """The point quaternions of ``omap`` with every point of grain g rotated by q_new[g] · q_mean[g]⁻¹."""
     q_old = np.asarray(gg.mean_quats, float)
     ok = np.all(np.isfinite(q_old), axis=1) & np.all(np.isfinite(q_new), axis=1)
     dq = np.tile([1.0, 0.0, 0.0, 0.0], (q_old.shape[0], 1))
     if ok.any():
         dq[ok] = quat_multiply(q_new[ok], quat_conjugate(q_old[ok]))
-    omap = gg.omap
     labels = np.asarray(gg.labels)
     q = np.array(omap.quats, float)
     sel = (labels >= 0) & np.asarray(omap.indexed) & np.all(np.isfinite(q), axis=-1)
     if sel.any():
         r = quat_multiply(dq[labels[sel]], q[sel])
         q[sel] = np.where(r[:, :1] < 0, -r, r)
-    return replace(gg, omap=replace(omap, quats=q), mean_quats=np.asarray(q_new, float))
+    return q
+
+
+def _rotated_graph(gg, q_new: np.ndarray):
+    """The grain graph with every point of grain g rotated by q_new[g] · q_mean[g]⁻¹."""
+    return replace(gg, omap=replace(gg.omap, quats=_rotated_quats(gg.omap, gg, q_new)),
+                   mean_quats=np.asarray(q_new, float))
 
 
 def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int, seed: int, noise, top_k: int,
@@ -120,9 +126,15 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             if crack is not None:
                 crack_s = np.asarray(crack, float).copy()
                 crack_s[-1] = t
+            keep = stress_given or not noise.resolve_stress
+            field_s = None
+            if keep and inputs.stress_field is not None:
+                field_s = replace(inputs.stress_field, omap=replace(inputs.stress_field.omap,
+                                                                    quats=_rotated_quats(inputs.stress_field.omap,
+                                                                                         gg, q)))
             inp = localisation_features(
-                g_s, t, opts.d_ref, ld, mode=mode, stress_amplitude=amplitude, crack=crack_s,
-                stress_field=inputs.stress_field if stress_given else None,
+                g_s, t, opts.d_ref, ld if not keep else load, mode=mode, stress_amplitude=amplitude, crack=crack_s,
+                stress_field=field_s,
                 cyclic_field=inputs.cyclic_field if mode == "cyclic" else cyclic_field,
                 systems=systems, free_edges=free_edges, stress_ratio=ratio)
             fld = predict_field(inp, weights, rep)
