@@ -604,13 +604,25 @@ def boundary_drops(values: np.ndarray, labels: np.ndarray, solid: np.ndarray, om
     vals = np.asarray(values, float)
     out = np.full(len(np.atleast_1d(x_um)), np.nan)
     r2 = float(radius_um) ** 2
+    ny, nx = lab.shape
+    y0, x0 = float(y[0, 0]), float(x[0, 0])
+    rs = float(y[1, 0] - y[0, 0]) if ny > 1 else 1.0
+    st = float(x[0, 1] - x[0, 0]) if nx > 1 else 1.0
     for i, (cx, cy, a, b) in enumerate(zip(np.atleast_1d(x_um), np.atleast_1d(y_um), np.atleast_1d(grain_a),
                                            np.atleast_1d(grain_b), strict=True)):  # per crossing: a handful
-        near = solid & ((x - cx) ** 2 + (y - cy) ** 2 <= r2)
-        ma, mb = near & (lab == int(a)), near & (lab == int(b))
+        # a window of rows and columns around the crossing (one spare point for hex row shifts)
+        r0 = max(0, int(np.floor((cy - radius_um - y0) / rs)) - 1)
+        r1 = min(ny, int(np.ceil((cy + radius_um - y0) / rs)) + 2)
+        c0 = max(0, int(np.floor((cx - radius_um - x0) / st)) - 1)
+        c1 = min(nx, int(np.ceil((cx + radius_um - x0) / st)) + 2)
+        w = (slice(r0, r1), slice(c0, c1))
+        near = solid[w] & ((x[w] - cx) ** 2 + (y[w] - cy) ** 2 <= r2)
+        lw = lab[w]
+        ma, mb = near & (lw == int(a)), near & (lw == int(b))
+        vw = vals[w]
         if ma.sum() < min_points or mb.sum() < min_points:
             continue
-        va, vb = float(vals[ma].mean()), float(vals[mb].mean())
+        va, vb = float(vw[ma].mean()), float(vw[mb].mean())
         if abs(va) + abs(vb) > 0:
             out[i] = (va - vb) / (abs(va) + abs(vb))
     return out
