@@ -207,3 +207,13 @@ def test_shipped_standing_and_weights_are_readable_and_held_out():
     assert "not a validation against experiments" in st["statement"]
     for t in st["targets"]:
         assert t["met"] == (t["value"] >= t["threshold"])
+
+
+def test_validate_command_refuses_bad_options_and_training_seeds(capsys):
+    from slipnet.cli import main
+
+    assert main(["validate", "--samples", "-1"]) == 2
+    assert "--samples" in capsys.readouterr().err
+    # scoring a seed the shipped weights were fitted on is refused before any solve
+    assert main(["validate", "--seeds", str(TRAINING_SEEDS[0]), "--scheduler", "synchronous"]) == 2
+    assert "held-out" in capsys.readouterr().err

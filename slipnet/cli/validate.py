@@ -42,14 +42,14 @@ def run(args) -> int:
     from slipnet.reports.validation import write_validation
     from slipnet.validation import HELD_OUT_SEEDS, fit_weights, run_validation, write_standing, write_weights
 
+    if args.samples < 0:
+        raise ParameterError(f"--samples should be >= 0; got {args.samples}")
     weights = args.weights
     if args.refit:
         w = fit_weights(scheduler=args.scheduler, workers=args.workers, cache_dir=args.cache, progress=args.progress)
         path = write_weights(w, args.weights_out)
         print(f"validate: weights fitted on training seeds {w.provenance['training_seeds']} written to {path}")
         weights = str(path)
-    if args.samples < 0:
-        raise ParameterError(f"--samples should be >= 0; got {args.samples}")
     seeds = args.seeds or list(HELD_OUT_SEEDS)
     res = run_validation(seeds, modes=tuple(args.modes), samples=args.samples, mc_seed=args.mc_seed,
                          scheduler=args.scheduler, workers=args.workers, cache_dir=args.cache, weights=weights,
