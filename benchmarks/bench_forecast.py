@@ -2,7 +2,7 @@
 
 Shaped like an asv benchmark (setup, parameters, a fixed seed), runnable as a plain script::
 
-    python benchmarks/bench_forecast.py [--size 1000] [--samples 500] [--horizon 400]
+    python benchmarks/bench_forecast.py [--size 1000] [--samples 500] [--horizon 400] [--mode map]
 
 Setup: a synthetic ferritic map of ``size × size`` points at 1 µm (grains ~25 µm, seed 0) and its
 grain graph (``build_grain_graph``, timed: the first reference). Then, in the same run:
@@ -15,6 +15,8 @@ grain graph (``build_grain_graph``, timed: the first reference). Then, in the sa
 * the same forecast with ``--samples`` Monte Carlo samples (orientation 1.5°, load 2°, tip 1 µm,
   weights 20 %), once, with the time per sample.
 
+``--mode`` picks the forecast mode (default ``map``, the quick-sweep mode without a stress solve; ``elastic``
+adds one elastic solve of the whole map per forecast, and the Monte Carlo resolves it per sample).
 It checks that each case does real work (a path of several grains, barriers ranked, every sample
 used). The machine has 2 cores shared with other jobs, so the times are noisy.
 """
@@ -47,6 +49,7 @@ def main(argv=None) -> None:
     ap.add_argument("--size", type=int, default=1000, help="map side in points (default 1000)")
     ap.add_argument("--samples", type=int, default=500, help="Monte Carlo samples (default 500)")
     ap.add_argument("--horizon", type=float, default=400.0, help="path length, µm (default 400)")
+    ap.add_argument("--mode", default="map", choices=["map", "elastic", "cyclic"], help="forecast mode (default map)")
     args = ap.parse_args(argv)
 
     t0 = time.perf_counter()
@@ -60,14 +63,15 @@ def main(argv=None) -> None:
 
     tip, direction, load = (3.0, 0.5 * args.size), (1.0, 0.0), (0.0, 1.0, 0.0)
     systems = slip_systems("bcc")
-    forecast_crack(gg, tip, direction, load, 20.0, systems=systems)  # compile the kernels
+    forecast_crack(gg, tip, direction, load, 20.0, systems=systems, mode=args.mode)  # compile the kernels
     t_schmid, _ = best_time(lambda: effective_schmid(schmid_factors(gg.mean_quats, load, systems), systems))
     def cold():
         _GEOMETRY_CACHE.clear()  # include the per-graph set-up (labels, centroids, boundary look-up)
-        return forecast_crack(gg, tip, direction, load, args.horizon, systems=systems)
+        return forecast_crack(gg, tip, direction, load, args.horizon, systems=systems, mode=args.mode)
 
     t_cold, fc = best_time(cold)
-    t_single, fc = best_time(lambda: forecast_crack(gg, tip, direction, load, args.horizon, systems=systems))
+    t_single, fc = best_time(lambda: forecast_crack(gg, tip, direction, load, args.horizon, systems=systems,
+                                                     mode=args.mode))
     assert fc.path["grain"].nunique() >= 3 and len(fc.barriers) >= 2, "the forecast did too little work"
     print(f"single forecast: {t_cold * 1e3:.1f} ms first on a graph, {t_single * 1e3:.1f} ms repeated "
           f"({fc.length_um:.0f} µm through {fc.path['grain'].nunique()} grains, {len(fc.barriers)} barriers, "
@@ -78,7 +82,8 @@ def main(argv=None) -> None:
           f"  (Schmid re-computation {t_schmid * 1e3:.2f} ms)")
 
     t0 = time.perf_counter()
-    mc = forecast_crack(gg, tip, direction, load, args.horizon, systems=systems, samples=args.samples, seed=0)
+    mc = forecast_crack(gg, tip, direction, load, args.horizon, systems=systems, samples=args.samples, seed=0,
+                        mode=args.mode)
     t_mc = time.perf_counter() - t0
     assert mc.samples is not None and len(mc.samples) == args.samples
     print(f"Monte Carlo, {args.samples} samples: {t_mc:.1f} s ({t_mc / args.samples * 1e3:.1f} ms per sample)")

@@ -14,6 +14,7 @@ from __future__ import annotations
 __all__ = [
     "FORECAST_ALTERNATIVES",
     "FORECAST_BARRIERS",
+    "FORECAST_BARRIER_FIT",
     "FORECAST_CROSSINGS",
     "FORECAST_PATH",
     "FORECAST_SAMPLES",
@@ -45,18 +46,30 @@ FORECAST_CROSSINGS: tuple[str, ...] = (
     "trace_angle_deg", "branch",
 )
 
-#: Ranked arrest barriers; ``barrier_score`` is the relevance-weighted resistance in [0, 1].
+#: Ranked arrest barriers. ``barrier_score`` ranks them: the fitted probability that slip drops across the
+#: boundary (``drop_probability``, the forecast's default) or the hand-set ``resistance_score`` (the
+#: relevance-weighted resistance in [0, 1] of ``rank_barriers``, which alone fills ``barrier_score``).
 FORECAST_BARRIERS: tuple[str, ...] = (
     "rank", "boundary_id", "grain_a", "grain_b", "barrier_score", "twist_deg", "tilt_deg", "m_prime",
     "distance_um", "on_path", "term_twist", "term_transmission", "term_class", "term_schmid_drop", "relevance",
     "weight_twist", "weight_transmission", "weight_class", "weight_schmid_drop", "boundary_class",
     "misorientation_deg", "schmid_in", "schmid_out", "x_um", "y_um", "branches",
 )
+#: Columns the forecast adds after :data:`FORECAST_BARRIERS` (``rank_barriers`` alone does not): the hand-set
+#: score, the fitted probability and the features of the fitted barrier model (``fit_*``, see
+#: :data:`slipnet.forecast.predictor.BARRIER_FEATURES`).
+FORECAST_BARRIER_FIT: tuple[str, ...] = (
+    "resistance_score", "drop_probability", "fit_field_drop", "fit_tau_drop", "fit_untransmitted", "fit_twist",
+    "fit_schmid_drop", "fit_boundary_class", "fit_residual_burgers", "fit_log_distance",
+)
 
-#: Ranked localisation sites; ``site_score_mpa_um`` = resolved shear × band length × (1 − transmission).
+#: Ranked localisation sites: peaks of the localisation field, ranked by ``site_probability`` (the fitted
+#: probability that a hot point lies within the hit radius); ``field_value`` is the field at the site;
+#: ``site_score_mpa_um`` = effective resolved shear × band length × (1 − transmission) describes the
+#: pile-up of the site's band on the boundary it runs into.
 FORECAST_SITES: tuple[str, ...] = (
     "rank", "x_um", "y_um", "site_score_mpa_um", "grain", "blocking_grain", "boundary_id", "system", "plane",
-    "resolved_shear_mpa", "band_length_um", "transmission_score",
+    "resolved_shear_mpa", "band_length_um", "transmission_score", "field_value", "site_probability",
 )
 
 #: One row per Monte Carlo sample of a forecast.
@@ -68,7 +81,7 @@ FORECAST_SAMPLES: tuple[str, ...] = (
 #: Growth-rate profile along the path.
 GROWTH_PROFILE: tuple[str, ...] = (
     "crack_length_um", "cycles", "dadn_um_per_cycle", "ctsd_um", "zone_end_um", "n_ratio", "zone_state", "barrier",
-    "grain", "arrested",
+    "grain", "arrested", "zone_factor", "zone",
 )
 #: One row per barrier on the growth path.
 GROWTH_BARRIERS: tuple[str, ...] = (
@@ -76,10 +89,12 @@ GROWTH_BARRIERS: tuple[str, ...] = (
     "grain_factor_after", "m_prime", "twist_deg", "critical_stress_mpa", "threshold_amplitude_mpa",
     "pass_amplitude_mpa", "crossing_length_um", "arrest", "dip_length_um", "dip_depth_ratio",
 )
-#: Predicted growth-rate dips; ``depth_ratio`` = minimum rate / rate just after crossing.
+#: Predicted growth-rate dips; ``depth_ratio`` = minimum rate / rate just after crossing; ``kind`` says what
+#: slowed the crack: "boundary" (the plastic zone blocked at grain boundary ``barrier``) or "zone" (a strain
+#: localisation zone on the path, index ``zone``).
 GROWTH_DIPS: tuple[str, ...] = (
     "barrier", "crack_length_um", "dadn_min_um_per_cycle", "dadn_peak_um_per_cycle", "dadn_after_um_per_cycle",
-    "depth_ratio", "crossing_length_um", "arrest",
+    "depth_ratio", "crossing_length_um", "arrest", "kind", "zone",
 )
 #: Monte Carlo bands of the growth profile.
 GROWTH_BANDS: tuple[str, ...] = (

@@ -41,10 +41,14 @@ def test_forecast_tables_follow_the_schemas(run):
     assert tuple(fc.path.columns) == columns.FORECAST_PATH
     assert tuple(fc.alternatives.columns) == columns.FORECAST_ALTERNATIVES
     assert tuple(fc.crossings.columns) == columns.FORECAST_CROSSINGS
-    # Monte Carlo adds its probabilities after the schema columns
-    assert tuple(fc.barriers.columns[:len(columns.FORECAST_BARRIERS)]) == columns.FORECAST_BARRIERS
-    assert set(fc.barriers.columns[len(columns.FORECAST_BARRIERS):]) == {"p_on_path", "p_top_k"}
+    # the fitted barrier columns follow the schema, then the Monte Carlo probabilities
+    n_b = len(columns.FORECAST_BARRIERS)
+    n_f = len(columns.FORECAST_BARRIER_FIT)
+    assert tuple(fc.barriers.columns[:n_b]) == columns.FORECAST_BARRIERS
+    assert tuple(fc.barriers.columns[n_b:n_b + n_f]) == columns.FORECAST_BARRIER_FIT
+    assert set(fc.barriers.columns[n_b + n_f:]) == {"p_on_path", "p_top_k", "p_drop"}
     assert tuple(fc.sites.columns[:len(columns.FORECAST_SITES)]) == columns.FORECAST_SITES
+    assert set(fc.sites.columns[len(columns.FORECAST_SITES):]) == {"p_present", "p_top_k", "p_hit"}
     assert tuple(fc.samples.columns) == columns.FORECAST_SAMPLES
 
 

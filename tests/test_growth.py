@@ -578,3 +578,46 @@ def test_local_stress_field_factors_replace_the_forecast_schmid(monkeypatch):
     np.testing.assert_allclose(path.grain_factors, [0.25, 0.40])
     with pytest.raises(ParameterError, match="gg should be given"):
         path_from_forecast(fc, stress_field=object())
+
+
+# ------------------------------------------------------------------------- localisation zones
+def test_a_localisation_zone_slows_the_crack_before_its_centre_and_lets_it_recover_after():
+    from slipnet.growth import GrowthParameters, GrowthPath, localisation_factor, simulate_growth
+
+    base = GrowthPath.from_barriers([], length_um=200.0)
+    zoned = base.with_zones([100.0], [20.0], [0.8])
+    p = GrowthParameters()
+    a = np.array([40.0, 80.0, 100.0, 110.0, 130.0])
+    f, z = localisation_factor(zoned, a, p)
+    # the form written in localisation_factor: F = 1 − R A exp(−½((a − c)/w)²) before the centre,
+    # width ρ w after it (R = 0.5, ρ = 0.5 by default)
+    expect = 1.0 - 0.5 * 0.8 * np.exp(-0.5 * ((a - 100.0) / np.where(a <= 100.0, 20.0, 10.0)) ** 2)
+    assert f == pytest.approx(expect)
+    assert f[2] == pytest.approx(1.0 - 0.5 * 0.8)  # deepest at the centre
+    assert z.tolist() == [-1, 0, 0, 0, -1]
+    # the rate recovers faster past the centre than it fell on the approach
+    assert f[3] > localisation_factor(zoned, [90.0], p)[0][0]
+    plain = simulate_growth(base, 150.0, initial_length=10.0, n_points=400, samples=0)
+    slow = simulate_growth(zoned, 150.0, initial_length=10.0, n_points=400, samples=0)
+    r0 = np.interp(100.0, plain.profile["crack_length_um"], plain.profile["dadn_um_per_cycle"])
+    r1 = np.interp(100.0, slow.profile["crack_length_um"], slow.profile["dadn_um_per_cycle"])
+    assert r1 == pytest.approx(0.6 * r0, rel=1e-3)
+    assert slow.profile["cycles"].iloc[-1] > plain.profile["cycles"].iloc[-1]
+    dips = slow.dips
+    assert list(dips["kind"]) == ["zone"] and dips["zone"].iloc[0] == 0
+    assert dips["crack_length_um"].iloc[0] == pytest.approx(100.0, abs=1.0)
+    assert 0.0 < dips["depth_ratio"].iloc[0] < 1.0
+
+
+def test_zones_come_from_the_forecast_field_along_the_path():
+    from slipnet.growth import zones_along_path
+
+    field = np.zeros((10, 40))
+    field[:, 18:23] = np.array([0.55, 0.7, 0.9, 0.7, 0.55])
+    grid = {"origin_um": [0.0, 0.0], "step_um": 1.0, "row_spacing_um": 1.0, "hex": False}
+    poly = np.array([[0.0, 0.0, 5.0], [39.0, 39.0, 5.0]])
+    pos, wid, strg = zones_along_path(field, grid, poly, 0.5)
+    # sampled every half step, nearest grid point: the centre within half a step of x = 20
+    assert pos == pytest.approx([20.0], abs=0.5) and strg == pytest.approx([0.9]) and wid == pytest.approx([2.0])
+    with pytest.raises(ParameterError, match="zone_threshold"):
+        zones_along_path(field, grid, poly, 1.5)

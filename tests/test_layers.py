@@ -20,7 +20,7 @@ ROOT = Path(__file__).resolve().parents[1] / "slipnet"
 #: "" is the base (errors, cautions, shared checks, file writing, progress, column names).
 LAYERS: tuple[str, ...] = (
     "", "crystal", "maps", "io", "synthetic", "grains", "stress", "slip", "forecast", "growth",
-    "notch", "compare", "figures", "reports", "study", "demo", "cli",
+    "notch", "compare", "validation", "figures", "reports", "study", "demo", "cli",
 )
 #: Private modules of the base layer that every step may use (their public names only).
 SHARED_PRIVATE = {"slipnet._checks", "slipnet._files", "slipnet._progress"}

@@ -153,7 +153,7 @@ def test_cli_local_stress_flags_end_to_end(tmp_path, capsys):
     settings = json.loads((tmp_path / "fc" / "forecast_settings.json").read_text(encoding="utf-8"))
     assert settings["stress_field"] is True and settings["stress_assumptions"] == assumptions
     assert assumptions in (tmp_path / "fc" / "summary.md").read_text(encoding="utf-8")
-    assert main([*fc_args, "--out", str(tmp_path / "fc_uniform")]) == 0
+    assert main([*fc_args, "--out", str(tmp_path / "fc_uniform"), "--mode", "map"]) == 0  # uniform stress: no solve
     a = pd.read_csv(tmp_path / "fc" / "forecast_path.csv")
     b = pd.read_csv(tmp_path / "fc_uniform" / "forecast_path.csv")
     assert not np.allclose(a["effective_schmid"].iloc[0], b["effective_schmid"].iloc[0])

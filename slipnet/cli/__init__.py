@@ -16,7 +16,7 @@ from collections.abc import Iterator, Sequence
 
 from slipnet import __version__
 from slipnet.cautions import CAUTION
-from slipnet.cli import compare, demo, forecast, grains, growth, notch, slip, stress, study
+from slipnet.cli import compare, demo, forecast, grains, growth, notch, slip, stress, study, validate
 from slipnet.cli import map as map_command
 from slipnet.cli._common import parents
 from slipnet.errors import SlipnetError
@@ -24,7 +24,7 @@ from slipnet.errors import SlipnetError
 __all__ = ["SUBCOMMANDS", "build_parser", "main"]
 
 #: Subcommand modules in the order of the pipeline.
-SUBCOMMANDS = (study, demo, map_command, grains, slip, stress, forecast, growth, notch, compare)
+SUBCOMMANDS = (study, demo, map_command, grains, slip, stress, forecast, growth, notch, compare, validate)
 
 
 def build_parser() -> argparse.ArgumentParser:

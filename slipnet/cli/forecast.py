@@ -11,10 +11,12 @@ def add(sub, parents) -> None:
         "forecast", parents=[parents.map, parents.cleanup, parents.load, parents.output, parents.local_stress],
         help="short-crack path ahead of a tip, ranked arrest barriers and strain-localisation sites",
         description="Rebuild grains from IN (an orientation map) or load a saved grain graph (--graph), then "
-        "forecast the stage-I crack path from the tip, rank the boundaries it meets and the sites where "
-        "slip bands pile up; write tables (CSV + JSON), pictures and a summary into --out. With "
-        "--local-stress the solve runs at the --stress amplitude and the saved path table carries the local "
-        "factors for 'slipnet growth'.",
+        "forecast the stage-I crack path from the tip, rank the boundaries it meets by the fitted probability "
+        "that slip drops across them, and map where strain will localise (a fitted probability field and its "
+        "peaks); write tables (CSV + JSON), pictures and a summary into --out. By default an elastic solve with "
+        "the notch and the crack (--crack) cut in feeds the forecast; --mode map skips it (the cheaper, weaker "
+        "mode for quick sweeps) and --cyclic adds a short cyclic crystal-plasticity solve. With --local-stress a "
+        "plain periodic elastic solve at the --stress amplitude is used instead of the crack-aware one.",
     )
     p.add_argument("input", metavar="IN", nargs="?", help="orientation map file (omit when --graph is given)")
     p.add_argument("--tip", nargs=2, type=float, metavar=("X", "Y"), help="crack tip in µm")
@@ -30,6 +32,13 @@ def add(sub, parents) -> None:
     p.add_argument("--stage2-after", type=float, help="switch to stage II past this path length, µm")
     p.add_argument("--zigzag-tol", type=float, default=0.05, help="relative Schmid tolerance for zig-zag (0.05)")
     p.add_argument("--max-branches", type=int, default=4, help="alternative paths to follow (default 4)")
+    p.add_argument("--mode", choices=["elastic", "map", "cyclic"], default="elastic",
+                   help="what the field, sites and barriers come from: elastic (default: an elastic solve with notch "
+                   "and crack cut in), map (no solve: cheaper, weaker), cyclic (adds cyclic crystal plasticity)")
+    p.add_argument("--cyclic", action="store_true", help="the same as --mode cyclic")
+    p.add_argument("--weights", metavar="JSON", help="fitted weights file (default: the shipped one)")
+    p.add_argument("--free-edges", nargs="*", metavar="EDGE",
+                   help="map edges that are free surfaces in the solve (default: edges a notch is cut into)")
     p.add_argument("--boundary-inclination", type=float, default=90.0,
                    help="assumed boundary-plane inclination to the surface, degrees (90 = perpendicular, default)")
     p.set_defaults(func=run)
@@ -49,17 +58,21 @@ def run(args) -> int:
     from slipnet.forecast import forecast_crack
     from slipnet.reports.forecast import write_forecast
 
-    with output_run(args, args.input, args.crack) as run:
+    with output_run(args, args.input, args.crack, args.weights) as run:
         tip = _tip(args)
         gg = grain_graph_from_args(args, args.input)
         fc = forecast_crack(gg, tip, args.direction, args.load_axis, args.horizon, stress_amplitude=args.stress,
                             stress_ratio=args.ratio, samples=args.samples, seed=args.seed, top_k=args.top_k,
                             stage2_after_um=args.stage2_after, zigzag_tol=args.zigzag_tol,
                             max_branches=args.max_branches, boundary_inclination_deg=args.boundary_inclination,
-                            stress_field=solve_local_stress(args, gg.omap, args.stress))
+                            mode="cyclic" if args.cyclic else args.mode, weights=args.weights,
+                            free_edges="auto" if args.free_edges is None else tuple(args.free_edges),
+                            stress_field=None if args.mode == "map" and not args.cyclic else
+                            solve_local_stress(args, gg.omap, args.stress))
         write_forecast(fc, run.folder, gg, figures=not args.no_figures)
     out = run.folder
     print(f"forecast: path {fc.length_um:.1f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} "
           f"grains (stopped: {fc.stop_reason}), {len(fc.barriers)} barriers, {len(fc.sites)} sites; load axis "
-          f"({', '.join(f'{v:.3f}' for v in fc.settings['load_axis'])}); outputs written to {out}")
+          f"({', '.join(f'{v:.3f}' for v in fc.settings['load_axis'])}); {fc.settings['mode_note']}; outputs written "
+          f"to {out}")
     return 0

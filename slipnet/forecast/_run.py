@@ -43,4 +43,4 @@ def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts
     sites["on_path_grain"] = sites["grain"].isin(path["grain"]) if len(sites) else pd.Series(dtype=bool)
     fld = _field(geo, bands, sigma_um) if want_field else None
     return {"path": path, "alternatives": alts, "crossings": crossings, "barriers": barriers, "sites": sites,
-            "field": fld, "stop": main.stop}
+            "field": fld, "stop": main.stop, "crystal": cry}

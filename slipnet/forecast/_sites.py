@@ -1,5 +1,6 @@
-"""Localisation sites where slip bands end on poorly transmitting boundaries, and the field they
-make (private to :mod:`slipnet.forecast`)."""
+"""Band-end sites: where slip bands end on poorly transmitting boundaries, and the field they make
+(private to :mod:`slipnet.forecast`; the Monte Carlo's path passes still list them, the forecast's own
+sites are the peaks of the fitted field, :mod:`slipnet.forecast.localise`)."""
 
 from __future__ import annotations
 
@@ -32,7 +33,7 @@ def _anchor_points(geo: _Geometry, grains: np.ndarray) -> tuple[np.ndarray, np.n
 def _sites(geo: _Geometry, cry: _Crystal, planes: _Planes, grains: np.ndarray, amplitude: float,
            want_bands: bool = False, max_gap: float = 0.0):
     """Slip bands of ``grains`` and the sites where they end on poorly transmitting boundaries."""
-    cols = list(FORECAST_SITES)
+    cols = list(FORECAST_SITES[:12])  # the band sites carry no field value or probability
     grains = np.asarray(grains, dtype=np.int64)
     if grains.size == 0:
         return pd.DataFrame({c: pd.Series(dtype=float) for c in cols}), None

@@ -1,14 +1,26 @@
-"""Monte Carlo uncertainty of a crack forecast: how often each barrier and site comes back.
+"""Monte Carlo uncertainty of a crack forecast: probabilities per site and barrier.
 
-Called by :func:`slipnet.forecast.forecast_crack` when ``samples > 0``. Each sample perturbs the
-grain mean orientations (a rotation of normal-distributed angle about a uniformly random axis),
-the load axis (rotation about a random perpendicular axis), the tip position (Gaussian, µm) and
-every score weight (log-normal), then repeats the deterministic forecast without the field.
-Per nominal barrier it reports the fraction of samples whose main path crosses it (``p_on_path``)
-and in which it ranks within the top k (``p_top_k``); per nominal site (grain, blocking grain)
-the fraction in which it appears (``p_present``) and ranks within the top k (``p_top_k``).
-Samples draw from one ``numpy.random.Generator`` seeded once, in a fixed order, so the same seed
-gives the same numbers.
+Called by :func:`slipnet.forecast.forecast_crack` when ``samples > 0``. Each sample draws, from one
+``numpy.random.Generator`` seeded once and in a fixed order (:func:`slipnet.crystal.perturb_sample`):
+a rotation of every grain's orientation (normal angle, random axis; applied to each point of the
+grain), a misalignment of the load axis, a jitter of the tip, a log-normal jitter of the path and
+resistance weights, and one bootstrap replicate of the fitted weights (the fit's own uncertainty:
+the weights refitted on the training specimens resampled with replacement).
+
+Per sample the point features are recomputed on the perturbed orientations and tip: the nominal
+elastic solve is kept and its stress resolved on the rotated crystals (``MonteCarloNoise.resolve_stress``
+solves again per sample instead), a given ``cyclic_field`` is kept; the load misalignment then moves
+the path passes only. The field follows from the replicate's weights, and the nominal sites and
+barriers are scored again. The reported probabilities are the sample means:
+
+* sites: ``p_hit`` (mean site probability at the nominal site), ``p_present`` (share of samples with a
+  field peak within the hit radius of it) and ``p_top_k`` (… among the sample's top k);
+* barriers: ``p_drop`` (mean probability of a slip drop across it), ``p_on_path`` (share of samples
+  whose main path crosses it) and ``p_top_k`` (share in which it ranks within the top k).
+
+Averaging the calibrated probabilities over the input and weight uncertainty keeps them calibrated
+to the extent the perturbations are realistic; the harness checks it (reliability diagram, Brier
+score: :mod:`slipnet.validation`).
 """
 
 from __future__ import annotations
@@ -18,9 +30,12 @@ from dataclasses import fields, replace
 import numpy as np
 import pandas as pd
 
+from slipnet.crystal.orientation import quat_conjugate, quat_multiply
 from slipnet.crystal.perturb import perturb_sample
 from slipnet.forecast._core import _start_grain
 from slipnet.forecast._run import run_forecast_pass
+from slipnet.forecast.features import field_peaks, localisation_features
+from slipnet.forecast.localise import _coords, _GridShim, barrier_features, predict_field, site_probability
 
 __all__ = ["monte_carlo"]
 
@@ -35,8 +50,32 @@ def _pair(a, b) -> tuple[int, int]:
     return (min(int(a), int(b)), max(int(a), int(b)))
 
 
+def _rotated_quats(omap, gg, q_new: np.ndarray) -> np.ndarray:
+    """The point quaternions of ``omap`` with every point of grain g rotated by q_new[g] · q_mean[g]⁻¹."""
+    q_old = np.asarray(gg.mean_quats, float)
+    ok = np.all(np.isfinite(q_old), axis=1) & np.all(np.isfinite(q_new), axis=1)
+    dq = np.tile([1.0, 0.0, 0.0, 0.0], (q_old.shape[0], 1))
+    if ok.any():
+        dq[ok] = quat_multiply(q_new[ok], quat_conjugate(q_old[ok]))
+    labels = np.asarray(gg.labels)
+    q = np.array(omap.quats, float)
+    sel = (labels >= 0) & np.asarray(omap.indexed) & np.all(np.isfinite(q), axis=-1)
+    if sel.any():
+        r = quat_multiply(dq[labels[sel]], q[sel])
+        q[sel] = np.where(r[:, :1] < 0, -r, r)
+    return q
+
+
+def _rotated_graph(gg, q_new: np.ndarray):
+    """The grain graph with every point of grain g rotated by q_new[g] · q_mean[g]⁻¹."""
+    return replace(gg, omap=replace(gg.omap, quats=_rotated_quats(gg.omap, gg, q_new)),
+                   mean_quats=np.asarray(q_new, float))
+
+
 def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int, seed: int, noise, top_k: int,
-                amplitude: float, decay: float, bw, cf, site_radius: float | None = None):
+                amplitude: float, decay: float, bw, cf, site_radius: float | None = None, gg=None, inputs=None,
+                weights=None, crack=None, systems=None, stress_given: bool = False, cyclic_field=None,
+                free_edges="auto", ratio: float = -1.0, barrier_model: str = "fitted"):
     """Repeat the forecast under perturbed inputs; return ``fc`` with probabilities and ``samples``.
 
     The arguments are the prepared inputs of :func:`slipnet.forecast.forecast_crack`. A perturbed
@@ -45,38 +84,73 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     """
     rng = np.random.default_rng(seed)
     bar_keys = [_pair(a, b) for a, b in zip(fc.barriers["grain_a"], fc.barriers["grain_b"], strict=True)]
-    site_keys = [(int(a), int(b)) for a, b in zip(fc.sites["grain"], fc.sites["blocking_grain"], strict=True)]
     on_path = dict.fromkeys(bar_keys, 0)
     bar_top = dict.fromkeys(bar_keys, 0)
-    site_in = dict.fromkeys(site_keys, 0)
-    site_top = dict.fromkeys(site_keys, 0)
+    nb, ns = len(fc.barriers), len(fc.sites)
+    p_drop = np.zeros(nb)
+    p_hit = np.zeros(ns)
+    present = np.zeros(ns)
+    site_top = np.zeros(ns)
+    sxy = fc.sites[["x_um", "y_um"]].to_numpy(float) if ns else np.zeros((0, 2))
+    mode = inputs.mode if inputs is not None else "map"
+    x, y = _coords(geo)
+    shim = _GridShim(x, y)
+    n_rep = weights.model(mode, "field").n_replicates if weights is not None else 0
+    hit_r = weights.hit_radius_um if weights is not None else 0.0
     rows = []
     for s in range(samples):
         q, ld, dt = perturb_sample(rng, quats, noise.orientation_deg, load, noise.load_deg, tip, noise.tip_um)
-        if schmid is not None:  # local factors come from a solve at the nominal load: no misalignment
+        if schmid is not None and stress_given:  # local factors from a given solve at the nominal load
             ld = load
         t = tip + dt
         pw = _jitter(opts.pw, noise.weights, rng)
         bws = _jitter(bw, noise.weights, rng)
+        draw = int(rng.integers(max(n_rep, 1)))  # always drawn, so switching it off shifts no other draw
+        rep = draw if n_rep and noise.fitted_weights else None
         reset = geo.label_at(t[0], t[1]) < 0
         if reset:
             t = tip.copy()
         g0 = _start_grain(geo, t, opts.d_ref)
         o = replace(opts, pw=pw)
         res = run_forecast_pass(geo, planes, q, ld, schmid, t, g0, o, amplitude=amplitude, decay=decay, bw=bws, cf=cf,
-                    want_field=False, sigma_um=1.0, site_radius=site_radius)
+                                want_field=False, sigma_um=1.0, site_radius=site_radius)
         b = res["barriers"]
         keys = [_pair(a, c) for a, c in zip(b["grain_a"], b["grain_b"], strict=True)]
         for k, onp, rk in zip(keys, b["on_path"], b["rank"], strict=True):
             if k in on_path:
                 on_path[k] += bool(onp)
                 bar_top[k] += bool(rk <= top_k)
-        st = res["sites"]
-        for a, c, rk in zip(st["grain"], st["blocking_grain"], st["rank"], strict=True):
-            k = (int(a), int(c))
-            if k in site_in:
-                site_in[k] += 1
-                site_top[k] += bool(rk <= top_k)
+        if weights is not None and inputs is not None:
+            g_s = _rotated_graph(gg, q)
+            crack_s = None
+            if crack is not None:
+                crack_s = np.asarray(crack, float).copy()
+                crack_s[-1] = t
+            keep = stress_given or not noise.resolve_stress
+            field_s = None
+            if keep and inputs.stress_field is not None:
+                field_s = replace(inputs.stress_field, omap=replace(inputs.stress_field.omap,
+                                                                    quats=_rotated_quats(inputs.stress_field.omap,
+                                                                                         gg, q)))
+            inp = localisation_features(
+                g_s, t, opts.d_ref, ld if not keep else load, mode=mode, stress_amplitude=amplitude, crack=crack_s,
+                stress_field=field_s,
+                cyclic_field=inputs.cyclic_field if mode == "cyclic" else cyclic_field,
+                systems=systems, free_edges=free_edges, stress_ratio=ratio)
+            fld = predict_field(inp, weights, rep)
+            if ns:
+                ii, jj = np.asarray(gg.omap.index_of(sxy[:, 0], sxy[:, 1]))
+                p_hit += site_probability(fld[ii, jj], weights, mode, rep)
+                region = inp.solid & (np.hypot(x - t[0], y - t[1]) <= opts.horizon)
+                pk = field_peaks(fld, region, shim, max(ns, top_k), weights.site_separation_um)
+                if len(pk):
+                    d2 = (sxy[:, 0, None] - pk[None, :, 0]) ** 2 + (sxy[:, 1, None] - pk[None, :, 1]) ** 2
+                    near = d2 <= hit_r ** 2
+                    present += near.any(axis=1)
+                    site_top += near[:, :top_k].any(axis=1)
+            if nb:
+                xb = barrier_features(fc.barriers, fc.crossings, inp, fld, geo, res["crystal"], weights, opts.horizon)
+                p_drop += weights.model(mode, "barriers").probability(xb, rep)
         path = res["path"]
         rows.append({
             "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": bool(reset),
@@ -92,7 +166,9 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     barriers = fc.barriers.copy()
     barriers["p_on_path"] = [on_path[k] / n for k in bar_keys]
     barriers["p_top_k"] = [bar_top[k] / n for k in bar_keys]
+    barriers["p_drop"] = p_drop / n
     sites = fc.sites.copy()
-    sites["p_present"] = [site_in[k] / n for k in site_keys]
-    sites["p_top_k"] = [site_top[k] / n for k in site_keys]
+    sites["p_present"] = present / n
+    sites["p_top_k"] = site_top / n
+    sites["p_hit"] = p_hit / n
     return replace(fc, barriers=barriers, sites=sites, samples=pd.DataFrame(rows))

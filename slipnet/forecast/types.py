@@ -83,13 +83,23 @@ class MonteCarloNoise:
     tip_um
         Gaussian jitter of each tip coordinate, µm.
     weights
-        Log-normal relative jitter of every score weight.
+        Log-normal relative jitter of every path-choice and resistance weight.
+    fitted_weights
+        Draw one bootstrap replicate of the fitted weights per sample (the fit's own uncertainty);
+        False keeps the fitted weights.
+    resolve_stress
+        Solve the elastic field again for every sample's orientations and load (elastic and cyclic
+        modes; one solve per sample). False (default) keeps the nominal solve and resolves its stress on
+        the perturbed orientations: a rotation of 1–2° changes the resolved shear far more than the
+        stress, and the load misalignment then moves the path passes only.
     """
 
     orientation_deg: float = 1.5
     load_deg: float = 2.0
     tip_um: float = 1.0
     weights: float = 0.2
+    fitted_weights: bool = True
+    resolve_stress: bool = False
 
 
 @dataclass(frozen=True, eq=False)

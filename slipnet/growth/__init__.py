@@ -18,6 +18,7 @@ from slipnet.growth.path import (
     GrowthPath,
     path_from_forecast,
     path_from_tables,
+    zones_along_path,
 )
 from slipnet.growth.strip_yield import (
     GrowthParameters,
@@ -30,6 +31,7 @@ from slipnet.growth.zones import (
     SPREADING,
     barrier_strengths,
     crossing_lengths,
+    localisation_factor,
     threshold_amplitudes,
     zone_state,
 )
@@ -47,6 +49,7 @@ __all__ = [
     "crossing_lengths",
     "growth_profile",
     "life_amplitude",
+    "localisation_factor",
     "path_from_forecast",
     "path_from_tables",
     "plastic_zone_ratio",
@@ -55,4 +58,5 @@ __all__ = [
     "sliding_displacement",
     "threshold_amplitudes",
     "zone_state",
+    "zones_along_path",
 ]

@@ -147,6 +147,10 @@ def _grid(path: GrowthPath, a0: float, a1: float, n_points: int, x: np.ndarray) 
         span = np.maximum(ends - prev, 0.0)
         frac = np.geomspace(1e-7, 1.0, 48)
         extra.append((ends[:, None] - span[:, None] * frac[None, :]).ravel())
+    if path.n_zones:  # resolve each zone's dip: points across its approach and recovery
+        u = np.linspace(-3.0, 3.0, 61)
+        extra.append((path.zone_positions_um[:, None] + u[None, :] * path.zone_widths_um[:, None]).ravel())
+        extra.append(path.zone_positions_um)
     extra = np.concatenate(extra)
     extra = extra[(extra > a0) & (extra < a1)]
     return np.unique(np.concatenate([base, extra]))
@@ -179,6 +183,8 @@ def _profile_frame(path: GrowthPath, a: np.ndarray, st: dict, cycles: np.ndarray
         "barrier": st["barrier"].astype(np.int64),
         "grain": grain.astype(np.int64),
         "arrested": st["arrested"],
+        "zone_factor": st["zone_factor"],
+        "zone": st["zone"],
     })
 
 
@@ -282,10 +288,11 @@ def simulate_growth(
     table["arrest"] = ~np.isfinite(x) & (np.arange(x.size) == (np.argmax(~np.isfinite(x)) if x.size else 0))
     table["dip_length_um"] = np.nan
     table["dip_depth_ratio"] = np.nan
-    if len(dips):
-        idx = dips["barrier"].to_numpy()
-        table.loc[idx, "dip_length_um"] = dips["crack_length_um"].to_numpy()
-        table.loc[idx, "dip_depth_ratio"] = dips["depth_ratio"].to_numpy()
+    bdips = dips[dips["kind"] == "boundary"] if len(dips) else dips
+    if len(bdips):
+        idx = bdips["barrier"].to_numpy()
+        table.loc[idx, "dip_length_um"] = bdips["crack_length_um"].to_numpy()
+        table.loc[idx, "dip_depth_ratio"] = bdips["depth_ratio"].to_numpy()
     arrest = np.flatnonzero(~np.isfinite(x))
     arrest_len = float(d[arrest[0]]) if arrest.size and d[arrest[0]] <= a1 else math.inf
 
@@ -330,7 +337,10 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
     For each barrier k the zone was blocked at, the dip is the lowest rate after the rate's peak while
     blocked there (the rate falls as the tip nears the barrier, Navarro & de los Rios 1988); its
     ``depth_ratio`` is that rate divided by the rate just after slip crosses k (a ratio < 1; 0 where the
-    crack arrests at k). Barriers still blocking at the end of the profile are left out.
+    crack arrests at k). Barriers still blocking at the end of the profile are left out. For each
+    localisation zone on the path (``kind`` "zone", its index in ``zone``) the dip is the lowest rate in
+    the zone's window where the zone slows it most (its centre), its ``depth_ratio`` that rate over the
+    rate just past the window.
 
     Parameters
     ----------
@@ -343,7 +353,8 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
         ``barrier`` (index), ``crack_length_um`` (at the dip minimum), ``dadn_min_um_per_cycle``,
         ``dadn_peak_um_per_cycle`` (highest rate while blocked), ``dadn_after_um_per_cycle``,
         ``depth_ratio``, ``crossing_length_um``
-        (inf when arrested), ``arrest`` (bool).
+        (inf when arrested; the zone centre for a zone), ``arrest`` (bool), ``kind`` ("boundary" or "zone"),
+        ``zone`` (zone index, −1 for a boundary dip), sorted by crack length.
     """
     prof = profile_or_result.profile if isinstance(profile_or_result, GrowthResult) else profile_or_result
     need = {"crack_length_um", "dadn_um_per_cycle", "barrier", "zone_state"}
@@ -377,8 +388,36 @@ def predicted_dips(profile_or_result) -> pd.DataFrame:
                 depth = r[i_min] / after if after > 0 else math.nan
             rows.append({"barrier": int(k), "crack_length_um": a[i_min], "dadn_min_um_per_cycle": r[i_min],
                          "dadn_peak_um_per_cycle": r[i_peak], "dadn_after_um_per_cycle": after, "depth_ratio": depth,
-                         "crossing_length_um": cross, "arrest": arrest})
+                         "crossing_length_um": cross, "arrest": arrest, "kind": "boundary", "zone": -1})
+    if "zone" in prof.columns:
+        fac = prof["zone_factor"].to_numpy(float) if "zone_factor" in prof.columns else np.ones(a.size)
+        rows += _zone_dips(a, r, prof["zone"].to_numpy(np.int64), state, fac)
+    rows.sort(key=lambda d: d["crack_length_um"])
     return pd.DataFrame(rows, columns=list(GROWTH_DIPS))
+
+
+def _zone_dips(a: np.ndarray, r: np.ndarray, zone: np.ndarray, state: np.ndarray, factor: np.ndarray
+               ) -> list[dict]:
+    """One dip per localisation zone whose window the profile passes through (a few zones per path).
+
+    The dip sits where the zone slows the crack most (the smallest zone factor, the zone's centre):
+    the unretarded rate itself grows with the crack length, so the lowest rate in the window can lie
+    at its start.
+    """
+    rows = []
+    for z in np.unique(zone[zone >= 0]):
+        idx = np.flatnonzero((zone == z) & (state != ARRESTED))
+        if idx.size < 3 or idx[-1] + 1 >= a.size:
+            continue  # the window is cut by the profile's end or an arrest: no recovery seen
+        i_min = int(idx[np.argmin(factor[idx])])
+        before = idx[idx <= i_min]
+        i_peak = int(before[np.argmax(r[before])])
+        after = float(r[idx[-1] + 1])
+        rows.append({"barrier": -1, "crack_length_um": a[i_min], "dadn_min_um_per_cycle": r[i_min],
+                     "dadn_peak_um_per_cycle": r[i_peak], "dadn_after_um_per_cycle": after,
+                     "depth_ratio": r[i_min] / after if after > 0 else math.nan,
+                     "crossing_length_um": a[i_min], "arrest": False, "kind": "zone", "zone": int(z)})
+    return rows
 
 
 # --------------------------------------------------------------------------------------------

@@ -22,7 +22,7 @@ from slipnet._checks import check_positive
 from slipnet.columns import SEGMENT_XY
 from slipnet.errors import ParameterError
 
-__all__ = ["GrowthPath", "path_from_forecast", "path_from_tables"]
+__all__ = ["GrowthPath", "path_from_forecast", "path_from_tables", "zones_along_path"]
 
 
 def _float_array(value, name: str, size: int | None, default: float | None = None) -> np.ndarray:
@@ -67,6 +67,11 @@ class GrowthPath:
         Optional (p, 3) array of (s_um, x_um, y_um) points along the path on the map, s increasing.
     strength_scale
         (k,) extra multiplier of each barrier's critical stress (1 by default; Monte Carlo draws use it).
+    zone_positions_um, zone_widths_um, zone_strengths
+        (z,) centres (µm from the path start, increasing), approach widths (µm, > 0) and strengths (in
+        [0, 1]) of the zones of strain localisation on the path (retardation sites besides the
+        boundaries; :func:`path_from_forecast` takes them from the forecast's localisation field).
+        Empty by default: no zone.
     """
 
     barrier_positions_um: np.ndarray
@@ -78,6 +83,9 @@ class GrowthPath:
     boundary_ids: np.ndarray = field(default=None)  # type: ignore[assignment]
     polyline: np.ndarray | None = None
     strength_scale: np.ndarray = field(default=None)  # type: ignore[assignment]
+    zone_positions_um: np.ndarray = field(default=None)  # type: ignore[assignment]
+    zone_widths_um: np.ndarray = field(default=None)  # type: ignore[assignment]
+    zone_strengths: np.ndarray = field(default=None)  # type: ignore[assignment]
 
     def __post_init__(self) -> None:
         d = _float_array(self.barrier_positions_um, "barrier_positions_um", None)
@@ -108,9 +116,20 @@ class GrowthPath:
             poly = np.asarray(self.polyline, dtype=float)
             if poly.ndim != 2 or poly.shape[1] != 3 or poly.shape[0] < 2:
                 raise ParameterError("polyline should be a (p, 3) array of (s_um, x_um, y_um) with p >= 2")
+        zp = np.zeros(0) if self.zone_positions_um is None else _float_array(self.zone_positions_um,
+                                                                                     "zone_positions_um", None)
+        zw = _float_array(self.zone_widths_um, "zone_widths_um", zp.size, 1.0)
+        zs = _float_array(self.zone_strengths, "zone_strengths", zp.size, 1.0)
+        if zp.size and (not np.all(np.isfinite(zp)) or np.any(np.diff(zp) <= 0) or np.any(zp < 0)):
+            raise ParameterError("zone_positions_um should be finite, >= 0 µm and strictly increasing")
+        if np.any(~np.isfinite(zw)) or np.any(zw <= 0):
+            raise ParameterError("zone_widths_um should be finite and > 0 µm")
+        if np.any(~np.isfinite(zs)) or np.any(zs < 0) or np.any(zs > 1):
+            raise ParameterError("zone_strengths should lie in [0, 1]")
         for name, val in (("barrier_positions_um", d), ("grain_factors", gf), ("m_prime", np.clip(mp, 0, 1)),
                           ("twist_deg", tw), ("length_um", length), ("grains", grains), ("boundary_ids", bids),
-                          ("polyline", poly), ("strength_scale", scale)):
+                          ("polyline", poly), ("strength_scale", scale), ("zone_positions_um", zp),
+                          ("zone_widths_um", zw), ("zone_strengths", zs)):
             object.__setattr__(self, name, val)
 
     @classmethod
@@ -163,6 +182,17 @@ class GrowthPath:
     def n_barriers(self) -> int:
         """Number of barriers along the path."""
         return int(self.barrier_positions_um.size)
+
+    @property
+    def n_zones(self) -> int:
+        """Number of localisation zones along the path."""
+        return int(self.zone_positions_um.size)
+
+    def with_zones(self, positions_um, widths_um, strengths) -> GrowthPath:
+        """This path with the given localisation zones (replacing any it had)."""
+        from dataclasses import replace
+
+        return replace(self, zone_positions_um=positions_um, zone_widths_um=widths_um, zone_strengths=strengths)
 
     def table(self) -> pd.DataFrame:
         """The barriers as a DataFrame (one row per barrier)."""
@@ -289,7 +319,7 @@ def path_from_tables(path_table: pd.DataFrame, barrier_table: pd.DataFrame | Non
 
 
 def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field=None, gg=None,
-                       systems=None) -> GrowthPath:
+                       systems=None, zones: bool = True, zone_threshold: float = 0.5) -> GrowthPath:
     """A :class:`GrowthPath` from a ``CrackForecast`` (its ``.path``, ``.crossings``, ``.barriers``).
 
     Parameters
@@ -308,6 +338,9 @@ def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field
     systems
         The slip systems the forecast used (default catalogue when None; relative CRSS divide the
         local factors as in the effective Schmid factor).
+    zones, zone_threshold
+        Take the localisation zones on the path from the forecast's field (:func:`zones_along_path`):
+        every stretch of the path where the field reaches ``zone_threshold`` is a zone.
 
     See :func:`path_from_tables` for how the tables are read.
     """
@@ -319,9 +352,61 @@ def path_from_forecast(forecast, *, offset_um: float | None = None, stress_field
     table = forecast.path
     if stress_field is not None:
         table = _local_factors(table, stress_field, gg, systems)
-    return path_from_tables(table, getattr(forecast, "barriers", None),
+    path = path_from_tables(table, getattr(forecast, "barriers", None),
                             crossings=getattr(forecast, "crossings", None), offset_um=offset_um,
                             source="forecast.path")
+    grid = (getattr(forecast, "settings", None) or {}).get("field_grid")
+    fld = getattr(forecast, "field", None)
+    if zones and fld is not None and grid is not None and path.polyline is not None:
+        zp, zw, zs = zones_along_path(np.asarray(fld, float), grid, path.polyline, zone_threshold)
+        path = path.with_zones(zp, zw, zs)
+    return path
+
+
+def zones_along_path(field: np.ndarray, grid: dict, polyline: np.ndarray, threshold: float = 0.5):
+    """Localisation zones along a path: stretches where the field sampled along it reaches ``threshold``.
+
+    Parameters
+    ----------
+    field : (ny, nx) ndarray
+        The forecast's localisation field (probabilities).
+    grid : dict
+        ``origin_um`` (x, y), ``step_um``, ``row_spacing_um`` and ``hex`` of the field's grid (the
+        forecast's ``settings["field_grid"]``).
+    polyline : (p, 3) ndarray
+        ``(s_um, x_um, y_um)`` along the path.
+    threshold
+        Field value that makes a zone, in (0, 1).
+
+    Returns
+    -------
+    positions_um, widths_um, strengths : (z,) ndarray
+        Each stretch's centre (its highest point), approach width (from where the stretch begins to
+        the centre, at least one grid step) and strength (the field's highest value on it).
+    """
+    if not 0.0 < float(threshold) < 1.0:
+        raise ParameterError(f"zone_threshold should lie in (0, 1); got {threshold!r}")
+    step = float(grid["step_um"])
+    rs = float(grid["row_spacing_um"])
+    ox, oy = (float(v) for v in grid["origin_um"])
+    s0, s1 = float(polyline[0, 0]), float(polyline[-1, 0])
+    s = np.arange(s0, s1 + 1e-9, 0.5 * step)
+    x = np.interp(s, polyline[:, 0], polyline[:, 1])
+    y = np.interp(s, polyline[:, 0], polyline[:, 2])
+    ny, nx = field.shape
+    i = np.clip(np.rint((y - oy) / rs).astype(int), 0, ny - 1)
+    shift = 0.5 * step * (i % 2) if grid.get("hex") else 0.0
+    j = np.clip(np.rint((x - ox - shift) / step).astype(int), 0, nx - 1)
+    f = field[i, j]
+    above = f >= float(threshold)
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], above.astype(int), [0]])))
+    pos, wid, strg = [], [], []
+    for a, b in zip(edges[::2], edges[1::2], strict=True):  # per stretch: a few
+        k = a + int(np.argmax(f[a:b]))
+        pos.append(s[k])
+        wid.append(max(s[k] - s[a], step))
+        strg.append(float(np.clip(f[k], 0.0, 1.0)))
+    return np.asarray(pos, float), np.asarray(wid, float), np.asarray(strg, float)
 
 
 def _local_factors(table: pd.DataFrame, stress_field, gg, systems) -> pd.DataFrame:

@@ -49,8 +49,11 @@ def _objectives(gg, root, normal, load, s: PlanSettings, systems, kt: float, qua
     out["root_schmid"] = float(m_eff.max())
     out["initiation_drive"] = float(m_eff.max()) * kt
     try:
+        # the candidate notch is not cut into the map, so a stress solve would not see it: the map-only
+        # forecast (the quick-sweep mode) and the hand-set resistance score the strengths below read
         fc = forecast_crack(g, tip, normal, load, horizon=s.window_um, stress_amplitude=s.stress_amplitude,
-                            stress_ratio=s.stress_ratio, systems=systems, samples=0)
+                            stress_ratio=s.stress_ratio, systems=systems, samples=0, mode="map",
+                            barrier_model="weights", n_sites=0)
     except SlipnetError as err:
         out["reason"] = f"forecast failed: {err}"
         return out

@@ -59,6 +59,11 @@ def write_forecast(fc: CrackForecast, folder: str | os.PathLike, gg=None, *, fig
         f"{fc.path['grain'].nunique() if len(fc.path) else 0} grains; stopped at: {fc.stop_reason}.",
         f"Alternative paths: {fc.alternatives['branch'].nunique() if len(fc.alternatives) else 0}.",
         f"Boundary plane: {st['boundary_plane']} (assumed from a surface map).",
+        f"Forecast mode: {st.get('mode_note', 'n/a')}.",
+        *[f"- {note}" for note in st.get("feature_notes", [])],
+        "Field, sites and barrier probabilities use weights fitted against slipnet's own cyclic crystal-plasticity "
+        "model on synthetic specimens (a consistency test between a fast and a slow model, not a validation against "
+        f"experiments); weights: {st.get('weights_source', 'n/a')}.",
         *([f"Schmid factors: LOCAL grain means from a full-field stress solve. Local stress assumptions: "
            f"{st['stress_assumptions']}"] if st.get("stress_field") else []),
         "",
@@ -67,10 +72,11 @@ def write_forecast(fc: CrackForecast, folder: str | os.PathLike, gg=None, *, fig
     for r in fc.barriers.head(5).itertuples():
         lines.append(f"- {r.rank}: boundary {r.boundary_id} ({r.grain_a}→{r.grain_b}) score {r.barrier_score:.3f}, "
                      f"twist {r.twist_deg:.1f}, tilt {r.tilt_deg:.1f}, m′ {r.m_prime:.2f}, at {r.distance_um:.1f}")
-    lines += ["", "Top localisation sites (rank, x, y µm, site score MPa·µm):"]
+    lines += ["", "Top localisation sites (rank, x, y µm, probability of a hot spot within "
+              f"{st.get('hit_radius_um', float('nan')):g} µm, field value):"]
     for r in fc.sites.head(5).itertuples():
-        lines.append(f"- {r.rank}: ({r.x_um:.1f}, {r.y_um:.1f}) score {r.site_score_mpa_um:.0f}, grain {r.grain} "
-                     f"against {r.blocking_grain}")
+        lines.append(f"- {r.rank}: ({r.x_um:.1f}, {r.y_um:.1f}) p {r.site_probability:.2f}, field {r.field_value:.2f}, "
+                     f"grain {r.grain} against {r.blocking_grain}")
     if fc.samples is not None:
         lines += ["", f"Monte Carlo: {len(fc.samples)} samples, seed {st['seed']}; probabilities in the "
                   "barrier and site tables (p_on_path, p_present, p_top_k)."]

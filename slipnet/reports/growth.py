@@ -65,7 +65,13 @@ def write_growth(result: GrowthResult, folder: str | os.PathLike, gg=None, *, fi
         f"{float(result.barriers['threshold_amplitude_mpa'].max()) if len(result.barriers) else 0.0:.1f} MPa "
         "(microstructural fatigue-limit estimate).",
         f"Predicted dips: {len(result.dips)} (growth_dips.csv: crack length of each minimum, depth = minimum rate "
-        "/ rate just after crossing).",
+        "/ rate just after crossing; kind 'boundary' = the plastic zone blocked at a grain boundary, 'zone' = a "
+        "strain-localisation zone on the path).",
+        *([f"Localisation zones on the path: {result.path.n_zones} (where the forecast's localisation field reaches "
+           f"0.5); each slows the rate by up to {p.zone_retardation:g} × its strength before its centre and lets it "
+           f"recover over {p.zone_recovery:g} × its approach width after. The field's weights were fitted against "
+           "slipnet's own cyclic crystal-plasticity model (a consistency test, not a validation against "
+           "experiments)."] if result.path.n_zones else []),
         *[f"Note: {n}" for n in result.notes],
         "",
         "The model (Bilby, Cottrell & Swinden 1963 strip-yield zone blocked at grain boundaries as in Navarro & "

@@ -298,11 +298,14 @@ def _parameters(r) -> pd.DataFrame:
 
 def _validation(r) -> list[str]:
     if r.validation is None or len(r.validation) == 0:
-        return [_p("No validation standing is recorded in this installation: the predictor has not yet been scored "
-                   "against a set of measured specimens. Read the forecast as a ranking of likely behaviour, not a "
-                   "measured accuracy.")]
-    return [_p("The predictor's standing against measured specimens, as recorded by the validation harness:"),
-            html_table(r.validation, caption="Validation standing")]
+        return [_p("No validation standing is recorded in this installation: the predictor has not been scored "
+                   "by the validation harness. Read the forecast as a ranking of likely behaviour, not a measured "
+                   "accuracy.")]
+    statement = str(r.validation["statement"].iloc[0]) if "statement" in r.validation else ""
+    table = r.validation.drop(columns=["statement"], errors="ignore")
+    return [_p("The predictor's held-out standing from slipnet's validation harness (slipnet validate). "
+               + statement + " It is not a validation against experiments; no measured specimen was used."),
+            html_table(table, caption="Validation standing (held-out virtual experiments)")]
 
 
 def study_report_html(r) -> str:

@@ -101,23 +101,30 @@ class StudyResult:
 
 
 def validation_standing() -> pd.DataFrame | None:
-    """The predictor's validation standing, if the package carries one.
+    """The predictor's standing from the validation harness shipped with the package.
 
-    Looks for a file named ``validation_standing.csv`` or ``validation_standing.json`` (records)
-    anywhere inside the installed ``slipnet`` package, as written by the validation harness.
+    Reads :func:`slipnet.validation.read_standing` (``slipnet validate --ship`` writes it): one row
+    per target with its held-out value, threshold and whether it is met, and the harness's own
+    statement that the reference is slipnet's model.
 
     Returns
     -------
     DataFrame or None
-        Its rows, or None when no such file exists yet.
+        Columns ``target``, ``value``, ``threshold``, ``met``, ``statement``; None when no standing
+        is shipped.
     """
-    root = Path(__file__).resolve().parents[1]
-    for found in sorted(root.rglob("validation_standing.*")):
-        if found.suffix == ".csv":
-            return pd.read_csv(found)
-        if found.suffix == ".json":
-            return pd.read_json(found, orient="records")
-    return None
+    from slipnet.errors import InputFileError
+    from slipnet.validation import read_standing
+
+    try:
+        data = read_standing()
+    except InputFileError:
+        return None
+    rows = [{"target": t.get("text"), "value": t.get("value"), "threshold": t.get("threshold"),
+             "met": "yes" if t.get("met") else "no"} for t in data.get("targets", [])]
+    table = pd.DataFrame(rows, columns=["target", "value", "threshold", "met"])
+    table["statement"] = data.get("statement", "")
+    return table
 
 
 @contextlib.contextmanager
