@@ -307,7 +307,7 @@ def test_polycrystal_flow_stress_between_sachs_and_taylor():
 def test_monotonic_limit_matches_explicit_solver():
     # today's explicit solver (forward Euler sub-steps, linear hardening) and the implicit one on
     # the same small polycrystal and the same constitutive law: within 2 %
-    from slipnet.stress import solve_plastic
+    from slipnet.stress.plasticity import explicit_plastic_reference as solve_plastic
 
     omap, gr = polycrystal(12, 4, seed=3)
     ref = solve_plastic(omap, [1, 0, 0], 230.0, increments=4, crss_mpa=90.0, hardening_mpa=200.0, latent_ratio=1.0,

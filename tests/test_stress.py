@@ -29,12 +29,12 @@ from slipnet.stress import (
     local_schmid_factors,
     rotate_stiffness,
     solve_elastic,
-    solve_plastic,
     stress_concentration,
     to_mandel,
     voigt_reuss_hill,
 )
 from slipnet.stress import _kernels as _k
+from slipnet.stress.plasticity import explicit_plastic_reference as solve_plastic
 
 PAIRS = [(0, 0), (1, 1), (2, 2), (1, 2), (0, 2), (0, 1)]
 
@@ -513,6 +513,23 @@ def test_cli_stress_writes_outputs(tmp_path, capsys):
     assert rc == 0 and "periodic" in out and (tmp_path / "o" / "summary.md").exists()
     assert main(["stress", str(tmp_path / "m.npz"), "--load-axis", "0", "1", "0", "--tol", "0"]) == 2
     assert "tol should lie in" in capsys.readouterr().err
+
+
+def test_cli_stress_plastic_runs_the_implicit_monotonic_solver(tmp_path, capsys):
+    # --plastic is the monotonic special case of the implicit solver: its outputs are the cyclic ones
+    from slipnet.cli import main
+    from slipnet.io import write_map
+
+    omap, _ = polycrystal(12, 3, seed=8)
+    write_map(omap, tmp_path / "m.npz")
+    rc = main(["stress", str(tmp_path / "m.npz"), "--out", str(tmp_path / "o"), "--load-axis", "0", "1", "0",
+               "--stress", "260", "--plastic", "--increments", "3", "--no-figures"])
+    out = capsys.readouterr().out
+    assert rc == 0 and "cyclic:" in out and "Newton" in out
+    assert (tmp_path / "o" / "summary.md").exists()
+    assert main(["stress", str(tmp_path / "m.npz"), "--load-axis", "0", "1", "0", "--plastic", "--cyclic",
+                 "--out", str(tmp_path / "p")]) == 2
+    assert "exclude each other" in capsys.readouterr().err
 
 
 def test_grain_factors_use_the_equivalent_nearest_the_grain_mean():

@@ -28,10 +28,12 @@ def add(sub, parents) -> None:
     p.add_argument("--search-radius", type=float, metavar="UM",
                    help="radius of that search, µm (default 5 steps)")
     p.add_argument("--plastic", action="store_true",
-                   help="add rate-dependent crystal plasticity, load ramped in --increments increments")
-    p.add_argument("--crss-mpa", type=float, default=100.0,
-                   help="initial critical resolved shear stress, MPa (default 100)")
-    p.add_argument("--increments", type=int, default=10, help="load increments with --plastic (default 10)")
+                   help="monotonic crystal plasticity: ramp to --stress with the implicit solver of --cyclic "
+                   "(its monotonic special case) and write its outputs (accumulated slip, FIP bands, grain responses)")
+    p.add_argument("--crss-mpa", type=float, default=90.0,
+                   help="initial critical resolved shear stress, MPa (default 90)")
+    p.add_argument("--increments", type=int, default=6,
+                   help="fewest load increments of the ramp with --plastic (more when slip needs them; default 6)")
     g = p.add_argument_group("cyclic crystal plasticity")
     g.add_argument("--cyclic", action="store_true",
                    help="cyclic crystal plasticity instead: --stress is the stress amplitude; writes ranked FIP slip "
@@ -55,25 +57,21 @@ def add(sub, parents) -> None:
 
 
 def run(args) -> int:
+    from slipnet.errors import ParameterError
     from slipnet.reports.stress import write_stress
-    from slipnet.stress import solve_elastic, solve_plastic, stress_concentration
+    from slipnet.stress import solve_elastic, stress_concentration
 
+    if args.plastic and args.cyclic:
+        raise ParameterError("--plastic (a monotonic ramp) and --cyclic (cycles) exclude each other; give one")
     with output_run(args, args.input) as run:
         omap = read_map_from_args(args, args.input)
-        if args.cyclic:
-            return _run_cyclic(args, omap, run.folder)
-        common = {"tol": args.tol, "max_iter": args.max_iter, "scheme": args.scheme, "unindexed": args.unindexed,
-                  "compliant_ratio": args.compliant_ratio}
-        plastic = None
-        if args.plastic:
-            plastic = solve_plastic(omap, args.load_axis, args.stress, crss_mpa=args.crss_mpa,
-                                    increments=args.increments, **common)
-            field = plastic.field
-        else:
-            field = solve_elastic(omap, args.load_axis, args.stress, **common)
+        if args.cyclic or args.plastic:
+            return _run_cyclic(args, omap, run.folder, monotonic=args.plastic)
+        field = solve_elastic(omap, args.load_axis, args.stress, tol=args.tol, max_iter=args.max_iter,
+                              scheme=args.scheme, unindexed=args.unindexed, compliant_ratio=args.compliant_ratio)
         gg = grain_graph_from_args(args, args.input)
         write_stress(field, run.folder, gg, notch_root=args.concentration_at, radius_um=args.search_radius,
-                     figures=not args.no_figures, plastic=plastic)
+                     figures=not args.no_figures)
     out = run.folder
     print(f"stress: {field.iterations} iterations, residual {field.residual:.2e}, apparent modulus "
           f"{field.apparent_modulus:.1f} GPa along the load axis "
@@ -87,10 +85,10 @@ def run(args) -> int:
     return 0
 
 
-def _run_cyclic(args, omap, out) -> int:
+def _run_cyclic(args, omap, out, *, monotonic: bool = False) -> int:
     from slipnet.errors import ParameterError
     from slipnet.reports.cyclic import write_cyclic
-    from slipnet.stress import CyclicMaterial, solve_cyclic
+    from slipnet.stress import CyclicMaterial, solve_cyclic, solve_monotonic
 
     crack = None
     if args.crack:
@@ -99,14 +97,19 @@ def _run_cyclic(args, omap, out) -> int:
                                  f"got {len(args.crack)} numbers")
         crack = [args.crack[i:i + 2] for i in range(0, len(args.crack), 2)]
     gg = grain_graph_from_args(args, args.input)
-    result = solve_cyclic(omap, args.load_axis, stress_amplitude=args.stress, ratio=args.ratio, cycles=args.cycles,
-                          frequency_hz=args.frequency, crack=crack, free_edges=args.free_edge,
-                          buffer_edges=args.buffer_edge, grains=gg,
-                          material=CyclicMaterial(crss_mpa=args.crss_mpa), boundary_width_um=args.boundary_width,
-                          boundary_strength_mpa=args.boundary_strength, tol=max(args.tol, 1e-5),
-                          max_iter=max(args.max_iter, 3000), max_newton=args.max_newton,
-                          max_cutbacks=args.max_cutbacks, scheme=args.scheme, unindexed=args.unindexed,
-                          compliant_ratio=args.compliant_ratio, progress=True)
+    common = {"crack": crack, "free_edges": args.free_edge, "buffer_edges": args.buffer_edge, "grains": gg,
+              "material": CyclicMaterial(crss_mpa=args.crss_mpa), "boundary_width_um": args.boundary_width,
+              "boundary_strength_mpa": args.boundary_strength, "tol": max(args.tol, 1e-5),
+              "max_iter": max(args.max_iter, 3000), "max_newton": args.max_newton, "max_cutbacks": args.max_cutbacks,
+              "scheme": args.scheme, "unindexed": args.unindexed, "compliant_ratio": args.compliant_ratio,
+              "progress": True}
+    if monotonic:
+        if isinstance(args.increments, bool) or args.increments < 1:
+            raise ParameterError(f"--increments should be a positive integer; got {args.increments!r}")
+        result = solve_monotonic(omap, args.load_axis, args.stress, min_increments=args.increments, **common)
+    else:
+        result = solve_cyclic(omap, args.load_axis, stress_amplitude=args.stress, ratio=args.ratio,
+                              cycles=args.cycles, frequency_hz=args.frequency, **common)
     write_cyclic(result, out, figures=not args.no_figures)
     s = result.settings
     print(f"cyclic: {s['increments']} increments, {s['newton_iterations']} Newton / {s['cg_iterations']} CG "

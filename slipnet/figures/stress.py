@@ -12,7 +12,6 @@ from matplotlib.colors import TwoSlopeNorm
 from slipnet.figures._common import DIVERGING_CMAP, SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
 
 __all__ = [
-    "plot_accumulated_slip",
     "plot_max_local_schmid",
     "plot_schmid_difference",
     "plot_stress_component",
@@ -124,16 +123,6 @@ def plot_schmid_difference(field, systems=None, ax=None):
     _show(ax, field, diff, DIVERGING_CMAP, TwoSlopeNorm(vcenter=0.0, vmin=-span, vmax=span),
           "local − uniform largest Schmid factor (–)")
     ax.set_title("Largest local Schmid factor minus the uniform-stress estimate", fontsize=10)
-    _caption(ax, field.assumptions)
-    return fig
-
-
-def plot_accumulated_slip(plastic, ax=None):
-    """Map the accumulated slip ``Σ_α ∫|γ̇_α| dt`` of a crystal-plasticity run (viridis, no unit)."""
-    field = plastic.field
-    fig, ax = _map_axes(field, ax)
-    _show(ax, field, plastic.accumulated_slip, SCALAR_CMAP, None, "accumulated slip Σ|γ| (–)")
-    ax.set_title(f"Accumulated slip after loading to {field.applied_stress:g} MPa", fontsize=10)
     _caption(ax, field.assumptions)
     return fig
 

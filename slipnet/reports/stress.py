@@ -17,7 +17,7 @@ __all__ = ["write_stress"]
 
 def write_stress(field: StressField, folder: str | os.PathLike, gg=None, systems=None, *,
                  title: str = "Local stresses", notch_root=None, radius_um: float | None = None,
-                 figures: bool = True, plastic=None) -> dict[str, Path]:
+                 figures: bool = True) -> dict[str, Path]:
     """Write pictures, a grain table and a summary (with the assumptions and the caution) into ``folder``.
 
     Parameters
@@ -36,8 +36,6 @@ def write_stress(field: StressField, folder: str | os.PathLike, gg=None, systems
         Search radius around ``notch_root``, µm.
     figures
         Draw the stress pictures.
-    plastic
-        A :class:`~slipnet.stress.PlasticField` whose accumulated slip is also drawn.
 
     Returns
     -------
@@ -58,8 +56,6 @@ def write_stress(field: StressField, folder: str | os.PathLike, gg=None, systems
         out.figure("local_schmid_map", figs.plot_max_local_schmid(field, systems), "local_schmid_max.png")
         out.figure("schmid_difference_map", figs.plot_schmid_difference(field, systems),
                    "local_schmid_minus_uniform.png")
-        if plastic is not None:
-            out.figure("accumulated_slip_map", figs.plot_accumulated_slip(plastic), "accumulated_slip.png")
     solid = ~field.compliant
     lines = [
         f"Applied uniaxial stress {field.applied_stress:g} MPa along load axis "
@@ -76,9 +72,6 @@ def write_stress(field: StressField, folder: str | os.PathLike, gg=None, systems
     if table is not None and len(table):
         worst = np.nanmax(np.abs(table["local_minus_uniform"]))
         lines.append(f"Grains: largest |local - uniform| Schmid factor {worst:.3f} (grain_stress.csv).")
-    if plastic is not None:
-        lines.append(f"Crystal plasticity: mean accumulated slip {plastic.accumulated_slip.mean():.2e}, "
-                     f"max {plastic.accumulated_slip.max():.2e}.")
     lines += ["", "Assumptions: " + field.assumptions]
     out.summary(title, lines)
     return out.files

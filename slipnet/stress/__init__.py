@@ -36,10 +36,6 @@ from slipnet.stress.local import (
     stress_concentration,
     uniform_schmid_factors,
 )
-from slipnet.stress.plasticity import (
-    PlasticField,
-    solve_plastic,
-)
 
 __all__ = [
     "AUSTENITE_CONSTANTS",
@@ -48,7 +44,6 @@ __all__ = [
     "CubicConstants",
     "CyclicField",
     "CyclicMaterial",
-    "PlasticField",
     "StressField",
     "assumptions_text",
     "cyclic_assumptions",
@@ -63,7 +58,6 @@ __all__ = [
     "solve_cyclic",
     "solve_elastic",
     "solve_monotonic",
-    "solve_plastic",
     "stress_concentration",
     "to_mandel",
     "uniform_schmid_factors",

@@ -1,4 +1,11 @@
-"""Crystal plasticity, first step: rate-dependent slip inside the spectral stress solver.
+"""The earlier explicit crystal-plasticity integrator, kept only as a reference.
+
+Not part of the public API: :func:`slipnet.stress.solve_monotonic` (the monotonic special case of
+the implicit solver :func:`slipnet.stress.solve_cyclic`) replaces it everywhere, the ``stress
+--plastic`` command included. It stays because the implicit solver is checked against it (the
+monotonic limit agrees within 2 % on cases it can run, ``tests/test_cyclic.py``) and because
+``benchmarks/bench_cyclic.py`` measures the implicit solver's speed against it. It needs hundreds
+of sub-steps where the implicit update takes a few increments; do not use it for new work.
 
 Constitutive equations (small strain)
 -------------------------------------
@@ -44,12 +51,12 @@ from slipnet.stress.constants import from_mandel, to_mandel
 from slipnet.stress.elastic import StressField, _check_common, _prepare, _Spectral, assumptions_text
 from slipnet.stress.local import default_systems
 
-__all__ = ["PlasticField", "solve_plastic"]
+__all__ = ["PlasticField", "explicit_plastic_reference"]
 
 
 @dataclass(frozen=True, eq=False)
 class PlasticField:
-    """Result of :func:`solve_plastic`.
+    """Result of :func:`explicit_plastic_reference`.
 
     Attributes
     ----------
@@ -94,7 +101,7 @@ class PlasticField:
         return np.where(a.max(axis=-1) > 0, idx, -1)
 
 
-def solve_plastic(
+def explicit_plastic_reference(
     omap: OrientationMap,
     load_axis,
     stress: float = 250.0,
@@ -118,7 +125,10 @@ def solve_plastic(
     scheme: str = "rotated",
     workers: int | None = None,
 ) -> PlasticField:
-    """Load a periodic columnar polycrystal in uniaxial stress with rate-dependent crystal plasticity.
+    """Reference only: the explicit (forward Euler, sub-stepped) monotonic crystal-plasticity solve.
+
+    Use :func:`slipnet.stress.solve_monotonic` instead; this is kept to check it against. Loads a
+    periodic columnar polycrystal in uniaxial stress with rate-dependent crystal plasticity.
 
     Parameters
     ----------
