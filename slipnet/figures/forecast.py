@@ -9,6 +9,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
+from slipnet.labels import boundary_label
 
 __all__ = ["plot_forecast_map", "plot_score_terms"]
 
@@ -72,16 +73,18 @@ def plot_forecast_map(fc, gg, *, ax: Axes | None = None, n_barriers: int = 8, n_
     handles.append(Line2D([], [], marker="*", ms=12, color="white", mec="black", ls="", label="crack tip"))
     for r in fc.barriers.head(n_barriers).itertuples():
         ax.plot(r.x_um, r.y_um, "o", ms=13, color=_BARRIER, mec="black")
-        ax.text(r.x_um, r.y_um, str(r.rank), ha="center", va="center", fontsize=7, fontweight="bold")
+        ax.annotate(boundary_label(r.boundary_id), (r.x_um, r.y_um), xytext=(6, -11), textcoords="offset points",
+                    fontsize=7, fontweight="bold")
     if len(fc.barriers):
         handles.append(Line2D([], [], marker="o", ms=10, color=_BARRIER, mec="black", ls="",
-                              label="barrier (rank; score 0–1)"))
+                              label="barrier (B = boundary id of the grain tables)"))
     for r in fc.sites.head(n_sites).itertuples():
         ax.plot(r.x_um, r.y_um, "s", ms=11, color=_SITE, mec="black")
-        ax.text(r.x_um, r.y_um, str(r.rank), ha="center", va="center", fontsize=7, color="white", fontweight="bold")
+        ax.text(r.x_um, r.y_um, f"S{int(r.rank)}", ha="center", va="center", fontsize=6, color="white",
+                fontweight="bold")
     if len(fc.sites):
         handles.append(Line2D([], [], marker="s", ms=9, color=_SITE, mec="black", ls="",
-                              label="localisation site (rank; MPa·µm)"))
+                              label="localisation site (S = rank in the site table)"))
     ax.set_xlim(ext[0], ext[1])
     ax.set_ylim(ext[2], ext[3])
     label_map_axes(ax)
@@ -116,8 +119,8 @@ def plot_score_terms(fc, *, ax: Axes | None = None) -> Figure:
             bottom += h
         ax.plot(b["distance_um"], b["barrier_score"], "ko", label="score (× relevance)")
         for r in b.itertuples():
-            ax.text(r.distance_um, bottom[list(b.index).index(r.Index)] + 0.02, f"#{r.rank}", ha="center",
-                    fontsize=7)
+            ax.text(r.distance_um, bottom[list(b.index).index(r.Index)] + 0.02, boundary_label(r.boundary_id),
+                    ha="center", fontsize=7)
     else:
         ax.text(0.5, 0.5, "no boundary met within the horizon", transform=ax.transAxes, ha="center")
     ax.set_xlabel("distance along the path from the tip (µm)")

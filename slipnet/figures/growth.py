@@ -12,6 +12,7 @@ from matplotlib.figure import Figure
 
 from slipnet.errors import ParameterError
 from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes, map_extent
+from slipnet.labels import boundary_label
 
 __all__ = [
     "plot_crack_length",
@@ -28,6 +29,13 @@ def _axes(ax: Axes | None, size=(7.0, 4.2)) -> tuple[Figure, Axes]:
         fig, ax = plt.subplots(figsize=size)
         return fig, ax
     return ax.figure, ax
+
+
+def _barrier_name(row) -> str:
+    # the boundary's own identifier, as in every table and the study report; the barrier's order on the
+    # path only where the path carries no boundary id
+    bid = row.get("boundary_id", -1)
+    return boundary_label(bid) if bid is not None and np.isfinite(bid) and bid >= 0 else f"#{int(row['barrier']) + 1}"
 
 
 def plot_growth_rate(result, ax: Axes | None = None, *, label_barriers: bool = True) -> Figure:
@@ -64,7 +72,7 @@ def plot_growth_rate(result, ax: Axes | None = None, *, label_barriers: bool = T
             continue
         ax.axvline(d, color=_BARRIER_COLOUR, ls="--", lw=0.8)
         if label_barriers:
-            ax.annotate(f"B{int(row['barrier']) + 1}", (d, 1.0), xycoords=("data", "axes fraction"),
+            ax.annotate(_barrier_name(row), (d, 1.0), xycoords=("data", "axes fraction"),
                         xytext=(2, -10), textcoords="offset points", fontsize=8, color="0.25")
     cross = bars["crossing_length_um"].to_numpy(float)
     cross = cross[np.isfinite(cross) & (cross >= a.min()) & (cross <= a_max)]
@@ -156,8 +164,10 @@ def plot_growth_on_map(result, gg=None, ax: Axes | None = None) -> Figure:
     ax.plot(path.polyline[:, 1], path.polyline[:, 2], color="0.3", lw=0.8, ls=":", zorder=1)
     bx, by = path.locate(path.barrier_positions_um)
     ax.plot(bx, by, ls="none", marker="s", ms=6, mfc="white", mec="black", label="barrier (grain boundary)")
+    names = [_barrier_name(row) for _, row in result.barriers.iterrows()]
     for i, (u, v) in enumerate(zip(np.atleast_1d(bx), np.atleast_1d(by), strict=True)):
-        ax.annotate(f"B{i + 1}", (u, v), xytext=(4, 4), textcoords="offset points", fontsize=8)
+        ax.annotate(names[i] if i < len(names) else f"#{i + 1}", (u, v), xytext=(4, 4), textcoords="offset points",
+                    fontsize=8)
     x0, y0 = path.locate(s0)
     ax.plot([x0], [y0], marker="o", ms=7, color="black", ls="none", label="path start")
     if np.isfinite(result.arrest_length_um):

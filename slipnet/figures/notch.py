@@ -10,6 +10,7 @@ from matplotlib.lines import Line2D
 from slipnet.cautions import CAUTION
 from slipnet.figures._common import SCALAR_CMAP, add_scale_bar, label_map_axes
 from slipnet.figures.maps import _display_raster, _label_edges
+from slipnet.labels import notch_label
 
 __all__ = ["plot_plan_map", "plot_plan_terms"]
 
@@ -41,7 +42,7 @@ def plot_plan_map(plan: pd.DataFrame, gg, *, n_best: int = 3):
     best = plan[finite].nsmallest(n_best, "rank")
     for _, r in best.iterrows():
         ax.plot(r["root_x_um"], r["root_y_um"], "*", ms=16, color=_BEST, mec="black", mew=0.8)
-        ax.annotate(f"{int(r['rank'])}", (r["root_x_um"], r["root_y_um"]), xytext=(7, 7), textcoords="offset points",
+        ax.annotate(notch_label(r["rank"]), (r["root_x_um"], r["root_y_um"]), xytext=(7, 7), textcoords="offset points",
                     fontsize=11, fontweight="bold", color="black",
                     bbox={"facecolor": "white", "alpha": 0.8, "pad": 1, "edgecolor": "none"})
     sm = plt.cm.ScalarMappable(cmap=cmap, norm=plt.Normalize(vmin, vmax))
