@@ -307,3 +307,14 @@ def test_demo_is_the_study_on_the_synthetic_coupon(tmp_path, capsys):
     log = pd.read_csv(out / "steps.csv").set_index("step")["status"]
     assert log["grains"] == "reused" and log["compare"] == "computed"  # the second pass only adds the comparison
     assert "recommended notch N1" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("command", ["map", "grains"])
+def test_every_command_that_reads_a_map_prints_what_the_reader_guessed(orix_map, tmp_path, capsys, command):
+    # issue 15 item 4: the warnings the study collects are printed by the single-step commands too
+    args = ["--info"] if command == "map" else ["--out", str(tmp_path / "out"), "--no-figures"]
+    rc = main([command, str(orix_map), *args])
+    assert rc == 0
+    err = capsys.readouterr().err
+    assert "warning [map]: the file has no quality property: quality was set to 1" in err
+    assert "guessed" in err

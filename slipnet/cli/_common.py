@@ -11,11 +11,12 @@ leaves the folder as it was, and ``manifest.json`` is written last.
 from __future__ import annotations
 
 import argparse
+import sys
 
 from slipnet.errors import ParameterError
 
-__all__ = ["Parents", "grain_graph_from_args", "out_folder", "output_run", "parents", "read_map_from_args",
-           "solve_local_stress"]
+__all__ = ["Parents", "grain_graph_from_args", "out_folder", "output_run", "parents", "print_warning",
+           "read_map_from_args", "solve_local_stress"]
 
 
 class Parents:
@@ -117,12 +118,20 @@ def output_run(args, *inputs, outputs=(), folder: str | bool | None = True, keep
                      break_lock=bool(getattr(args, "break_lock", False)), echo=print, keep=keep, revise=revise)
 
 
-def read_map_from_args(args, path: str):
-    """Read the map at ``path`` with the shared map options."""
-    from slipnet.io import read_map
+def print_warning(step: str, message: str) -> None:
+    """Tell the user on stderr what a step had to guess or could not do (the study report collects the same)."""
+    print(f"warning [{step}]: {message}", file=sys.stderr)
 
-    return read_map(path, frame_rotation=getattr(args, "frame_rotation", None),
+
+def read_map_from_args(args, path: str):
+    """Read the map at ``path`` with the shared map options; print what the reader had to guess."""
+    from slipnet.io import read_map
+    from slipnet.study.steps import map_warnings
+
+    omap = read_map(path, frame_rotation=getattr(args, "frame_rotation", None),
                     quality_prop=getattr(args, "quality_prop", None))
+    map_warnings(omap, print_warning)
+    return omap
 
 
 def grain_graph_from_args(args, path: str | None, *, progress: bool = False):

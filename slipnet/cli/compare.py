@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, output_run
+from slipnet.cli._common import grain_graph_from_args, output_run, print_warning
 
 
 def add(sub, parents) -> None:
@@ -64,7 +64,8 @@ def run(args) -> int:
         print(f"compare: registration {comp.transform.kind}, RMS residual {comp.transform.rms:.3g} µm "
               f"over {len(comp.transform.residuals)} control points")
     else:
-        print("compare: no control points given; strain and map frames taken as identical")
+        print_warning("compare", "no control points given: the strain map's frame is taken as equal to the "
+                      "orientation map's frame (give --control-points to register them)")
     for key in ("n_measured_peaks", "sites_f1", "grains_roc_auc", "path_mean_distance_um", "dips_hits"):
         if key in comp.scores:
             print(f"  {key}: {comp.scores[key]:.4g}")

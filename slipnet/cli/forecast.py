@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, output_run, solve_local_stress
+from slipnet.cli._common import grain_graph_from_args, output_run, print_warning, solve_local_stress
 from slipnet.errors import ParameterError
 
 
@@ -70,6 +70,9 @@ def run(args) -> int:
                             stress_field=None if args.mode == "map" and not args.cyclic else
                             solve_local_stress(args, gg.omap, args.stress))
         write_forecast(fc, run.folder, gg, figures=not args.no_figures)
+    from slipnet.study.steps import forecast_warnings
+
+    forecast_warnings("", fc, float(args.horizon), print_warning)
     out = run.folder
     print(f"forecast: path {fc.length_um:.1f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} "
           f"grains (stopped: {fc.stop_reason}), {len(fc.barriers)} barriers, {len(fc.sites)} sites; load axis "

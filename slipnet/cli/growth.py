@@ -6,7 +6,7 @@ import json
 from dataclasses import replace
 from pathlib import Path
 
-from slipnet.cli._common import output_run
+from slipnet.cli._common import output_run, print_warning
 from slipnet.errors import InputFileError, ParameterError
 
 
@@ -120,6 +120,9 @@ def _simulate(args):
     if args.record:
         rec = read_csv_table(args.record, ("crack_length_um", "cycles"), "growth record")
         fit = calibrate(rec["crack_length_um"], rec["cycles"], path, float(amplitude), initial=params)
+        if not fit.success:
+            print_warning("growth", f"the calibration did not converge ({fit.message}): the fitted constants are "
+                          "not reliable")
         params = fit.params
     res = simulate_growth(path, float(amplitude), params=params, initial_length=args.initial_length,
                           final_length=args.final_length, n_points=args.profile_points, samples=samples or 0,

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from slipnet.cli._common import grain_graph_from_args, name_value_pairs, output_run, read_map_from_args
+from slipnet.cli._common import grain_graph_from_args, name_value_pairs, output_run, print_warning, read_map_from_args
 from slipnet.errors import ParameterError
 
 
@@ -110,4 +110,7 @@ def _plan(args, st, plan_notch, run_study):
                       concentration="full_field" if args.full_field else "peterson",
                       scheduler=args.scheduler or "synchronous", workers=args.workers, progress=True,
                       allow_remote=args.scheduler is not None)
+    from slipnet.study.steps import notch_warnings
+
+    notch_warnings(plan, print_warning)
     return gg, plan

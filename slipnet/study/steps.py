@@ -262,7 +262,7 @@ def forecast_warnings(name: str, fc: CrackForecast, window_um: float, warn: Warn
     if fc.length_um < window_um and fc.stop_reason in ("map_edge", "unindexed", "blocked"):
         where = {"map_edge": "reaches the map edge", "unindexed": "runs into unindexed points",
                  "blocked": "is blocked (it would have to run along a boundary)"}[fc.stop_reason]
-        warn(f"forecast {name}", f"the forecast path {where} after {fc.length_um:.0f} µm, short of the "
+        warn(f"forecast {name}".strip(), f"the forecast path {where} after {fc.length_um:.0f} µm, short of the "
              f"{window_um:g} µm observation window: the map does not show what the crack meets beyond")
 
 
