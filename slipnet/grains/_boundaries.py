@@ -56,7 +56,7 @@ class Lines(NamedTuple):
     polylines: BoundaryPolylines
     ends_xy: np.ndarray  #: (nbd, 4) start x, y and end x, y of each boundary's longest line, µm
     n_lines: np.ndarray  #: (nbd,) lines per boundary
-    trace_length: np.ndarray  #: (nbd,) length along the midpoint polylines, µm
+    trace_length: np.ndarray  #: (nbd,) length along the smoothed midpoint polylines, µm
     n_chains: int
 
 
@@ -103,6 +103,26 @@ def boundary_misorientations(bnd: Boundaries, means: np.ndarray, gphase: np.ndar
     return angle, axis, bclass, deviation
 
 
+#: Half-width (points) of the moving average the trace length is measured along.
+TRACE_SMOOTHING = 4
+
+
+def _smoothed_chains(xy: np.ndarray, chain_off: np.ndarray, k: int) -> np.ndarray:
+    """Centred moving average of each chain's points over up to ``2k + 1`` points, end points kept.
+
+    The window shrinks symmetrically near a chain's ends, so no chain reads another's points.
+    """
+    n = xy.shape[0]
+    if n == 0 or k <= 0:
+        return xy
+    idx = np.arange(n)
+    chain = np.searchsorted(chain_off, idx, side="right") - 1
+    start, end = chain_off[chain], chain_off[chain + 1] - 1
+    h = np.minimum(np.minimum(idx - start, end - idx), k)
+    cs = np.vstack((np.zeros((1, 2)), np.cumsum(xy, axis=0)))
+    return (cs[idx + h + 1] - cs[idx - h]) / (2 * h + 1)[:, None]
+
+
 def boundary_lines(bnd: Boundaries, geo: EdgeGeometry, omap: OrientationMap) -> Lines:
     """Chain each boundary's cell edges through shared vertices into polylines (µm, map origin added)."""
     bid, nbd, mx, my, vxy = bnd.bid, bnd.n, geo.mx, geo.my, geo.vxy
@@ -138,9 +158,12 @@ def boundary_lines(bnd: Boundaries, geo: EdgeGeometry, omap: OrientationMap) -> 
     firstc = ordc[np.concatenate(([True], chain_b[ordc][1:] != chain_b[ordc][:-1]))] if n_chains else ordc
     ends_xy = np.column_stack((sxv[firstc], syv[firstc], exv[firstc], eyv[firstc])) + np.tile(omap.origin, 2)
     n_chain_per_b = np.diff(boundary_chains)
-    # length along the chained midpoint polylines: follows the boundary itself rather than the
-    # cell-edge staircase, so it is a less grid-biased length estimate
-    seg = np.hypot(*np.diff(xy, axis=0).T) if xy.shape[0] > 1 else np.zeros(0)
+    # length along the chained midpoint polylines, each first smoothed by a moving average over up
+    # to 2 * TRACE_SMOOTHING + 1 points (ends fixed): the raw midpoints zigzag on the grid, which
+    # overstates a straight boundary by up to 8 % on square and 15 % on hex grids; smoothed, every
+    # angle measures within about 1 % (tests/test_grains.py)
+    sm = _smoothed_chains(xy, chain_off, TRACE_SMOOTHING)
+    seg = np.hypot(*np.diff(sm, axis=0).T) if xy.shape[0] > 1 else np.zeros(0)
     seg_ok = np.ones(seg.size, dtype=bool)
     seg_ok[ps[1:] - 1] = False
     seg_chain = np.repeat(np.arange(n_chains), np.diff(chain_off))[:-1] if n_chains else np.zeros(0, np.int64)
