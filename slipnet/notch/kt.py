@@ -10,7 +10,7 @@ from slipnet.errors import ParameterError
 from slipnet.maps.notch import notch_mask
 from slipnet.notch.settings import Candidate, PlanSettings
 from slipnet.stress.elastic import solve_elastic
-from slipnet.stress.local import stress_concentration
+from slipnet.stress.local import edge_concentration
 
 __all__ = ["full_field_kt", "notch_stress_factor", "peterson_kt"]
 
@@ -96,8 +96,10 @@ def full_field_kt(gg, cand: Candidate, s: PlanSettings) -> float:
     The map gets a compliant margin beyond the notched edge (a free surface, see
     :func:`_padded_for_edge`) and the notch points become compliant; the solve
     (:func:`slipnet.stress.solve_elastic`, generalized plane strain, periodic cell, columnar grains)
-    runs at the nominal stress along the load axis, and K_t is the largest load-axis normal stress
-    over the applied one within one root radius (plus a step) of the root. Only valid for a
+    runs at the nominal stress along the load axis, and K_t is the edge value of the load-axis
+    normal stress over the applied one, fitted to the layers a short distance below the root
+    (:func:`slipnet.stress.edge_concentration`), which converges as the step shrinks where the
+    largest single point at the staircase edge does not. Only valid for a
     notch from a map side (normal along x or y); any other edge is refused.
     """
     n = np.array([cand.normal_x, cand.normal_y])
@@ -108,5 +110,5 @@ def full_field_kt(gg, cand: Candidate, s: PlanSettings) -> float:
     x, y = om.coordinates()
     om = om.select(~notch_mask(x, y, (cand.edge_x, cand.edge_y), n, s.notch, behind_um=om.step))
     field = solve_elastic(om, s.load_axis, stress=s.stress_amplitude, tol=1e-5, unindexed="compliant")
-    res = stress_concentration(field, cand.root_x, cand.root_y, s.notch.root_radius_um + om.step)
+    res = edge_concentration(field, cand.root_x, cand.root_y, s.notch.root_radius_um)
     return float(res["concentration"])

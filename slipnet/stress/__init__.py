@@ -29,6 +29,7 @@ from slipnet.stress.elastic import (
 )
 from slipnet.stress.local import (
     default_systems,
+    edge_concentration,
     grain_schmid_factors,
     grain_stress_table,
     local_resolved_shear,
@@ -49,6 +50,7 @@ __all__ = [
     "cyclic_assumptions",
     "default_systems",
     "directional_modulus",
+    "edge_concentration",
     "from_mandel",
     "grain_schmid_factors",
     "grain_stress_table",
