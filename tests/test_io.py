@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 import os
 import time
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -497,3 +498,44 @@ def test_from_orix_recovers_step_from_rounded_coordinates(grid, shape):
     back = from_orix(xm)
     assert back.grid == grid and back.shape == shape
     assert back.step == pytest.approx(0.1, rel=1e-6)
+
+
+def _readers():
+    from slipnet.io import read_csv_table, read_grain_graph, read_map, read_strain
+    from slipnet.io.study import read_study
+    from slipnet.study import read_study_file
+
+    return {
+        "map": read_map, "strain": read_strain, "graph": read_grain_graph, "study": read_study,
+        "study file": read_study_file, "table": lambda p: read_csv_table(p, ("x_um",), "sites"),
+    }
+
+
+@pytest.mark.parametrize("reader", ["map", "strain", "graph", "study", "study file", "table"])
+@pytest.mark.parametrize("kind", ["folder", "fifo", "device"])
+def test_readers_refuse_folders_pipes_and_devices_at_once(tmp_path, reader, kind):
+    # issue 18 item 1: a folder, a named pipe or /dev/zero given as a file is refused before it is
+    # opened (a FIFO would block the read, /dev/zero would never end); an alarm turns a hang into a failure
+    import os
+    import signal
+
+    if kind == "folder":
+        path, word = tmp_path / "a_folder.npz", "folder"
+        path.mkdir()
+    elif kind == "fifo":
+        if not hasattr(os, "mkfifo"):
+            pytest.skip("no named pipes on this platform")
+        path, word = tmp_path / "pipe.txt", "FIFO"
+        os.mkfifo(path)
+    else:
+        path, word = Path("/dev/zero"), "device"
+        if not path.exists():
+            pytest.skip("no /dev/zero on this platform")
+    old = signal.signal(signal.SIGALRM, lambda *a: pytest.fail(f"{reader} reader hung on a {kind}"))
+    signal.alarm(20)
+    try:
+        with pytest.raises(InputFileError, match=word):
+            _readers()[reader](path)
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)

@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from slipnet._files import atomic_path
+from slipnet._inputs import checked_input
 from slipnet.crystal.orientation import quat_from_axis_angle
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._bundle import ZIP_MAGIC, read_bundle, write_bundle
@@ -153,8 +154,9 @@ def read_map(
         Missing, empty, damaged or malformed file (naming file, line and column and the fix).
     """
     p = Path(path)
-    if not p.is_file():
+    if not p.exists():
         raise InputFileError("no such file; check the path", path=str(p))
+    checked_input(p, "orientation map")
     rot = None if frame_rotation is None else parse_frame_rotation(frame_rotation)
     kind = _sniff(p)
     if kind == "empty":

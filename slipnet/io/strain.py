@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._files import atomic_path
+from slipnet._inputs import checked_input
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.maps.strain import DISPLACEMENT_COMPONENTS, STRAIN_COMPONENTS, StrainSeries
 
@@ -316,8 +317,9 @@ def read_strain(path: str | os.PathLike) -> StrainSeries:
         components, units that do not fit the quantity, unparsable values.
     """
     path = Path(path)
-    if not path.is_file():
+    if not path.exists():
         raise InputFileError("no such file", path=str(path))
+    checked_input(path, "strain file")
     kind = _kind_of(path)
     if kind == "npz":
         return _read_npz(path)

@@ -24,6 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
+from slipnet._inputs import checked_input
 from slipnet.errors import InputFileError
 
 __all__ = ["Study", "read_study"]
@@ -63,8 +64,9 @@ def read_study(path: str | os.PathLike) -> Study:
         For a missing or malformed file, an unknown section or key, or a missing map file.
     """
     p = Path(path)
-    if not p.is_file():
+    if not p.exists():
         raise InputFileError("study file not found; give the path of a TOML study file", path=str(p))
+    checked_input(p, "study file")
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:

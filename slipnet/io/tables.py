@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from slipnet._inputs import checked_input
 from slipnet.columns import SEGMENT_XY
 from slipnet.errors import InputFileError
 
@@ -29,8 +30,9 @@ class ForecastTables:
 def read_csv_table(path: str | os.PathLike, required: tuple[str, ...], what: str) -> pd.DataFrame:
     """Read a CSV table and check that it has the ``required`` columns (numeric where named)."""
     path = Path(path)
-    if not path.is_file():
+    if not path.exists():
         raise InputFileError(f"{what} not found (no such file)", path=str(path))
+    checked_input(path, f"{what} table")
     try:
         t = pd.read_csv(path, comment="#")
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:

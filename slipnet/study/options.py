@@ -37,6 +37,7 @@ from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 
 from slipnet._files import atomic_path
+from slipnet._inputs import checked_input
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.maps.notch import SIDES
 
@@ -270,8 +271,9 @@ def read_study_file(path: str | os.PathLike) -> StudyOptions:
         input file that does not exist.
     """
     p = Path(path)
-    if not p.is_file():
+    if not p.exists():
         raise InputFileError("study file not found; give the path of a TOML study file", path=str(p))
+    checked_input(p, "study file")
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
