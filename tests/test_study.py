@@ -318,3 +318,26 @@ def test_every_command_that_reads_a_map_prints_what_the_reader_guessed(orix_map,
     err = capsys.readouterr().err
     assert "warning [map]: the file has no quality property: quality was set to 1" in err
     assert "guessed" in err
+
+
+@pytest.mark.parametrize(("part", "message"), [
+    ({"forecast": ForecastOptions(samples=10**18)},
+     r"forecast samples should lie between 0 and 10000; got 1000000000000000000"),
+    ({"notch": NotchOptions(edges=("right",), root_radius_um=float("nan"))},
+     r"notch root_radius_um should lie between"),
+    ({"growth": GrowthOptions(n_points=2.5)}, r"growth n_points should be a whole number between 10 and 1e\+06"),
+    ({"load": LoadOptions(axis=(0.0, 1.0, 0.0), stress_amplitude_mpa=1e9)}, r"load stress_amplitude_mpa .* 100000"),
+])
+def test_every_study_number_is_range_checked_before_any_work(orix_map, tmp_path, part, message):
+    # issue 18 item 2: a typing slip in a study file stops at once, naming the option and its limits
+    with pytest.raises(ParameterError, match=message):
+        run_study(_opts(orix_map, **part), tmp_path / "out")
+    assert not (tmp_path / "out").exists()
+
+
+def test_a_study_file_with_a_huge_count_is_refused(orix_map, tmp_path):
+    text = study_file_text(_opts(orix_map)).replace("samples = 0", "samples = 1000000000000000000", 1)
+    path = tmp_path / "study.toml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(ParameterError, match=r"samples should lie between 0 and 10000"):
+        read_study_file(path).check()

@@ -186,7 +186,7 @@ class StudyOptions:
         Raises
         ------
         ParameterError
-            A missing map or load axis, a bad edge, a non-positive count.
+            A missing map or load axis, a bad edge, a number outside its range (:data:`RANGES`).
         """
         if not self.map.path:
             raise ParameterError("study: give the orientation map (MAP on the command line or [specimen] map "
@@ -195,6 +195,7 @@ class StudyOptions:
         if len(axis) != 3 or not all(math.isfinite(float(v)) for v in axis) or not any(float(v) for v in axis):
             raise ParameterError("study: give the load axis as three numbers in the map frame (--load-axis X Y Z "
                                  f"or [loading] axis = [x, y, z]); got {list(axis)}")
+        _check_ranges(self)
         if not self.notch.edges:
             raise ParameterError("study: give at least one edge to notch (--side, --edge or [candidates] edges)")
         for e in self.notch.edges:
@@ -241,6 +242,51 @@ _FILE_KEYS: dict[tuple[str, str], tuple[str, str]] = {
 }
 _PATH_KEYS = {("map", "path"), ("compare", "strain"), ("compare", "control_points"), ("compare", "crack_path"),
               ("compare", "growth_record")}
+
+
+#: Accepted range of every number a study takes: (section, option) -> (low, high, integer).
+#: Bounds keep a typing slip (``samples = 1e18``, a size in nm) from becoming a run that never
+#: ends or a request for more memory than any machine has; each is far beyond practical use.
+RANGES: dict[tuple[str, str], tuple[float, float, bool]] = {
+    ("grains", "min_grain_size"): (1, 10**6, True),
+    ("load", "stress_amplitude_mpa"): (1e-3, 1e5, False),
+    ("load", "stress_ratio"): (-10.0, 0.99, False),
+    ("stress", "tol"): (1e-12, 0.1, False),
+    ("notch", "spacing_um"): (1e-3, 1e6, False),
+    ("notch", "depth_um"): (1e-3, 1e6, False),
+    ("notch", "root_radius_um"): (1e-3, 1e6, False),
+    ("notch", "opening_deg"): (0.0, 179.0, False),
+    ("notch", "window_um"): (1e-3, 1e6, False),
+    ("notch", "top_k"): (1, 1000, True),
+    ("notch", "samples"): (0, 10_000, True),
+    ("notch", "orientation_noise_deg"): (0.0, 90.0, False),
+    ("notch", "load_misalignment_deg"): (0.0, 90.0, False),
+    ("notch", "position_error_um"): (0.0, 1e6, False),
+    ("notch", "seed"): (0, 2**63 - 1, True),
+    ("notch", "workers"): (1, 1024, True),
+    ("forecast", "candidates"): (1, 50, True),
+    ("forecast", "horizon_um"): (1e-3, 1e6, False),
+    ("forecast", "samples"): (0, 10_000, True),
+    ("forecast", "seed"): (0, 2**63 - 1, True),
+    ("forecast", "boundary_inclination_deg"): (0.0, 90.0, False),
+    ("growth", "n_points"): (10, 10**6, True),
+    ("growth", "strength_scatter"): (0.0, 10.0, False),
+    ("compare", "notch"): (1, 50, True),
+}
+
+
+def _check_ranges(opts) -> None:
+    """Refuse any number outside :data:`RANGES`, naming the option, the limits and the value."""
+    for (sec, key), (lo, hi, integer) in RANGES.items():
+        v = getattr(getattr(opts, sec), key)
+        if v is None:
+            continue
+        if isinstance(v, bool) or not isinstance(v, (int, float)):
+            raise ParameterError(f"study: {sec} {key} should be a number; got {v!r}")
+        if integer and not float(v).is_integer():
+            raise ParameterError(f"study: {sec} {key} should be a whole number between {lo:g} and {hi:g}; got {v!r}")
+        if not (math.isfinite(float(v)) and lo <= v <= hi):
+            raise ParameterError(f"study: {sec} {key} should lie between {lo:g} and {hi:g}; got {v!r}")
 
 
 def _is_point(q) -> bool:
