@@ -539,3 +539,20 @@ def test_readers_refuse_folders_pipes_and_devices_at_once(tmp_path, reader, kind
     finally:
         signal.alarm(0)
         signal.signal(signal.SIGALRM, old)
+
+
+def test_a_text_map_declaring_an_impossible_grid_is_refused_before_allocating(tmp_path):
+    # issue 18 item 1: the grid a text map declares (nx, ny in its header) is checked against the
+    # memory budget before anything of that size is allocated (a far-off point is refused as
+    # outside the declared grid before that)
+    from slipnet.synthetic import make_specimen
+
+    src = tmp_path / "small.txt"
+    write_map(make_specimen((3, 4), 1.0, grain_size_um=2.0, seed=1).omap, src)
+    lines = src.read_text(encoding="utf-8").splitlines()
+    lines = [("# nx = 100000000" if ln.startswith("# nx =") else "# ny = 1000000" if ln.startswith("# ny =")
+              else ln) for ln in lines]
+    bomb = tmp_path / "bomb.txt"
+    bomb.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    with pytest.raises(InputFileError, match="memory budget"):
+        read_map(bomb)

@@ -12,6 +12,7 @@ from collections.abc import Callable
 
 import numpy as np
 
+from slipnet._inputs import check_allocation
 from slipnet.errors import InputFileError
 
 __all__ = ["GridPlacement", "detect_grid", "place_points"]
@@ -19,6 +20,10 @@ __all__ = ["GridPlacement", "detect_grid", "place_points"]
 # A point may sit this fraction of a step away from its grid node and still count as on the grid:
 # text files print positions to 1e-6 µm and orix files carry float32 coordinates.
 _REL_TOL = 1e-3
+
+
+#: Bytes a reader allocates per grid point (placement, quaternions, phase, quality, flags).
+_BYTES_PER_POINT = 64
 
 
 class GridPlacement:
@@ -171,6 +176,9 @@ def place_points(
             path=path,
             line=line,
         )
+    # the grid a file's coordinates declare is allocated below and again for the map's arrays
+    # (quaternions, phase, quality, flags: about 64 bytes a point): refuse an impossible one first
+    check_allocation(float(ny) * float(nx), _BYTES_PER_POINT, f"a {ny} × {nx} point grid", path=path)
     flat = i * nx + j
     counts = np.bincount(flat, minlength=ny * nx)
     if counts.max() > 1:
