@@ -17,13 +17,13 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1] / "slipnet"
 
 #: The pipeline order: a module may import from its own layer and the ones before it.
-#: "" is the base (errors, cautions, shared checks, file writing, progress, column names).
+#: "" is the base (errors, cautions, shared checks, the input guard, file writing, progress, column names).
 LAYERS: tuple[str, ...] = (
     "", "crystal", "maps", "io", "synthetic", "grains", "stress", "slip", "forecast", "growth",
     "notch", "compare", "validation", "figures", "reports", "study", "demo", "cli",
 )
 #: Private modules of the base layer that every step may use (their public names only).
-SHARED_PRIVATE = {"slipnet._checks", "slipnet._files", "slipnet._progress"}
+SHARED_PRIVATE = {"slipnet._checks", "slipnet._files", "slipnet._inputs", "slipnet._progress"}
 
 
 def _module_name(path: Path) -> str:
