@@ -1,8 +1,15 @@
 import os
+from pathlib import Path
 
 from hypothesis import settings
 
 os.environ.setdefault("MPLBACKEND", "Agg")
+
+# numba's kernel cache for the test session (and the subprocesses it starts) lives in the
+# checkout, so a clean clone starts cold and never loads a cache an earlier run left in a shared
+# folder: a stale cached orix gufunc loaded that way segfaulted CI. numba reads the variable on
+# every compile, so setting it here, before any test compiles, is in time. A set value is kept.
+os.environ.setdefault("NUMBA_CACHE_DIR", str(Path(__file__).resolve().parents[1] / ".numba-cache"))
 
 # Property tests are derandomised by default: every run (CI or local) tries the same examples, so
 # a failure is reproducible and a green run is not luck. HYPOTHESIS_PROFILE=dev gives random
