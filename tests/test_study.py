@@ -78,12 +78,19 @@ def _parse(html: str) -> _Cells:
 
 @pytest.fixture(scope="module")
 def orix_map(tmp_path_factory) -> Path:
-    """A synthetic map written by orix's own writer (an .ang file: no quality, no space group)."""
+    """A synthetic map written by orix's own writer (its HDF5 format), stripped as a lab file may
+    come: no quality property, phases with a point group but no space group."""
     from slipnet.io import to_orix
 
     spec = make_specimen((70, 90), 2.0, grain_size_um=25.0, seed=3, load_axis=(0.0, 1.0, 0.0))
-    path = tmp_path_factory.mktemp("map") / "coupon.ang"
-    orix_io.save(str(path), to_orix(spec.omap), overwrite=True)
+    xmap = to_orix(spec.omap)
+    for name in list(xmap.prop.keys()):
+        del xmap.prop[name]
+    for _, phase in xmap.phases:
+        phase.space_group = None
+        phase.point_group = "m-3m"
+    path = tmp_path_factory.mktemp("map") / "coupon.h5"
+    orix_io.save(str(path), xmap, overwrite=True)
     return path
 
 
@@ -139,7 +146,7 @@ def test_report_holds_every_section_real_numbers_and_the_recommendation(study):
 def test_warnings_are_printed_and_collected_at_the_top(study):
     out, err = study
     html = (out / "report.html").read_text(encoding="utf-8")
-    # the .ang file has no quality property and no space group: both guesses are told and reported
+    # the file has no quality property and no space group: both guesses are told and reported
     assert "quality was set to 1" in err and "guessed" in err
     warn_section = html.split('id="warnings"')[1].split("</section>")[0]
     assert "quality was set to 1" in warn_section and "guessed" in warn_section
@@ -191,9 +198,9 @@ def _nothing_half_written(out: Path) -> None:
 
 
 def test_bad_input_stops_at_the_step_naming_file_and_fix(orix_map, tmp_path):
-    bad = tmp_path / "broken.ang"
+    bad = tmp_path / "broken.txt"
     bad.write_text("# not a map\n1 2 3\n", encoding="utf-8")
-    with pytest.raises(InputFileError, match=r"step 'map' \(map file .*broken\.ang\).*run the study again"):
+    with pytest.raises(InputFileError, match=r"step 'map' \(map file .*broken\.txt\).*run the study again"):
         run_study(_opts(bad), tmp_path / "a")
     _nothing_half_written(tmp_path / "a")
     with pytest.raises(ParameterError, match=r"step 'grains'.*threshold"):
@@ -232,14 +239,14 @@ def test_study_file_round_trip_and_old_notch_study_files(tmp_path, orix_map):
     assert read_study_file(p) == opts
     # a notch study file of 'slipnet notch --study' is a study file too (its map put beside it here)
     text = (ROOT / "examples" / "notch" / "study.toml").read_text(encoding="utf-8")
-    (tmp_path / "coupon.ang").write_bytes(Path(orix_map).read_bytes())
-    (tmp_path / "old.toml").write_text(re.sub(r'map = ".*"', 'map = "coupon.ang"', text), encoding="utf-8")
+    (tmp_path / "coupon.h5").write_bytes(Path(orix_map).read_bytes())
+    (tmp_path / "old.toml").write_text(re.sub(r'map = ".*"', 'map = "coupon.h5"', text), encoding="utf-8")
     old = read_study_file(tmp_path / "old.toml")
-    assert old.map.path == str((tmp_path / "coupon.ang").resolve())
+    assert old.map.path == str((tmp_path / "coupon.h5").resolve())
     assert old.load.axis == (0.0, 1.0, 0.0) and old.load.stress_amplitude_mpa == 220
     bad = tmp_path / "bad.toml"
-    bad.write_text('[specimen]\nmap = "nowhere.ang"\n[loading]\naxis = [0, 1, 0]\n', encoding="utf-8")
-    with pytest.raises(InputFileError, match=r"nowhere\.ang.*does not exist"):
+    bad.write_text('[specimen]\nmap = "nowhere.h5"\n[loading]\naxis = [0, 1, 0]\n', encoding="utf-8")
+    with pytest.raises(InputFileError, match=r"nowhere\.h5.*does not exist"):
         read_study_file(bad)
     bad.write_text('[forecast]\ncandidate = 3\n[loading]\naxis = [0, 1, 0]\n', encoding="utf-8")
     with pytest.raises(InputFileError, match="unknown key 'candidate' in \\[forecast\\]"):
