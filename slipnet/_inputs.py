@@ -21,7 +21,7 @@ from pathlib import Path
 
 from slipnet.errors import InputFileError, ParameterError
 
-__all__ = ["DEFAULT_MAX_INPUT_BYTES", "check_allocation", "checked_input", "max_input_bytes",
+__all__ = ["DEFAULT_MAX_INPUT_BYTES", "check_allocation", "check_npz_sizes", "checked_input", "max_input_bytes",
            "memory_budget", "parse_bytes"]
 
 #: Default largest input file, in bytes (64 GiB): far above any map a laboratory exports, small
@@ -210,3 +210,48 @@ def check_allocation(n_items: float, itemsize: int, what: str, *, path: str | os
                              "read as µm makes a grid 10⁶ times too large), or, if the size is genuine, raise "
                              "the budget with SLIPNET_MEMORY_BUDGET (e.g. 64G)", path=where)
     return int(n)
+
+
+def check_npz_sizes(path: str | os.PathLike, what: str = "npz archive", *,
+                    budget: int | str | None = None) -> None:
+    """Refuse an ``.npz`` archive whose arrays declare more memory than the budget, before loading.
+
+    Every member's ``.npy`` header (shape and dtype) is read from the zip without reading its data,
+    so an archive that declares a huge array in a few bytes (an "npz bomb") is refused with the
+    numbers instead of failing in the allocation. Members that are not arrays, or headers that
+    cannot be read, are left to the loader, which reports them.
+
+    Raises
+    ------
+    InputFileError
+        The declared arrays together exceed the memory budget (see :func:`memory_budget`).
+    """
+    import zipfile
+
+    import numpy as np
+    from numpy.lib import format as npy
+
+    total, count, big_n, big = 0.0, 0, -1.0, ("", ())
+    try:
+        with zipfile.ZipFile(path) as zf:
+            for info in zf.infolist():
+                if not info.filename.endswith(".npy"):
+                    continue
+                with zf.open(info) as fh:
+                    try:
+                        version = npy.read_magic(fh)
+                        reader = {(1, 0): npy.read_array_header_1_0, (2, 0): npy.read_array_header_2_0}.get(version)
+                        if reader is None:
+                            continue
+                        shape, _, dtype = reader(fh)
+                    except (ValueError, OSError, EOFError, SyntaxError):
+                        continue
+                n = float(np.prod([float(s) for s in shape])) if shape else 1.0
+                total += n * max(int(dtype.itemsize), 1)
+                count += 1
+                if n > big_n:
+                    big_n, big = n, (info.filename[:-4], tuple(int(s) for s in shape))
+    except (zipfile.BadZipFile, OSError, EOFError, ValueError):
+        return  # not a readable zip: the loader names the damage
+    check_allocation(total, 1, f"{count} arrays (the largest, {big[0]!r}, of shape {big[1]}) in the {what}",
+                     path=path, budget=budget)

@@ -556,3 +556,31 @@ def test_a_text_map_declaring_an_impossible_grid_is_refused_before_allocating(tm
     bomb.write_text("\n".join(lines) + "\n", encoding="utf-8")
     with pytest.raises(InputFileError, match="memory budget"):
         read_map(bomb)
+
+
+def _npz_bomb(path: Path, members: tuple[str, ...]) -> Path:
+    """An .npz whose members declare (10⁶, 10⁶, 4) float64 arrays (32 TB) in a few bytes each."""
+    import io
+    import zipfile
+
+    from numpy.lib import format as npy
+
+    with zipfile.ZipFile(path, "w") as zf:
+        for name in members:
+            buf = io.BytesIO()
+            npy.write_array_header_1_0(buf, {"descr": "<f8", "fortran_order": False, "shape": (10**6, 10**6, 4)})
+            zf.writestr(f"{name}.npy", buf.getvalue() + b"\0" * 64)
+    return path
+
+
+@pytest.mark.parametrize("reader", ["map", "strain", "graph"])
+def test_npz_bombs_are_refused_from_their_headers_before_loading(tmp_path, reader):
+    # issue 18 item 1: the shapes an archive declares are checked against the memory budget before
+    # numpy allocates them (a MemoryError or a hang before)
+    from slipnet.io import read_grain_graph, read_strain
+
+    bomb = _npz_bomb(tmp_path / "bomb.npz", ("quats", "header", "graph_meta", "bundle_format"))
+    read = {"map": read_map, "strain": read_strain, "graph": read_grain_graph}[reader]
+    with pytest.raises(InputFileError, match=r"memory budget.*SLIPNET_MEMORY_BUDGET") as err:
+        read(bomb)
+    assert "(1000000, 1000000, 4)" in str(err.value)

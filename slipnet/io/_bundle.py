@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
+from slipnet._inputs import check_npz_sizes
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._text import json_default
 from slipnet.maps.orientation_map import OrientationMap, Phase
@@ -79,6 +80,7 @@ def write_bundle(omap: OrientationMap, tmp: Path) -> None:
 def read_bundle(path: str | os.PathLike) -> OrientationMap:
     """Read a slipnet bundle; raise :class:`InputFileError` when it is not one or is damaged."""
     path = str(path)
+    check_npz_sizes(path, "map bundle")
     try:
         # our own file handle: numpy leaves its handle open when the archive is damaged
         with open(path, "rb") as fh, np.load(fh, allow_pickle=False) as npz:

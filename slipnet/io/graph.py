@@ -27,7 +27,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._files import atomic_path
-from slipnet._inputs import checked_input
+from slipnet._inputs import check_npz_sizes, checked_input
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._bundle import KEYS as MAP_KEYS
 from slipnet.io._bundle import map_arrays, map_from_arrays
@@ -140,6 +140,7 @@ def read_grain_graph(path: str | os.PathLike) -> GrainGraph:
         raise InputFileError("saved grain graph not found; give a file written by 'slipnet forecast --save-graph' "
                              "or slipnet.io.write_grain_graph", path=p)
     checked_input(p, "saved grain graph")
+    check_npz_sizes(p, "saved grain graph")
     try:
         with open(p, "rb") as fh, np.load(fh, allow_pickle=False) as npz:
             names = set(npz.files)

@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._files import atomic_path
-from slipnet._inputs import checked_input
+from slipnet._inputs import check_npz_sizes, checked_input
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.maps.strain import DISPLACEMENT_COMPONENTS, STRAIN_COMPONENTS, StrainSeries
 
@@ -249,6 +249,7 @@ def _read_text(path: Path) -> StrainSeries:
 
 
 def _read_npz(path: Path) -> StrainSeries:
+    check_npz_sizes(path, "strain bundle")
     try:
         with np.load(path, allow_pickle=False) as data:
             arrays = {k: data[k] for k in data.files}
