@@ -223,8 +223,6 @@ def stress_concentration(field: StressField, x_um: float, y_um: float, radius_um
             "mean_concentration": float(k[inside].mean()), "n_points": int(inside.sum())}
 
 
-
-
 def _edge_shape(t: np.ndarray, shape: str) -> np.ndarray:
     """Decay of the stress excess ahead of a rounded edge, ``(σ/σ_applied − 1) / (K_t − 1)`` at depth t = s/ρ.
 
