@@ -15,14 +15,21 @@ memory (common practice: leave room for the copies a computation makes of its in
 
 from __future__ import annotations
 
+import functools
+import json
 import os
+import re
 import stat
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
+from typing import TypeVar
 
 from slipnet.errors import InputFileError, ParameterError
 
-__all__ = ["DEFAULT_MAX_INPUT_BYTES", "check_allocation", "check_npz_sizes", "checked_input", "max_input_bytes",
-           "memory_budget", "parse_bytes"]
+__all__ = ["DEFAULT_MAX_INPUT_BYTES", "MAX_NESTING", "check_allocation", "check_nesting", "check_npz_sizes",
+           "checked_input", "guarded_reader", "loads_json", "max_input_bytes", "memory_budget", "parse_bytes",
+           "reading"]
 
 #: Default largest input file, in bytes (64 GiB): far above any map a laboratory exports, small
 #: enough to stop an endless stream such as a device read through a symbolic link.
@@ -244,14 +251,125 @@ def check_npz_sizes(path: str | os.PathLike, what: str = "npz archive", *,
                         if reader is None:
                             continue
                         shape, _, dtype = reader(fh)
-                    except (ValueError, OSError, EOFError, SyntaxError):
+                    except Exception:  # an unreadable header is left to the loader
                         continue
                 n = float(np.prod([float(s) for s in shape])) if shape else 1.0
                 total += n * max(int(dtype.itemsize), 1)
                 count += 1
                 if n > big_n:
                     big_n, big = n, (info.filename[:-4], tuple(int(s) for s in shape))
-    except (zipfile.BadZipFile, OSError, EOFError, ValueError):
-        return  # not a readable zip: the loader names the damage
+    except Exception:  # a zip too damaged to list (any library error): the loader names it
+        return
     check_allocation(total, 1, f"{count} arrays (the largest, {big[0]!r}, of shape {big[1]}) in the {what}",
                      path=path, budget=budget)
+
+
+#: Deepest nesting of brackets accepted in a JSON or TOML text read from a file. Our own files
+#: nest at most four levels; the bound keeps a crafted "[[[[…" from exhausting Python's stack.
+MAX_NESTING = 64
+
+_QUOTED = re.compile(r'"(?:[^"\\\n]|\\.)*"' + r"|'[^'\n]*'")
+
+
+def check_nesting(text: str, what: str, *, path: str | os.PathLike | None = None,
+                  limit: int = MAX_NESTING) -> None:
+    """Refuse a JSON or TOML ``text`` whose brackets nest deeper than ``limit``, before parsing it.
+
+    Quoted strings are skipped, so brackets inside values do not count.
+
+    Raises
+    ------
+    InputFileError
+        The text nests deeper than ``limit`` levels.
+
+    Examples
+    --------
+    >>> check_nesting('{"a": [1, "[[["]}', "header")
+    >>> check_nesting("[" * 100 + "]" * 100, "header")
+    Traceback (most recent call last):
+    ...
+    slipnet.errors.InputFileError: the header nests brackets 100 levels deep, more than the 64 ...
+    """
+    if text.count("[") + text.count("{") <= limit:
+        return
+    import numpy as np
+
+    bare = _QUOTED.sub("", text)
+    codes = np.frombuffer(bare.encode("utf-8", "replace"), dtype=np.uint8)
+    step = np.zeros(codes.shape, dtype=np.int32)
+    step[(codes == ord("[")) | (codes == ord("{"))] = 1
+    step[(codes == ord("]")) | (codes == ord("}"))] = -1
+    depth = int(np.cumsum(step).max(initial=0))
+    if depth > limit:
+        raise InputFileError(f"the {what} nests brackets {depth} levels deep, more than the {limit} slipnet reads; "
+                             "the file is damaged or was not written for slipnet",
+                             path=None if path is None else str(path))
+
+
+def loads_json(text: str, what: str, *, path: str | os.PathLike | None = None):
+    """``json.loads(text)`` with bounded nesting; a malformed text raises :class:`InputFileError`.
+
+    Examples
+    --------
+    >>> loads_json('{"step": 0.5}', "header")
+    {'step': 0.5}
+    """
+    check_nesting(text, what, path=path)
+    try:
+        return json.loads(text)
+    except (ValueError, RecursionError) as err:
+        raise InputFileError(f"the {what} is not valid JSON ({err}); the file is damaged or was not written "
+                             "for slipnet", path=None if path is None else str(path)) from err
+
+
+@contextmanager
+def reading(path: str | os.PathLike, what: str, fix: str = "check that it is the file you meant and export "
+            "it again") -> Iterator[None]:
+    """Turn any library failure while reading ``path`` into :class:`InputFileError`.
+
+    The project's own errors pass through unchanged. Anything else a library raises on a damaged
+    or unexpected file (a bad zip, a truncated TIFF, a decoding error, a recursion or memory
+    error, an index out of range in a malformed table) becomes an :class:`InputFileError` naming
+    the file, the library's complaint and ``fix``; the original is kept as ``__cause__``.
+
+    Examples
+    --------
+    >>> with reading("m.npz", "map bundle"):
+    ...     raise EOFError("truncated")
+    Traceback (most recent call last):
+    ...
+    slipnet.errors.InputFileError: file m.npz: the map bundle could not be read (EOFError: truncated); ...
+    """
+    from slipnet.errors import SlipnetError
+
+    try:
+        yield
+    except SlipnetError:
+        raise
+    except RecursionError as err:
+        raise InputFileError(f"the {what} nests too deeply to read (RecursionError); the file is damaged or was "
+                             "not written for this reader", path=str(path)) from err
+    except MemoryError as err:
+        raise InputFileError(f"the {what} needs more memory than this machine has (MemoryError); check the sizes, "
+                             "step and units it declares, or read it on a larger machine", path=str(path)) from err
+    except Exception as err:  # every library failure becomes the project's error
+        detail = str(err).strip().splitlines()[0][:200] if str(err).strip() else "no detail"
+        raise InputFileError(f"the {what} could not be read ({type(err).__name__}: {detail}); the file is damaged "
+                             f"or not in the format its name says: {fix}", path=str(path)) from err
+
+
+_F = TypeVar("_F", bound=Callable)
+
+
+def guarded_reader(what: str, fix: str | None = None) -> Callable[[_F], _F]:
+    """Decorate a reader whose first argument is a path so that it raises only the project's errors.
+
+    See :func:`reading`. The wrapped function keeps its name, signature and docstring.
+    """
+    def wrap(fn: _F) -> _F:
+        @functools.wraps(fn)
+        def reader(path, *args, **kwargs):
+            with reading(path, what, *(() if fix is None else (fix,))):
+                return fn(path, *args, **kwargs)
+        return reader  # type: ignore[return-value]
+    return wrap

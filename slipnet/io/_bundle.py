@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from slipnet._inputs import check_npz_sizes
+from slipnet._inputs import check_npz_sizes, guarded_reader, loads_json
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._text import json_default
 from slipnet.maps.orientation_map import OrientationMap, Phase
@@ -77,6 +77,7 @@ def write_bundle(omap: OrientationMap, tmp: Path) -> None:
         np.savez_compressed(fh, **arrays)
 
 
+@guarded_reader("map bundle", "write bundles with slipnet.io.write_map")
 def read_bundle(path: str | os.PathLike) -> OrientationMap:
     """Read a slipnet bundle; raise :class:`InputFileError` when it is not one or is damaged."""
     path = str(path)
@@ -121,7 +122,7 @@ def read_bundle(path: str | os.PathLike) -> OrientationMap:
 def map_from_arrays(d, path: str) -> OrientationMap:
     """The map held by bundle entries ``d`` (a mapping of :data:`KEYS`); errors name ``path``."""
     try:
-        meta = json.loads(str(d["meta_json"]))
+        meta = loads_json(str(d["meta_json"]), "bundle metadata", path=path)
         if not isinstance(meta, dict):
             raise ValueError("meta_json is not a JSON object")
         phases = tuple(

@@ -27,7 +27,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._files import atomic_path
-from slipnet._inputs import check_npz_sizes, checked_input
+from slipnet._inputs import check_npz_sizes, checked_input, guarded_reader, loads_json
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._bundle import KEYS as MAP_KEYS
 from slipnet.io._bundle import map_arrays, map_from_arrays
@@ -126,6 +126,7 @@ def _flatten_polylines(polylines) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return xy, np.concatenate([[0], np.cumsum(sizes)]), np.concatenate([[0], np.cumsum(counts)])
 
 
+@guarded_reader("saved grain graph", "save the graph again with 'slipnet forecast --save-graph'")
 def read_grain_graph(path: str | os.PathLike) -> GrainGraph:
     """Read a grain graph saved by :func:`write_grain_graph`.
 
@@ -147,7 +148,9 @@ def read_grain_graph(path: str | os.PathLike) -> GrainGraph:
             if "graph_meta" not in names:
                 raise InputFileError(f"not a slipnet saved grain graph (no 'graph_meta' entry); save graphs with "
                                      f"'slipnet forecast --save-graph' ({GRAPH_FORMAT} files)", path=p)
-            meta = json.loads(str(npz["graph_meta"]))
+            meta = loads_json(str(npz["graph_meta"]), "saved graph metadata", path=p)
+            if not isinstance(meta, dict):
+                raise InputFileError("the saved graph metadata is not a JSON object; save the graph again", path=p)
             if meta.get("format") != GRAPH_FORMAT:
                 raise InputFileError(f"format should be {GRAPH_FORMAT!r}; got {meta.get('format')!r}", path=p)
             if meta.get("version") != GRAPH_VERSION:
@@ -176,7 +179,7 @@ def read_grain_graph(path: str | os.PathLike) -> GrainGraph:
                 v = d[f"t.{name}.{i}"]
                 data[col] = v.astype(object) if dtype == "str" else v.astype(dtype)
             tables[name] = pd.DataFrame(data, columns=[c for c, _ in cols])
-        graph = nx.node_link_graph(json.loads(str(d["graph_json"])), edges="edges")
+        graph = nx.node_link_graph(loads_json(str(d["graph_json"]), "saved graph links", path=p), edges="edges")
         gg = GrainGraph(
             omap=omap, labels=d["labels"], graph=graph, grains=tables["grains"], boundaries=tables["boundaries"],
             triple_junctions=tables["triple_junctions"], mean_quats=d["mean_quats"],

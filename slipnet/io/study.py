@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-from slipnet._inputs import checked_input
+from slipnet._inputs import check_nesting, checked_input, guarded_reader
 from slipnet.errors import InputFileError
 
 __all__ = ["Study", "read_study"]
@@ -55,6 +55,7 @@ class Study:
         return Study(self.path, Path(map_path), self.grain_options, self.plan_options)
 
 
+@guarded_reader("study file", "check its TOML against the keys listed in the study-file documentation")
 def read_study(path: str | os.PathLike) -> Study:
     """Read and check a TOML study file (see the module docstring for its keys).
 
@@ -68,7 +69,9 @@ def read_study(path: str | os.PathLike) -> Study:
         raise InputFileError("study file not found; give the path of a TOML study file", path=str(p))
     checked_input(p, "study file")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
+        text = p.read_text(encoding="utf-8")
+        check_nesting(text, "study file", path=p)
+        data = tomllib.loads(text)
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
         raise InputFileError(f"not a valid TOML study file ({err})", path=str(p)) from err
     for sec, val in data.items():

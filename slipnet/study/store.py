@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._files import atomic_path
+from slipnet._inputs import guarded_reader, loads_json
 from slipnet.compare.comparison import Comparison
 from slipnet.compare.registration import Transform
 from slipnet.crystal.slip_systems import SlipSystems
@@ -171,6 +172,7 @@ def save_object(obj, path: str | os.PathLike) -> Path:
     return path
 
 
+@guarded_reader("stored study step", "delete it and run again")
 def load_object(path: str | os.PathLike):
     """Load what :func:`save_object` saved.
 
@@ -186,7 +188,7 @@ def load_object(path: str | os.PathLike):
     except (OSError, ValueError, EOFError) as err:
         raise InputFileError(f"cannot read the stored step ({err}); delete it and run again", path=p) from err
     try:
-        doc = json.loads(str(arrays.pop("__tree__")))
+        doc = loads_json(str(arrays.pop("__tree__")), "stored step tree", path=p)
     except (KeyError, ValueError) as err:
         raise InputFileError("not a slipnet study store (no tree); delete it and run again", path=p) from err
     if doc.get("format") != STORE_FORMAT:
