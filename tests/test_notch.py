@@ -172,6 +172,55 @@ def test_same_seed_same_table_on_a_local_distributed_cluster(bands):
     pd.testing.assert_frame_equal(a.table, b.table)
 
 
+@pytest.mark.slow
+def test_worker_processes_kept_for_a_study_give_the_same_tables(bands):
+    import os
+
+    from slipnet.notch.sweep import SweepPool
+
+    gg, _ = bands
+    gg2 = build_grain_graph(_band_specimen()[0].crop(0.0, 150.0, 0.0, 118.0))
+    kw = dict(spacing_um=30.0, depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,),
+              samples=2, seed=5)
+    ref = plan_notch(gg, "top", (1, 0, 0), scheduler="synchronous", **kw)
+    ref2 = plan_notch(gg2, "top", (1, 0, 0), scheduler="synchronous", **kw)
+    with SweepPool("processes", workers=2) as pool:
+        assert pool.client is None  # workers start at the first sweep, not before
+        a = plan_notch(gg, "top", (1, 0, 0), pool=pool, **kw)
+        pids = pool.client.run(os.getpid)
+        b = plan_notch(gg2, "top", (1, 0, 0), pool=pool, **kw)  # another graph: sent, same workers
+        c = plan_notch(gg, "top", (1, 0, 0), pool=pool, **kw)
+        assert pool.client.run(os.getpid) == pids and len(pids) == 2
+        # one compute thread per worker: two workers must not share the cores with numba's threads
+        assert set(pool.client.run(lambda: __import__("numba").get_num_threads()).values()) == {1}
+    assert pool.client is None  # closed with the block
+    pd.testing.assert_frame_equal(ref.table, a.table)
+    pd.testing.assert_frame_equal(ref2.table, b.table)
+    pd.testing.assert_frame_equal(ref.table, c.table)
+
+
+def test_sweep_chunks_amortise_tasks_and_keep_every_worker_busy():
+    from slipnet.notch.sweep import _chunk_size
+
+    assert _chunk_size(200, 100, 2) == 1  # 101 runs per candidate: one candidate is a long task
+    assert _chunk_size(200, 0, 2) == 16  # cheap candidates: about 16 runs per task
+    assert _chunk_size(20, 0, 2) == 3  # but at least 4 tasks per worker
+    assert _chunk_size(1, 0, 8) == 1
+
+
+def test_sweep_pool_refuses_bad_settings():
+    from slipnet.notch.sweep import SweepPool
+
+    with pytest.raises(ParameterError, match="scheduler should be"):
+        SweepPool("cloud")
+    with pytest.raises(ParameterError, match="workers should be"):
+        SweepPool("processes", workers=-1)
+    with pytest.raises(ParameterError, match="asked for explicitly"):
+        SweepPool("tcp://10.0.0.5:8786")
+    with SweepPool("synchronous") as pool:
+        assert pool.start() is None and not pool.distributed
+
+
 def test_bad_inputs_give_clear_errors(bands):
     gg, _ = bands
     kw = dict(depth_um=10.0, root_radius_um=4.0, window_um=60.0, crack_sizes_um=(5.0,))

@@ -57,10 +57,9 @@ from slipnet.maps.notch import NotchShape
 from slipnet.notch.candidates import candidate_positions
 from slipnet.notch.ranking import finish_plan
 from slipnet.notch.settings import DEFAULT_WEIGHTS, NotchPlan, PlanSettings
-from slipnet.notch.sweep import run_sweep
+from slipnet.notch.sweep import SweepPool, run_sweep
 
 __all__ = ["plan_notch"]
-
 
 
 def plan_notch(
@@ -93,6 +92,7 @@ def plan_notch(
     workers: int | None = None,
     progress: bool = False,
     allow_remote: bool = False,
+    pool: SweepPool | None = None,
 ) -> NotchPlan:
     """Rank candidate notch positions along a specimen edge.
 
@@ -146,6 +146,10 @@ def plan_notch(
         Consent to use a remote scheduler address (refused without it). Trusted machines only:
         its workers run the tasks and their results are unpickled here
         (:mod:`slipnet.notch.sweep`).
+    pool
+        A :class:`~slipnet.notch.sweep.SweepPool` kept open for several plans (its worker
+        processes and the graph sent to them are reused); ``scheduler``, ``workers`` and
+        ``allow_remote`` are then the pool's.
 
     Returns
     -------
@@ -189,7 +193,5 @@ def plan_notch(
         raise ParameterError(f"method should be 'weighted' or 'pareto'; got {method!r}")
     cands = candidate_positions(gg, edge, spacing_um, s.notch)
     rows = run_sweep(gg, cands, s, systems=systems, scheduler=scheduler, workers=workers,
-                     progress=progress, allow_remote=allow_remote)
+                     progress=progress, allow_remote=allow_remote, pool=pool)
     return finish_plan(rows, s, method=method, top_k=top_k)
-
-

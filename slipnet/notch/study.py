@@ -14,13 +14,13 @@ from slipnet.io.study import Study, read_study
 from slipnet.maps.grain_graph import GrainGraph
 from slipnet.notch.plan import plan_notch
 from slipnet.notch.settings import NotchPlan
-from slipnet.notch.sweep import LOCAL_SCHEDULERS, is_remote_scheduler
+from slipnet.notch.sweep import LOCAL_SCHEDULERS, SweepPool, is_remote_scheduler
 
 __all__ = ["iter_batch", "run_study"]
 
 
 def run_study(study: Study | str | os.PathLike, *, gg: GrainGraph | None = None, scheduler: str | None = None,
-              progress: bool = False, allow_remote: bool = False) -> NotchPlan:
+              progress: bool = False, allow_remote: bool = False, pool: SweepPool | None = None) -> NotchPlan:
     """Run a study: read its map, build grains (unless ``gg`` is given) and plan the notch.
 
     Parameters
@@ -37,6 +37,9 @@ def run_study(study: Study | str | os.PathLike, *, gg: GrainGraph | None = None,
     allow_remote
         Also accept a remote scheduler address written in the study file itself. Without it (the
         default) such a study is refused: a file must not choose where code runs.
+    pool
+        A :class:`~slipnet.notch.sweep.SweepPool` to run the sweep on (kept open by the caller,
+        as :func:`iter_batch` does for all its maps); it replaces the scheduler.
 
     Returns
     -------
@@ -54,7 +57,11 @@ def run_study(study: Study | str | os.PathLike, *, gg: GrainGraph | None = None,
     load = opts.pop("load_axis")
     if scheduler is not None:
         opts["scheduler"] = scheduler
-    plan = plan_notch(gg, edge, load, progress=progress, allow_remote=allow_remote or scheduler is not None, **opts)
+    if pool is not None:
+        opts.pop("scheduler", None)
+        opts.pop("workers", None)
+    plan = plan_notch(gg, edge, load, progress=progress, allow_remote=allow_remote or scheduler is not None,
+                      pool=pool, **opts)
     source = {"study": str(st.path), "map": str(st.map_path) if st.map_path else None}
     return NotchPlan(plan.table, plan.settings, plan.method, plan.top_k, plan.notes, source)
 
@@ -76,7 +83,8 @@ def iter_batch(folder: str | os.PathLike, study: Study | str | os.PathLike, *, s
     ``scheduler`` and ``allow_remote`` mean what they mean for :func:`run_study`.
 
     All maps are read (and checked) before the first plan runs, so a bad map stops the batch
-    before anything is computed or written.
+    before anything is computed or written. One :class:`~slipnet.notch.sweep.SweepPool` serves
+    every map: worker processes start once for the batch and stop when it ends (or is abandoned).
 
     Yields
     ------
@@ -85,7 +93,9 @@ def iter_batch(folder: str | os.PathLike, study: Study | str | os.PathLike, *, s
     st = study if isinstance(study, Study) else read_study(study)
     _check_scheduler(st, scheduler, allow_remote)
     maps = read_map_folder(folder)
-    for path, omap in maps:
-        gg = build_grain_graph(omap, **st.grain_options)
-        yield path, gg, run_study(st.with_map(path), gg=gg, scheduler=scheduler, progress=progress,
-                                  allow_remote=allow_remote)
+    opts = st.plan_options
+    with SweepPool(scheduler or opts.get("scheduler", "synchronous"), opts.get("workers"),
+                   allow_remote=allow_remote or scheduler is not None) as pool:
+        for path, omap in maps:
+            gg = build_grain_graph(omap, **st.grain_options)
+            yield path, gg, run_study(st.with_map(path), gg=gg, progress=progress, pool=pool)
