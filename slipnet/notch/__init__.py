@@ -37,6 +37,7 @@ from slipnet.notch.study import (
 )
 from slipnet.notch.sweep import (
     LOCAL_SCHEDULERS,
+    SweepPool,
     run_sweep,
 )
 
@@ -48,6 +49,7 @@ __all__ = [
     "Candidate",
     "NotchPlan",
     "PlanSettings",
+    "SweepPool",
     "candidate_positions",
     "edge_of_map",
     "evaluate_candidate",
