@@ -339,10 +339,15 @@ def read_text_table(text: str, path, *, delimiter: str | None = None, encoding: 
         toks = [t for row in tail for t in row if t]
         if any(re.fullmatch(r"[-+]?\d*,\d+([eE][-+]?\d+)?", t) for t in toks) and not any("." in t for t in toks):
             decimal = ","
+    # the columns that hold numbers in every trailing row; a text column (a label) may sit beside them
+    rows_w = [t for t in tail if len(t) == width]
+    numeric = [c for c in range(width) if 2 * sum(_is_number(t[c], decimal) and t[c] != "" for t in rows_w)
+               >= len(rows_w)]
     first = None
     for k, n in enumerate(live):
         f = _fields(lines[n], delim)
-        if len(f) == width and all(_is_number(t, decimal) for t in f) and any(t for t in f):
+        if len(f) == width and numeric and all(_is_number(f[c], decimal) for c in numeric) \
+                and any(f[c] for c in numeric):
             first = k
             break
     if first is None:
