@@ -688,3 +688,51 @@ def test_growth_along_a_forecast_lists_boundary_and_zone_dips(notched):
     assert set(g.dips["kind"]) == {"boundary", "zone"}  # this path meets both kinds
     assert g.path.n_zones >= 1  # the field reaches 0.5 somewhere on the path ahead of the crack
     assert (g.profile["zone_factor"] <= 1.0).all() and (g.profile["zone_factor"] > 0.0).all()
+
+
+# ------------------------------------------------------------------------- the forecast window
+@pytest.mark.parametrize("grid,mode,with_crack", [("square", "map", False), ("hex", "map", True),
+                                                  ("square", "elastic", True)])
+def test_windowed_features_equal_the_whole_map_computation(grid, mode, with_crack):
+    # the forecast computes its point features on a window around the tip; inside the window they
+    # must be the whole-map features (localisation_features, kept as the reference) to round-off
+    from slipnet.forecast import crack_aware_stress
+    from slipnet.forecast._geometry import geometry_of
+    from slipnet.forecast._window import forecast_window
+    from slipnet.forecast.features import localisation_features, window_features
+    from slipnet.maps import NotchShape
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((90, 110), 1.0, grid=grid, grain_size_um=14.0, notch=NotchShape(20.0, 6.0),
+                         notch_side="left", load_axis=(0.0, 1.0, 0.0), seed=6)
+    gg = build_grain_graph(spec.omap)
+    geo = geometry_of(gg)
+    tip = np.array([45.0, 48.0])
+    crack = np.stack([tip - [12.0, 2.0], tip]) if with_crack else None
+    field = crack_aware_stress(gg.omap, (0.0, 1.0, 0.0), 200.0) if mode == "elastic" else None
+    kw = dict(mode=mode, crack=crack, stress_field=field, systems=slip_systems("bcc"))
+    full = localisation_features(gg, tip, (1.0, 0.1), (0.0, 1.0, 0.0), **kw)
+    win = forecast_window(gg, geo, tip, 25.0)
+    part = window_features(gg, geo, win, tip, (1.0, 0.1), (0.0, 1.0, 0.0), **kw)
+    r0, r1, c0, c1 = part.window
+    assert 0 < (r1 - r0) * (c1 - c0) < 0.7 * gg.labels.size  # a real window, not the map
+    sl = (slice(r0, r1), slice(c0, c1))
+    np.testing.assert_array_equal(part.solid, full.solid[sl])
+    np.testing.assert_array_equal(part.best_system, full.best_system[sl])
+    for name, values in part.features.items():
+        np.testing.assert_allclose(values, full.features[name][sl], rtol=1e-12, atol=1e-15, err_msg=name)
+
+
+def test_forecast_field_is_the_whole_map_field_within_the_horizon(poly_gg):
+    from slipnet.forecast import load_weights
+    from slipnet.forecast.features import localisation_features
+    from slipnet.forecast.localise import predict_field
+
+    tip, horizon = np.array([5.0, 60.0]), 50.0
+    fc = forecast_crack(poly_gg, tip, (1.0, 0.0), (0.0, 1.0, 0.0), horizon, mode="map")
+    ref = predict_field(localisation_features(poly_gg, tip, (1.0, 0.0), (0.0, 1.0, 0.0), mode="map"), load_weights())
+    x, y = poly_gg.omap.coordinates()
+    disc = np.hypot(x - tip[0], y - tip[1]) <= horizon + load_weights().drop_radius_um
+    np.testing.assert_allclose(fc.field[disc], ref[disc], rtol=1e-12, atol=1e-15)
+    # outside the window the field is not computed: 0, and the window is much smaller than the map
+    assert (fc.field[x > tip[0] + 2.0 * horizon] == 0.0).all() and (ref[x > tip[0] + 2.0 * horizon] > 0).any()

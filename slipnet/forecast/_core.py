@@ -147,6 +147,7 @@ def _run_state(geo: _Geometry, cry: _Crystal, planes: _Planes, st: _State, opts:
     prev_grain = -1
     while st.s < opts.horizon - 1e-9 and nseg < _MAX_SEGMENTS:
         g = st.grain
+        cry.ensure1(g)
         if st.stage == "I" and (st.s >= opts.stage2_after or float(np.max(
                 np.where(cry.trace_ok[g], cry.plane_meff[g], 0.0))) < opts.stage2_min_schmid):
             if opts.d_stage2 is None:
@@ -214,6 +215,7 @@ def _run_state(geo: _Geometry, cry: _Crystal, planes: _Planes, st: _State, opts:
 def _cross(geo, cry, planes, st: _State, g: int, lab: int, sys_in: int, d: np.ndarray, opts: _Opts,
            queue: list, budget: list) -> None:
     bid, mis, cls, ang = _boundary_info(geo, g, lab, d)
+    cry.ensure1(lab)
     if st.stage == "II":
         sys_in_eff = int(cry.best_sys[g])
         sc = _crossing_scores(cry, planes, g, -1, lab, ang, opts)

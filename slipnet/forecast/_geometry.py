@@ -183,33 +183,80 @@ def _matrices(q: np.ndarray) -> np.ndarray:
 
 
 class _Crystal:
-    """Everything orientation-dependent: sample-frame normals, Schmid factors, plane traces."""
+    """Everything orientation-dependent: sample-frame normals, Schmid factors, plane traces.
 
-    def __init__(self, quats: np.ndarray, load: np.ndarray, planes: _Planes, schmid=None) -> None:
-        g = _matrices(quats)  # (n, 3, 3); v_s = gᵀ v_c
+    Rows are computed for the grains a forecast reads (``rows``, default all) and for any other grain
+    on first use (:meth:`ensure`): a forecast near the tip of a large map touches tens of grains of
+    thousands. Rows not yet computed hold zeros; every reader calls :meth:`ensure` first.
+    ``schmid`` is a ``(n, S)`` array or a callable giving the rows of the grains it is passed.
+    """
+
+    def __init__(self, quats: np.ndarray, load: np.ndarray, planes: _Planes, schmid=None, rows=None) -> None:
+        self._q = np.asarray(quats, dtype=float)
+        self._load = np.asarray(load, dtype=float)
+        self._planes = planes
+        self._schmid_src = schmid
+        ng = self._q.shape[0]
+        ns, npl = planes.sys_normals.shape[0], planes.n_planes
+        self.have = np.zeros(ng, bool)
+        self.n_s = np.zeros((ng, ns, 3))
+        self.d_s = np.zeros((ng, ns, 3))
+        self.schmid = np.zeros((ng, ns))
+        self.meff = np.zeros((ng, ns))
+        self.plane_sys = np.zeros((ng, npl), np.int64)
+        self.plane_meff = np.zeros((ng, npl))
+        self.plane_n = np.zeros((ng, npl, 3))
+        self.trace_ok = np.zeros((ng, npl), bool)
+        self.trace = np.zeros((ng, npl, 2))
+        self.best_sys = np.zeros(ng, np.int64)
+        self.ensure(np.arange(ng) if rows is None else rows)
+
+    def ensure1(self, g: int) -> None:
+        """:meth:`ensure` for one grain (the path's per-segment check)."""
+        if 0 <= g < self.have.size and not self.have[g]:
+            self.ensure(np.array([g]))
+
+    def ensure(self, grains) -> None:
+        """Compute the rows of ``grains`` (ids) not computed yet."""
+        idx = np.unique(np.asarray(grains, dtype=np.int64).ravel())
+        idx = idx[(idx >= 0) & (idx < self.have.size)]
+        idx = idx[~self.have[idx]]
+        if idx.size == 0:
+            return
+        planes = self._planes
+        g = _matrices(self._q[idx])  # (k, 3, 3); v_s = gᵀ v_c
         # (n_s)_i = Σ_j g_ji n_j: a batched matrix product (much faster than einsum here)
-        self.n_s = np.matmul(planes.sys_normals[None], g)
-        self.d_s = np.matmul(planes.sys_dirs[None], g)
-        if schmid is None:
-            schmid = (self.n_s @ load) * (self.d_s @ load)
-        self.schmid = np.asarray(schmid, dtype=float)
-        self.meff = np.abs(self.schmid) / np.where(self.schmid >= 0, planes.crss, planes.crss_rev)
-        ng = quats.shape[0]
+        n_s = np.matmul(planes.sys_normals[None], g)
+        d_s = np.matmul(planes.sys_dirs[None], g)
+        src = self._schmid_src
+        if src is None:
+            schmid = (n_s @ self._load) * (d_s @ self._load)
+        elif callable(src):
+            schmid = np.asarray(src(idx), dtype=float)
+        else:
+            schmid = np.asarray(src, dtype=float)[idx]
+        meff = np.abs(schmid) / np.where(schmid >= 0, planes.crss, planes.crss_rev)
         # best system on each plane, per grain
-        self.plane_sys = np.zeros((ng, planes.n_planes), np.int64)
-        for p, idx in enumerate(planes.members):  # a few dozen planes: vectorised over grains
-            self.plane_sys[:, p] = idx[np.argmax(self.meff[:, idx], axis=1)]
-        self.plane_meff = np.take_along_axis(self.meff, self.plane_sys, axis=1)
-        self.plane_n = np.matmul(planes.normals[None], g)
-        t = np.stack([self.plane_n[..., 1], -self.plane_n[..., 0]], axis=-1)  # n × z, in-plane part
+        plane_sys = np.zeros((idx.size, planes.n_planes), np.int64)
+        for p, members in enumerate(planes.members):  # a few dozen planes: vectorised over grains
+            plane_sys[:, p] = members[np.argmax(meff[:, members], axis=1)]
+        plane_n = np.matmul(planes.normals[None], g)
+        t = np.stack([plane_n[..., 1], -plane_n[..., 0]], axis=-1)  # n × z, in-plane part
         tn = np.linalg.norm(t, axis=-1)
         # planes within ~3° of the surface have no usable trace
-        self.trace_ok = tn > 0.05
-        self.trace = t / np.where(self.trace_ok, tn, 1.0)[..., None]
-        self.best_sys = np.argmax(self.meff, axis=1) if ng else np.zeros(0, int)
+        ok = tn > 0.05
+        self.n_s[idx], self.d_s[idx], self.schmid[idx], self.meff[idx] = n_s, d_s, schmid, meff
+        self.plane_sys[idx] = plane_sys
+        self.plane_meff[idx] = np.take_along_axis(meff, plane_sys, axis=1)
+        self.plane_n[idx] = plane_n
+        self.trace_ok[idx] = ok
+        self.trace[idx] = t / np.where(ok, tn, 1.0)[..., None]
+        self.best_sys[idx] = np.argmax(meff, axis=1)
+        self.have[idx] = True
 
     def m_prime_row(self, ga: int, sys_a: int, gb: int) -> np.ndarray:
         """|m′| from system ``sys_a`` of grain ``ga`` to every system of grain ``gb``, (S,)."""
+        self.ensure((ga, gb))
         return np.abs((self.n_s[gb] @ self.n_s[ga, sys_a]) * (self.d_s[gb] @ self.d_s[ga, sys_a]))
 
 

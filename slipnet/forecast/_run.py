@@ -13,8 +13,9 @@ from slipnet.forecast.barriers import rank_barriers
 
 
 def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts, *, amplitude, decay, bw, cf,
-          want_field: bool, sigma_um: float, site_radius: float | None = None) -> dict:
-    cry = _Crystal(quats, load, planes, schmid)
+          want_field: bool, sigma_um: float, site_radius: float | None = None, rows=None,
+                      want_sites: bool = True) -> dict:
+    cry = _Crystal(quats, load, planes, schmid, rows=rows)
     states, alt_cross = _trace_all(geo, cry, planes, float(tip[0]), float(tip[1]), grain0, opts)
     main = states[0]
     seg_cols = list(FORECAST_ALTERNATIVES)
@@ -22,6 +23,9 @@ def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts
     alts = pd.DataFrame([s for st in states[1:] for s in st.segments], columns=seg_cols)
     crossings = pd.DataFrame(main.crossings + alt_cross)
     barriers = rank_barriers(crossings, bw, decay_length_um=decay, class_factors=cf)
+    if not want_sites:  # the Monte Carlo's path passes need no band sites
+        return {"path": path, "alternatives": alts, "crossings": crossings, "barriers": barriers, "sites": None,
+                "field": None, "stop": main.stop, "crystal": cry}
     on = set(path["grain"].tolist()) | set(alts["grain"].tolist())
     near = set(on)
     for g in path["grain"].tolist():

@@ -37,6 +37,7 @@ def _sites(geo: _Geometry, cry: _Crystal, planes: _Planes, grains: np.ndarray, a
     grains = np.asarray(grains, dtype=np.int64)
     if grains.size == 0:
         return pd.DataFrame({c: pd.Series(dtype=float) for c in cols}), None
+    cry.ensure(grains)
     sys_ = cry.best_sys[grains]
     p = planes.plane_of[sys_]
     tr = cry.trace[grains, p]

@@ -62,13 +62,13 @@ from slipnet.errors import ParameterError
 from slipnet.forecast._core import _make_opts, _parse_tip, _start_grain
 from slipnet.forecast._geometry import _Planes, crack_plane_angles, geometry_of
 from slipnet.forecast._run import run_forecast_pass
+from slipnet.forecast._window import forecast_window, schmid_rows
 from slipnet.forecast.barriers import _check_decay
-from slipnet.forecast.features import MODES, localisation_features
-from slipnet.forecast.localise import barrier_features, peak_sites, predict_field
+from slipnet.forecast.features import MODES, window_features
+from slipnet.forecast.localise import barrier_features, full_field, peak_sites, predict_field
 from slipnet.forecast.monte_carlo import monte_carlo
 from slipnet.forecast.predictor import BARRIER_FEATURES, load_weights
 from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights, CrackForecast, MonteCarloNoise, PathWeights
-from slipnet.stress.local import grain_schmid_factors
 
 __all__ = ["BARRIER_MODELS", "crack_plane_angles", "forecast_crack"]
 
@@ -192,7 +192,9 @@ def forecast_crack(
     -------
     CrackForecast
         ``field`` is the probability that each metal point is among the top 10 % of accumulated
-        slip (as the cyclic reference computes it) within the horizon; ``sites`` are its peaks with
+        slip (as the cyclic reference computes it) within the horizon, computed on the window of points
+        within the horizon (plus the barrier drop radius) of the tip and 0 outside it (so a repeated
+        forecast costs the same on any map size); ``sites`` are its peaks with
         ``site_probability``; ``barriers`` carry ``barrier_score`` (the fitted probability of a slip
         drop across the boundary, or the resistance score with ``barrier_model="weights"``) and
         ``resistance_score`` (the hand-set score).
@@ -263,21 +265,24 @@ def forecast_crack(
     planes = _Planes(systems)
     quats = np.asarray(gg.mean_quats, dtype=float)
     wts = load_weights(weights)
-    inputs = localisation_features(gg, tip_xy, d, load, mode=mode, stress_amplitude=amplitude, crack=crack,
-                                   stress_field=stress_field, cyclic_field=cyclic_field, systems=systems,
-                                   free_edges=free_edges, stress_ratio=ratio)
+    # everything the forecast reports lies within the horizon of the tip (barrier features reach
+    # drop_radius_um beyond a crossing): the features and the field are computed on that window only
+    win = forecast_window(gg, geo, tip_xy, horizon + wts.drop_radius_um)
+    inputs = window_features(gg, geo, win, tip_xy, d, load, mode=mode, stress_amplitude=amplitude, crack=crack,
+                             stress_field=stress_field, cyclic_field=cyclic_field, systems=systems,
+                             free_edges=free_edges, stress_ratio=ratio)
     schmid = None
     if inputs.stress_field is not None:
-        local = np.asarray(grain_schmid_factors(inputs.stress_field, gg, systems), dtype=float)
-        schmid = np.zeros((quats.shape[0], local.shape[1]))
-        schmid[: local.shape[0]] = np.nan_to_num(local[: quats.shape[0]])
+        schmid = schmid_rows(inputs.stress_field, gg, geo, systems)
     res = run_forecast_pass(geo, planes, quats, load, schmid, tip_xy, grain0, opts, amplitude=amplitude, decay=decay,
-                            bw=bw, cf=class_factors, want_field=False, sigma_um=sigma_um, site_radius=site_r)
+                            bw=bw, cf=class_factors, want_field=False, sigma_um=sigma_um, site_radius=site_r,
+                            rows=win.reach)
     cry = res["crystal"]
-    fld = predict_field(inputs, wts)
-    sites = peak_sites(geo, cry, planes, inputs, fld, wts, tip_xy, horizon, amplitude, k=int(n_sites))
-    barriers = _fitted_barriers(res["barriers"], res["crossings"], inputs, fld, geo, cry, wts, horizon, mode,
+    fld_w = predict_field(inputs, wts)
+    sites = peak_sites(geo, cry, planes, inputs, fld_w, wts, tip_xy, horizon, amplitude, k=int(n_sites))
+    barriers = _fitted_barriers(res["barriers"], res["crossings"], inputs, fld_w, geo, cry, wts, horizon, mode,
                                 barrier_model)
+    fld = full_field(fld_w, inputs, (geo.ny, geo.nx))
     noise = noise or MonteCarloNoise()
     settings = {
         "tip_um": [float(v) for v in tip_xy], "direction": [float(v) for v in d],

@@ -33,6 +33,15 @@ from scipy import ndimage
 from slipnet._checks import check_choice, check_positive, check_vector
 from slipnet.crystal.orientation import matrix_from_quat, nearest_equivalent
 from slipnet.errors import ParameterError
+from slipnet.forecast._window import (
+    _holes,
+    _union,
+    crack_box,
+    crack_cells_box,
+    crop_coordinates,
+    crop_map,
+    map_cache,
+)
 from slipnet.stress.elastic import HOLE_MIN_POINTS  # clusters this large (or at the edge) are holes / the notch
 
 __all__ = ["FEATURES", "MODES", "FieldInputs", "boundary_drops", "crack_aware_stress", "crack_cells", "field_peaks",
@@ -83,6 +92,9 @@ class FieldInputs:
         Edges taken as free surfaces.
     notes : tuple of str
         Statements the outputs print (what was solved, what was assumed).
+    window : tuple of int or None
+        ``(r0, r1, c0, c1)``: the arrays cover rows ``r0:r1`` and columns ``c0:c1`` of the map (a
+        forecast's window, :func:`window_features`); None for the whole map.
     """
 
     mode: str
@@ -95,6 +107,7 @@ class FieldInputs:
     cyclic_field: object
     free_edges: tuple
     notes: tuple
+    window: tuple | None = None
 
     def matrix(self, names, mask: np.ndarray | None = None) -> np.ndarray:
         """Features ``names`` at the points of ``mask`` (default: the metal) as an ``(n, k)`` array."""
@@ -133,20 +146,6 @@ def crack_cells(crack, omap) -> np.ndarray:
     j = np.clip(np.asarray(j), 0, omap.shape[1] - 1)
     mask[i, j] = True
     return mask
-
-
-def _holes(indexed: np.ndarray) -> np.ndarray:
-    """Unindexed points that are holes or the notch (large clusters or touching the edge)."""
-    soft = ~indexed
-    if not soft.any():
-        return soft
-    lab, n_lab = ndimage.label(soft)
-    sizes = np.bincount(lab.ravel(), minlength=n_lab + 1)
-    edge = np.unique(np.concatenate([lab[0], lab[-1], lab[:, 0], lab[:, -1]]))
-    hole = sizes >= HOLE_MIN_POINTS
-    hole[edge] = True
-    hole[0] = False
-    return hole[lab]
 
 
 def free_edges_of(omap, load_axis) -> tuple[str, ...]:
@@ -626,3 +625,229 @@ def boundary_drops(values: np.ndarray, labels: np.ndarray, solid: np.ndarray, om
         if abs(va) + abs(vb) > 0:
             out[i] = (va - vb) / (abs(va) + abs(vb))
     return out
+
+
+# ---------------------------------------------------------------------------------------------- windowed
+def window_features(gg, geo, win, tip, direction, load_axis, *, mode: str = "elastic", stress_amplitude: float = 200.0,
+                    crack=None, stress_field=None, cyclic_field=None, systems=None, free_edges="auto",
+                    stress_ratio: float = -1.0, constants=None, tol: float = 1e-4, mean_quats=None,
+                    point_rotation=None, memo: dict | None = None) -> FieldInputs:
+    """:func:`localisation_features` on the inner window of ``win`` (:mod:`slipnet.forecast._window`).
+
+    The arrays of the returned inputs have the window's shape and ``window`` holds its box; their
+    values equal the whole-map features on those points (to round-off). ``mean_quats`` replaces the
+    graph's grain means (a Monte Carlo sample; only the window's grains are read) and
+    ``point_rotation`` (per grain quaternions) rotates every point of each grain of the crop the
+    same way, as :func:`slipnet.forecast.monte_carlo._rotated_quats` rotates the whole map.
+    ``memo`` (a dict kept by the caller) keeps the terms that depend only on the geometry (slit,
+    metal mask, boundary and notch distances) between calls with the same window, crack and field.
+    """
+    from slipnet.stress import IRON_CONSTANTS, default_systems, local_resolved_shear, solve_cyclic
+    from slipnet.stress.constants import DEFAULT_CONSTANTS
+
+    mode = check_choice(mode, "mode", MODES)
+    amp = check_positive(stress_amplitude, "stress_amplitude")
+    omap = gg.omap
+    systems = default_systems(omap, systems)
+    mc = map_cache(gg, geo)
+    box, inner = win.crop, win.inner
+    csl = box.sl
+    labels = geo.labels[csl]
+    mq = np.asarray(gg.mean_quats if mean_quats is None else mean_quats, float)
+    ng = mq.shape[0]
+    load = check_vector(load_axis, "load_axis")
+    tip = np.asarray(tip, float)
+    notes: list[str] = []
+    field = None
+    cyc = None
+    if memo is not None and (mode == "map" or stress_field is not None):
+        key = ((box.r0, box.r1, box.c0, box.c1), None if crack is None else np.asarray(crack, float).tobytes(),
+               id(stress_field), mode)
+        geo_terms = memo.get(key)
+        if geo_terms is None:
+            geo_terms = memo.setdefault(key, {})
+    else:
+        geo_terms = {}
+    cut = geo_terms.get("cut")
+    if cut is None:
+        cut = np.zeros(box.shape, bool) if crack is None else crack_cells_box(crack, omap, box)
+        geo_terms["cut"] = cut
+    holes = mc.holes[csl]
+    lab0 = np.maximum(labels, 0)
+    # the grains whose rows are read: those of the crop (the window's grains and their neighbours whole)
+    used = np.unique(labels[labels >= 0])
+    if mode == "map":
+        edges = ()
+        solid = (labels >= 0) & ~holes & ~cut
+        q = np.where(np.all(np.isfinite(mq[used]), axis=1)[:, None], mq[used], [1.0, 0.0, 0.0, 0.0])
+        g = matrix_from_quat(q)
+        n_s = np.einsum("sk,gkj->gsj", np.asarray(systems.normals, float), g)
+        d_s = np.einsum("sk,gkj->gsj", np.asarray(systems.directions, float), g)
+        schmid = (n_s @ load) * (d_s @ load)
+        struct = omap.phases[0].structure
+        cst = constants if constants is not None else DEFAULT_CONSTANTS.get(struct, IRON_CONSTANTS)
+        eratio = np.zeros(ng)
+        eratio[used] = _youngs_ratio(mq[used], load, cst)
+        grain_tau = np.zeros((ng, schmid.shape[1]))
+        grain_tau[used] = _effective(schmid, systems) * eratio[used, None]
+        point_sys = np.where(solid, np.argmax(grain_tau, axis=1)[lab0], -1)
+        tau = np.where(solid, grain_tau.max(axis=1)[lab0], 0.0)
+        feats = {"tau": tau, "modulus_ratio": np.where(solid, eratio[lab0], 0.0)}
+        notes.append("map-only mode (no stress solve): nominal Schmid factors scaled by each grain's Young's modulus "
+                     "along the load; the cheaper, weaker forecast mode.")
+    else:
+        if stress_field is None:
+            full = crack_aware_stress(omap, load, amp, crack=crack, free_edges=free_edges, tol=tol)
+        else:
+            full = stress_field
+            if full.shape != omap.shape:
+                raise ParameterError(f"stress_field shape {full.shape} should match the map {omap.shape}")
+        edges = tuple(full.meta.get("free_edges", ())) if isinstance(full.meta, dict) else ()
+        fq = np.asarray(full.omap.quats)[csl]
+        if point_rotation is not None:
+            fq = _rotate_points(fq, labels, np.asarray(full.omap.indexed)[csl], point_rotation)
+        fomap = crop_map(full.omap, box, quats=fq)
+        field = replace(full, stress=full.stress[csl], strain=full.strain[csl], omap=fomap,
+                        compliant=np.asarray(full.compliant)[csl])
+        scale = amp / float(field.applied_stress)
+        solid = (labels >= 0) & ~np.asarray(field.compliant, bool) & ~cut
+        qa = _aligned_quats(field.omap, labels, mq)
+        qa = np.where(solid[..., None], qa, np.nan)
+        aligned = replace(field.omap, quats=qa, indexed=solid, phase=np.where(solid, field.omap.phase, -1))
+        tau_sys = local_resolved_shear(replace(field, omap=aligned), aligned, systems) * scale  # (ny, nx, S)
+        eff = np.nan_to_num(_effective(np.nan_to_num(tau_sys), systems)) / amp
+        eff[~solid] = 0.0
+        tau = eff.max(axis=2)
+        point_sys = np.where(solid, eff.argmax(axis=2), -1)
+        lab = labels[solid]
+        cnt = np.bincount(lab, minlength=ng).astype(float)
+        grain_tau = np.stack([np.bincount(lab, weights=eff[..., k][solid], minlength=ng) for k in
+                              range(eff.shape[2])], axis=1) / np.maximum(cnt, 1.0)[:, None]
+        sn = field.normal_stress() * scale / amp
+        feats = {"tau": tau, "normal_stress": np.where(solid, sn, 0.0)}
+        tg = _grain_mean(tau, labels, solid, ng)
+        feats["tau_grain"] = np.where(solid, np.nan_to_num(tg)[lab0], 0.0)
+        notes.append("Local stress from a full-field anisotropic elastic solve with the notch and crack cut in: "
+                     + full.assumptions)
+        field = full
+        if mode == "cyclic":
+            if cyclic_field is None:
+                cyc = solve_cyclic(omap, load, stress_amplitude=amp, ratio=float(stress_ratio), cycles=1,
+                                   crack=crack, free_edges=edges, grains=gg, boundary_width_um=float(omap.step),
+                                   max_slip_increment=2e-3)
+            else:
+                cyc = cyclic_field
+            acc = np.asarray(cyc.accumulated_slip, float)[csl]
+            feats["log_cyclic_slip"] = np.where(solid, np.log10(np.maximum(acc, 0.0) + 1e-7), 0.0)
+            notes.append("Cyclic crystal-plasticity field (one cycle, coarse increments) added: " + cyc.assumptions)
+    tg = _grain_mean(tau, labels, solid, ng)
+    eids = mc.edges_of(win.grains)
+    nbm = _neighbour_mean_edges(mc.edge_a[eids], mc.edge_b[eids], mc.edge_w[eids], tg)
+    excess = np.nan_to_num(tg - nbm)
+    feats["grain_excess"] = np.where(solid, excess[lab0], 0.0)
+    best_grain = np.argmax(np.nan_to_num(grain_tau), axis=1) if ng else np.zeros(0, np.int64)
+    keys, vals = _transmission_pairs(mc.edge_a[eids], mc.edge_b[eids], mq, best_grain, systems)
+    if "partner" not in geo_terms:
+        geo_terms["dist"], geo_terms["partner"] = _boundary_partner(labels, solid)
+    dist, partner = geo_terms["dist"], geo_terms["partner"]
+    if keys.size:
+        code = keys[:, 0] * (ng + 1) + keys[:, 1]
+        order = np.argsort(code)
+        pc = lab0 * (ng + 1) + np.maximum(partner, 0)
+        pos = np.clip(np.searchsorted(code[order], pc), 0, code.size - 1)
+        hit = (code[order][pos] == pc) & (partner >= 0)
+        mp = np.where(hit, vals[order][pos], 1.0)
+    else:
+        mp = np.ones(box.shape)
+    feats["boundary_block"] = np.where(solid, (1.0 - mp) * np.exp(-np.nan_to_num(dist, posinf=1e3)), 0.0)
+    if "dn" not in geo_terms:
+        geo_terms["x"], geo_terms["y"] = crop_coordinates(omap, box)
+        geo_terms["dn"] = _notch_distance(mc, omap, box, crack, cut)
+    x, y, dn = geo_terms["x"], geo_terms["y"], geo_terms["dn"]
+    step = float(omap.step)
+    tf, ltd, lnd = _tip_terms(x, y, step, tip, direction, dn)
+    feats["tip_field"] = np.where(solid, tf, 0.0)
+    feats["log_tip_distance"] = np.where(solid, ltd, 0.0)
+    feats["log_notch_distance"] = np.where(solid, lnd, 0.0)
+    isl = box.inner(inner)
+    out = {}
+    for k in FEATURES[mode]:
+        v = feats[k][isl]
+        out[k] = np.nan_to_num(v, nan=0.0, posinf=0.0, neginf=0.0) if not np.all(np.isfinite(v)) else v
+    return FieldInputs(mode=mode, features=out, solid=solid[isl], tau=tau[isl],
+                       best_system=point_sys[isl].astype(np.int64), grain_tau=np.nan_to_num(grain_tau),
+                       stress_field=field, cyclic_field=cyc, free_edges=tuple(edges), notes=tuple(notes),
+                       window=(inner.r0, inner.r1, inner.c0, inner.c1))
+
+
+def _rotate_points(q: np.ndarray, labels: np.ndarray, indexed: np.ndarray, dq: np.ndarray) -> np.ndarray:
+    """Every point of grain g rotated by ``dq[g]`` (w ≥ 0 kept), as the Monte Carlo rotates the whole map."""
+    from slipnet.crystal.orientation import quat_multiply
+
+    q = np.array(q, float)
+    sel = (labels >= 0) & indexed & np.all(np.isfinite(q), axis=-1)
+    if sel.any():
+        r = quat_multiply(dq[labels[sel]], q[sel])
+        q[sel] = np.where(r[:, :1] < 0, -r, r)
+    return q
+
+
+def _neighbour_mean_edges(a: np.ndarray, b: np.ndarray, w: np.ndarray, per_grain: np.ndarray) -> np.ndarray:
+    """:func:`_neighbour_mean` over the given edges (exact for grains all of whose edges are given)."""
+    n = per_grain.size
+    if a.size == 0:
+        return np.full(n, np.nan)
+    ok = (a < n) & (b < n)
+    a, b, w = a[ok].astype(int), b[ok].astype(int), w[ok]
+    va, vb = np.nan_to_num(per_grain[b]), np.nan_to_num(per_grain[a])
+    wa, wb = w * np.isfinite(per_grain[b]), w * np.isfinite(per_grain[a])
+    num = np.bincount(a, wa * va, minlength=n) + np.bincount(b, wb * vb, minlength=n)
+    den = np.bincount(a, wa, minlength=n) + np.bincount(b, wb, minlength=n)
+    return np.where(den > 0, num / np.maximum(den, 1e-12), np.nan)
+
+
+def _transmission_pairs(ea: np.ndarray, eb: np.ndarray, mean_quats, best_sys_grain: np.ndarray, systems):
+    """:func:`_transmission_matrix` for the given edges: keys ``(m, 2)`` (both senses) and values."""
+    pairs = np.stack([ea, eb], axis=1).astype(np.int64).reshape(-1, 2)
+    if pairs.size == 0:
+        return np.zeros((0, 2), np.int64), np.zeros(0)
+    both = np.concatenate([pairs, pairs[:, ::-1]])
+    a, b = both[:, 0], both[:, 1]
+    used, inv = np.unique(both.ravel(), return_inverse=True)
+    mq = np.asarray(mean_quats, float)[used]
+    q = np.where(np.all(np.isfinite(mq), axis=1)[:, None], mq, [1.0, 0.0, 0.0, 0.0])
+    g = matrix_from_quat(q)
+    ns_ = np.einsum("sk,gkj->gsj", np.asarray(systems.normals, float), g)
+    ds_ = np.einsum("sk,gkj->gsj", np.asarray(systems.directions, float), g)
+    ia, ib = inv.reshape(-1, 2)[:, 0], inv.reshape(-1, 2)[:, 1]
+    sa = best_sys_grain[a]
+    na, da = ns_[ia, sa], ds_[ia, sa]
+    mp = np.abs(np.einsum("psj,pj->ps", ns_[ib], na) * np.einsum("psj,pj->ps", ds_[ib], da)).max(axis=1)
+    # a later duplicate key wins in the whole-map dict: keep the last of each key the same way
+    code = a * (best_sys_grain.size + 1) + b
+    _, last = np.unique(code[::-1], return_index=True)
+    keep = np.sort(code.size - 1 - last)
+    return both[keep], mp[keep]
+
+
+def _notch_distance(mc, omap, box, crack, cut: np.ndarray) -> np.ndarray:
+    """Distance (µm) from the box's points to the nearest hole, notch or crack point of the whole map."""
+    step = float(omap.step)
+    dn = None if mc.hole_dist is None else mc.hole_dist[box.sl]
+    if crack is not None:
+        cb = _union(box, crack_box(crack, omap))
+        cc = crack_cells_box(crack, omap, cb)
+        if cc.any():
+            d = ndimage.distance_transform_edt(~cc, sampling=(omap.row_spacing, omap.step))[cb.inner(box)]
+            dn = d if dn is None else np.minimum(dn, d)
+    return np.full(box.shape, 1e3 * step) if dn is None else dn
+
+
+def _tip_terms(x, y, step, tip, direction, dn):
+    """The tip and notch terms of :func:`_tip_geometry` from point positions and the notch distance."""
+    dx, dy = x - tip[0], y - tip[1]
+    r = np.hypot(dx, dy)
+    d = np.asarray(direction, float) / np.linalg.norm(direction)
+    theta = np.arctan2(dx * d[1] * -1.0 + dy * d[0], dx * d[0] + dy * d[1])
+    ang = np.cos(0.5 * theta) * np.sqrt(1.0 + 3.0 * np.sin(0.5 * theta) ** 2)
+    return ang * np.sqrt(step / (r + step)), np.log1p(r / step), np.log1p(dn / step)

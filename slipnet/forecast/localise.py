@@ -32,6 +32,16 @@ def predict_field(inputs: FieldInputs, weights: Weights, replicate: int | None =
     return out
 
 
+def full_field(field: np.ndarray, inputs: FieldInputs, shape) -> np.ndarray:
+    """A field of ``inputs``' window (:func:`predict_field`) on the whole map grid: 0 outside the window."""
+    if inputs.window is None:
+        return field
+    r0, r1, c0, c1 = inputs.window
+    out = np.zeros(tuple(shape))
+    out[r0:r1, c0:c1] = field
+    return out
+
+
 def field_logit(p: np.ndarray) -> np.ndarray:
     """ln(p / (1 − p)) of field probabilities, clipped to [1e-6, 1 − 1e-6] (the site model's feature)."""
     p = np.clip(np.asarray(p, float), _EPS, 1.0 - _EPS)
@@ -49,7 +59,8 @@ def peak_sites(geo, cry, planes, inputs: FieldInputs, field: np.ndarray, weights
     """The ``k`` strongest peaks of the field within the horizon, with what makes each (table columns of
     :data:`slipnet.columns.FORECAST_SITES`)."""
     omap_x0, omap_y0 = geo.ox, geo.oy
-    x, y = _coords(geo)
+    x, y = _coords(geo, inputs.window)
+    w0 = (0, 0) if inputs.window is None else (inputs.window[0], inputs.window[2])
     region = inputs.solid & (np.hypot(x - tip[0], y - tip[1]) <= horizon)
     cols = list(FORECAST_SITES)
     pk = field_peaks(field, region, _GridShim(x, y), k, weights.site_separation_um) if region.any() and k > 0 \
@@ -61,7 +72,9 @@ def peak_sites(geo, cry, planes, inputs: FieldInputs, field: np.ndarray, weights
         i = round((sy - omap_y0) / geo.rs)
         j = round((sx - omap_x0 - (0.5 * geo.step * (i % 2) if geo.hexgrid else 0.0)) / geo.step)
         g = int(geo.labels[i, j])
-        s = int(inputs.best_system[i, j])
+        cry.ensure1(g)
+        li, lj = i - w0[0], j - w0[1]  # the point in the arrays of the inputs' window
+        s = int(inputs.best_system[li, lj])
         if s < 0:
             s = int(cry.best_sys[g])
         p = int(planes.plane_of[s])
@@ -86,11 +99,11 @@ def peak_sites(geo, cry, planes, inputs: FieldInputs, field: np.ndarray, weights
             mp = cry.m_prime_row(g, s, nb)
             trans = float(np.max(mp * cry.meff[nb] / max(float(np.max(cry.meff[nb])), 1e-12)))
         info = geo.edges.get((min(g, nb), max(g, nb))) if nb >= 0 else None
-        tau_mpa = float(inputs.tau[i, j]) * amplitude
+        tau_mpa = float(inputs.tau[li, lj]) * amplitude
         rows.append({"x_um": float(sx), "y_um": float(sy), "site_score_mpa_um": tau_mpa * band * (1.0 - trans),
                      "grain": g, "blocking_grain": nb, "boundary_id": info[0] if info else -1, "system": s,
                      "plane": planes.labels[p], "resolved_shear_mpa": tau_mpa, "band_length_um": band,
-                     "transmission_score": trans, "field_value": float(field[i, j])})
+                     "transmission_score": trans, "field_value": float(field[li, lj])})
     df = pd.DataFrame(rows)
     df["site_probability"] = site_probability(df["field_value"].to_numpy(), weights, inputs.mode, replicate)
     df = df.sort_values("site_probability", ascending=False, kind="stable").reset_index(drop=True)
@@ -124,10 +137,12 @@ def barrier_features(barriers: pd.DataFrame, crossings: pd.DataFrame, inputs: Fi
         return np.zeros((0, len(BARRIER_FEATURES)))
     xs, ys = barriers["x_um"].to_numpy(float), barriers["y_um"].to_numpy(float)
     ga, gb = barriers["grain_a"].to_numpy(np.int64), barriers["grain_b"].to_numpy(np.int64)
-    shim = _GridShim(*_coords(geo))
+    cry.ensure(np.concatenate([ga, gb]))
+    shim = _GridShim(*_coords(geo, inputs.window))
     r = weights.drop_radius_um
-    fd = np.nan_to_num(boundary_drops(field, geo.labels, inputs.solid, shim, xs, ys, ga, gb, r))
-    td = np.nan_to_num(boundary_drops(inputs.tau, geo.labels, inputs.solid, shim, xs, ys, ga, gb, r))
+    labels = geo.labels if inputs.window is None else geo.labels[_slices(inputs.window)]
+    fd = np.nan_to_num(boundary_drops(field, labels, inputs.solid, shim, xs, ys, ga, gb, r))
+    td = np.nan_to_num(boundary_drops(inputs.tau, labels, inputs.solid, shim, xs, ys, ga, gb, r))
     # systems in and out of each barrier's crossing (first crossing of that grain pair)
     rb = np.zeros(n)
     if crossings is not None and len(crossings) and {"system_in", "system_out"} <= set(crossings.columns):
@@ -153,7 +168,14 @@ def barrier_features(barriers: pd.DataFrame, crossings: pd.DataFrame, inputs: Fi
     return np.nan_to_num(np.stack([cols[c] for c in BARRIER_FEATURES], axis=1))
 
 
-def _coords(geo):
-    jj, ii = np.meshgrid(np.arange(geo.nx), np.arange(geo.ny))
+def _coords(geo, window=None):
+    """Point positions of the map (or of ``window`` = ``(r0, r1, c0, c1)``), µm, as ``(x, y)``."""
+    r0, r1, c0, c1 = (0, geo.ny, 0, geo.nx) if window is None else window
+    jj, ii = np.meshgrid(np.arange(c0, c1), np.arange(r0, r1))
     x = geo.ox + jj * geo.step + (0.5 * geo.step * (ii % 2) if geo.hexgrid else 0.0)
     return x, geo.oy + ii * geo.rs
+
+
+def _slices(window) -> tuple[slice, slice]:
+    r0, r1, c0, c1 = window
+    return slice(r0, r1), slice(c0, c1)

@@ -34,7 +34,8 @@ from slipnet.crystal.orientation import quat_conjugate, quat_multiply
 from slipnet.crystal.perturb import perturb_sample
 from slipnet.forecast._core import _start_grain
 from slipnet.forecast._run import run_forecast_pass
-from slipnet.forecast.features import field_peaks, localisation_features
+from slipnet.forecast._window import forecast_window
+from slipnet.forecast.features import field_peaks, window_features
 from slipnet.forecast.localise import _coords, _GridShim, barrier_features, predict_field, site_probability
 
 __all__ = ["monte_carlo"]
@@ -72,88 +73,118 @@ def _rotated_graph(gg, q_new: np.ndarray):
                    mean_quats=np.asarray(q_new, float))
 
 
+def _draw(rng, quats, load, tip, opts, bw, noise, n_rep: int, schmid, stress_given: bool, geo) -> dict:
+    """One sample's perturbations, drawn from ``rng`` in the fixed order of the sequential loop."""
+    q, ld, dt = perturb_sample(rng, quats, noise.orientation_deg, load, noise.load_deg, tip, noise.tip_um)
+    if schmid is not None and stress_given:  # local factors from a given solve at the nominal load
+        ld = load
+    t = tip + dt
+    pw = _jitter(opts.pw, noise.weights, rng)
+    bws = _jitter(bw, noise.weights, rng)
+    draw = int(rng.integers(max(n_rep, 1)))  # always drawn, so switching it off shifts no other draw
+    rep = draw if n_rep and noise.fitted_weights else None
+    reset = geo.label_at(t[0], t[1]) < 0
+    if reset:
+        t = tip.copy()
+    return {"q": q, "ld": ld, "t": t, "pw": pw, "bw": bws, "rep": rep, "reset": bool(reset)}
+
+
+#: Samples drawn and computed together: the draws of a batch are made in sample order, then the
+#: batch is computed (in parallel when asked); memory grows with the batch × the number of grains.
+BATCH = 64
+
+
 def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int, seed: int, noise, top_k: int,
                 amplitude: float, decay: float, bw, cf, site_radius: float | None = None, gg=None, inputs=None,
                 weights=None, crack=None, systems=None, stress_given: bool = False, cyclic_field=None,
-                free_edges="auto", ratio: float = -1.0, barrier_model: str = "fitted"):
+                free_edges="auto", ratio: float = -1.0, barrier_model: str = "fitted", workers: int = 1):
     """Repeat the forecast under perturbed inputs; return ``fc`` with probabilities and ``samples``.
 
     The arguments are the prepared inputs of :func:`slipnet.forecast.forecast_crack`. A perturbed
     tip falling outside the map or on an unindexed point is put back at the nominal tip (counted
     in the ``tip_reset`` column).
+
+    The perturbations are drawn in batches of :data:`BATCH` samples, each sample's draws in the
+    order of the sequential loop (one stream whatever the batch or the number of workers); the
+    samples of a batch are then computed on ``workers`` threads, each into its own slot, and the
+    sums are taken in sample order, so the numbers do not depend on ``workers``. Every sample works
+    on the window of the forecast (the horizon of its tip): nothing per sample grows with the map.
     """
+    from concurrent.futures import ThreadPoolExecutor
+
     rng = np.random.default_rng(seed)
     bar_keys = [_pair(a, b) for a, b in zip(fc.barriers["grain_a"], fc.barriers["grain_b"], strict=True)]
-    on_path = dict.fromkeys(bar_keys, 0)
-    bar_top = dict.fromkeys(bar_keys, 0)
+    uniq = list(dict.fromkeys(bar_keys))  # barriers of one grain pair share their counts
+    bar_index = {k: i for i, k in enumerate(uniq)}
+    bar_pos = np.array([bar_index[k] for k in bar_keys], np.int64)
+    nk = len(uniq)
     nb, ns = len(fc.barriers), len(fc.sites)
-    p_drop = np.zeros(nb)
-    p_hit = np.zeros(ns)
-    present = np.zeros(ns)
-    site_top = np.zeros(ns)
     sxy = fc.sites[["x_um", "y_um"]].to_numpy(float) if ns else np.zeros((0, 2))
     mode = inputs.mode if inputs is not None else "map"
-    x, y = _coords(geo)
-    shim = _GridShim(x, y)
     n_rep = weights.model(mode, "field").n_replicates if weights is not None else 0
     hit_r = weights.hit_radius_um if weights is not None else 0.0
-    rows = []
-    for s in range(samples):
-        q, ld, dt = perturb_sample(rng, quats, noise.orientation_deg, load, noise.load_deg, tip, noise.tip_um)
-        if schmid is not None and stress_given:  # local factors from a given solve at the nominal load
-            ld = load
-        t = tip + dt
-        pw = _jitter(opts.pw, noise.weights, rng)
-        bws = _jitter(bw, noise.weights, rng)
-        draw = int(rng.integers(max(n_rep, 1)))  # always drawn, so switching it off shifts no other draw
-        rep = draw if n_rep and noise.fitted_weights else None
-        reset = geo.label_at(t[0], t[1]) < 0
-        if reset:
-            t = tip.copy()
+    drop_r = weights.drop_radius_um if weights is not None else 0.0
+    quats = np.asarray(quats, float)
+    q_old = np.asarray(gg.mean_quats, float) if gg is not None else quats
+    # one window holds every sample's horizon unless its tip strays beyond five standard deviations
+    spread = 5.0 * float(noise.tip_um) + 2.0 * max(geo.step, geo.rs)
+    win = forecast_window(gg, geo, tip, opts.horizon + drop_r + spread) if gg is not None else None
+    memo: dict = {}
+    site_ij = np.asarray(gg.omap.index_of(sxy[:, 0], sxy[:, 1])) if (ns and gg is not None) else None
+
+    def one(s: int, dr: dict) -> dict:
+        q, ld, t = dr["q"], dr["ld"], dr["t"]
         g0 = _start_grain(geo, t, opts.d_ref)
-        o = replace(opts, pw=pw)
-        res = run_forecast_pass(geo, planes, q, ld, schmid, t, g0, o, amplitude=amplitude, decay=decay, bw=bws, cf=cf,
-                                want_field=False, sigma_um=1.0, site_radius=site_radius)
+        o = replace(opts, pw=dr["pw"])
+        w = win
+        if w is not None and not _holds(geo, w, t, opts.horizon + drop_r):
+            w = forecast_window(gg, geo, np.stack([tip, t]), opts.horizon + drop_r)
+        res = run_forecast_pass(geo, planes, q, ld, schmid, t, g0, o, amplitude=amplitude, decay=decay, bw=dr["bw"],
+                                cf=cf, want_field=False, sigma_um=1.0, site_radius=site_radius,
+                                rows=None if w is None else w.reach, want_sites=False)
         b = res["barriers"]
-        keys = [_pair(a, c) for a, c in zip(b["grain_a"], b["grain_b"], strict=True)]
-        for k, onp, rk in zip(keys, b["on_path"], b["rank"], strict=True):
-            if k in on_path:
-                on_path[k] += bool(onp)
-                bar_top[k] += bool(rk <= top_k)
+        out = {"on_path": np.zeros(nk), "top": np.zeros(nk), "p_hit": np.zeros(ns), "present": np.zeros(ns),
+               "site_top": np.zeros(ns), "p_drop": np.zeros(nb)}
+        for a_, c_, onp, rk in zip(b["grain_a"], b["grain_b"], b["on_path"], b["rank"], strict=True):
+            i = bar_index.get(_pair(a_, c_))
+            if i is not None:
+                out["on_path"][i] += bool(onp)
+                out["top"][i] += bool(rk <= top_k)
         if weights is not None and inputs is not None:
-            g_s = _rotated_graph(gg, q)
             crack_s = None
             if crack is not None:
                 crack_s = np.asarray(crack, float).copy()
                 crack_s[-1] = t
             keep = stress_given or not noise.resolve_stress
-            field_s = None
-            if keep and inputs.stress_field is not None:
-                field_s = replace(inputs.stress_field, omap=replace(inputs.stress_field.omap,
-                                                                    quats=_rotated_quats(inputs.stress_field.omap,
-                                                                                         gg, q)))
-            inp = localisation_features(
-                g_s, t, opts.d_ref, ld if not keep else load, mode=mode, stress_amplitude=amplitude, crack=crack_s,
-                stress_field=field_s,
-                cyclic_field=inputs.cyclic_field if mode == "cyclic" else cyclic_field,
-                systems=systems, free_edges=free_edges, stress_ratio=ratio)
-            fld = predict_field(inp, weights, rep)
+            kw = dict(mode=mode, stress_amplitude=amplitude, crack=crack_s, systems=systems, free_edges=free_edges,
+                      stress_ratio=ratio, cyclic_field=inputs.cyclic_field if mode == "cyclic" else cyclic_field,
+                      memo=memo if w is win else None)
+            if keep:
+                rot = None
+                if inputs.stress_field is not None:
+                    rot = _rotation(q_old, q)
+                inp = window_features(gg, geo, w, t, opts.d_ref, load, stress_field=inputs.stress_field,
+                                      mean_quats=q, point_rotation=rot, **kw)
+            else:  # a solve per sample on the rotated map (MonteCarloNoise.resolve_stress)
+                inp = window_features(_rotated_graph(gg, q), geo, w, t, opts.d_ref, ld, **kw)
+            fld = predict_field(inp, weights, dr["rep"])
+            r0, _r1, c0, _c1 = inp.window
+            x, y = _coords(geo, inp.window)
             if ns:
-                ii, jj = np.asarray(gg.omap.index_of(sxy[:, 0], sxy[:, 1]))
-                p_hit += site_probability(fld[ii, jj], weights, mode, rep)
+                out["p_hit"] = site_probability(fld[site_ij[0] - r0, site_ij[1] - c0], weights, mode, dr["rep"])
                 region = inp.solid & (np.hypot(x - t[0], y - t[1]) <= opts.horizon)
-                pk = field_peaks(fld, region, shim, max(ns, top_k), weights.site_separation_um)
+                pk = field_peaks(fld, region, _GridShim(x, y), max(ns, top_k), weights.site_separation_um)
                 if len(pk):
                     d2 = (sxy[:, 0, None] - pk[None, :, 0]) ** 2 + (sxy[:, 1, None] - pk[None, :, 1]) ** 2
                     near = d2 <= hit_r ** 2
-                    present += near.any(axis=1)
-                    site_top += near[:, :top_k].any(axis=1)
+                    out["present"] = near.any(axis=1).astype(float)
+                    out["site_top"] = near[:, :top_k].any(axis=1).astype(float)
             if nb:
                 xb = barrier_features(fc.barriers, fc.crossings, inp, fld, geo, res["crystal"], weights, opts.horizon)
-                p_drop += weights.model(mode, "barriers").probability(xb, rep)
+                out["p_drop"] = weights.model(mode, "barriers").probability(xb, dr["rep"])
         path = res["path"]
-        rows.append({
-            "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": bool(reset),
+        out["row"] = {
+            "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": dr["reset"],
             "load_x": float(ld[0]), "load_y": float(ld[1]), "load_z": float(ld[2]),
             "path_length_um": float(path["length_um"].sum()), "n_crossings": int((res["crossings"].get(
                 "branch", pd.Series(dtype=int)) == 0).sum()) if len(res["crossings"]) else 0,
@@ -161,14 +192,55 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             "top_barrier_id": int(b["boundary_id"].iloc[0]) if len(b) else -1,
             "end_x_um": float(path["x1_um"].iloc[-1]) if len(path) else float(t[0]),
             "end_y_um": float(path["y1_um"].iloc[-1]) if len(path) else float(t[1]),
-        })
+        }
+        return out
+
+    tot = {k: np.zeros(nk if k in ("on_path", "top") else nb if k == "p_drop" else ns) for k in
+           ("on_path", "top", "p_hit", "present", "site_top", "p_drop")}
+    rows = []
+    n_workers = max(1, int(workers))
+    pool = ThreadPoolExecutor(max_workers=n_workers) if n_workers > 1 else None
+    try:
+        for start in range(0, samples, BATCH):
+            idx = range(start, min(samples, start + BATCH))
+            draws = [_draw(rng, quats, load, tip, opts, bw, noise, n_rep, schmid, stress_given, geo) for _ in idx]
+            outs = list(pool.map(one, idx, draws)) if pool is not None else [one(s, d) for s, d in zip(idx, draws,
+                                                                                                       strict=True)]
+            for o in outs:  # summed in sample order: the same numbers for any number of workers
+                for k in tot:
+                    tot[k] += o[k]
+                rows.append(o["row"])
+    finally:
+        if pool is not None:
+            pool.shutdown()
     n = float(samples)
     barriers = fc.barriers.copy()
-    barriers["p_on_path"] = [on_path[k] / n for k in bar_keys]
-    barriers["p_top_k"] = [bar_top[k] / n for k in bar_keys]
-    barriers["p_drop"] = p_drop / n
+    barriers["p_on_path"] = tot["on_path"][bar_pos] / n
+    barriers["p_top_k"] = tot["top"][bar_pos] / n
+    barriers["p_drop"] = tot["p_drop"] / n
     sites = fc.sites.copy()
-    sites["p_present"] = present / n
-    sites["p_top_k"] = site_top / n
-    sites["p_hit"] = p_hit / n
+    sites["p_present"] = tot["present"] / n
+    sites["p_top_k"] = tot["site_top"] / n
+    sites["p_hit"] = tot["p_hit"] / n
     return replace(fc, barriers=barriers, sites=sites, samples=pd.DataFrame(rows))
+
+
+def _rotation(q_old: np.ndarray, q_new: np.ndarray) -> np.ndarray:
+    """Per grain q_new · q_old⁻¹ (identity where either is undefined), as :func:`_rotated_quats` takes it."""
+    ok = np.all(np.isfinite(q_old), axis=1) & np.all(np.isfinite(q_new), axis=1)
+    dq = np.tile([1.0, 0.0, 0.0, 0.0], (q_old.shape[0], 1))
+    if ok.any():
+        dq[ok] = quat_multiply(q_new[ok], quat_conjugate(q_old[ok]))
+    return dq
+
+
+def _holds(geo, win, t, radius: float) -> bool:
+    """Whether the window's inner box holds every point within ``radius`` of ``t`` (that lies on the map)."""
+    pad = 2.0 * max(geo.step, geo.rs)
+    rr = radius + pad
+    r0 = max(0, int(np.floor((t[1] - rr - geo.oy) / geo.rs)))
+    r1 = min(geo.ny, int(np.ceil((t[1] + rr - geo.oy) / geo.rs)) + 1)
+    c0 = max(0, int(np.floor((t[0] - rr - geo.ox) / geo.step)) - 1)
+    c1 = min(geo.nx, int(np.ceil((t[0] + rr - geo.ox) / geo.step)) + 2)
+    b = win.inner
+    return b.r0 <= r0 and b.c0 <= c0 and b.r1 >= r1 and b.c1 >= c1

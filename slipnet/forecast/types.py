@@ -136,7 +136,9 @@ class CrackForecast:
     alternatives : DataFrame
         Segments of the alternative paths (same columns as ``path`` plus ``branch`` ≥ 1).
     field : (ny, nx) ndarray or None
-        Predicted localisation field on the map grid, maximum 1.
+        Predicted localisation probability on the map grid. It is computed on the window of points
+        within the horizon (plus the barrier drop radius) of the tip, where the forecast's sites and
+        barriers are read, and is 0 outside that window.
     samples : DataFrame or None
         One row per Monte Carlo sample, or None without sampling.
     settings : dict
