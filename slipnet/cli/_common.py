@@ -15,8 +15,8 @@ import sys
 
 from slipnet.errors import ParameterError
 
-__all__ = ["Parents", "grain_graph_from_args", "out_folder", "output_run", "parents", "print_warning",
-           "read_map_from_args", "solve_local_stress"]
+__all__ = ["Parents", "grain_graph_from_args", "out_folder", "output_run", "parents", "phase_structures",
+           "print_warning", "read_map_from_args", "solve_local_stress"]
 
 
 class Parents:
@@ -29,7 +29,15 @@ class Parents:
                        help="rotation taking the recorded sample frame into the map frame: 'AXIS@DEG' "
                        "(e.g. 1,0,0@180) or a quaternion 'w,x,y,z'")
         g.add_argument("--quality-prop", metavar="NAME",
-                       help="per-point property used as quality (files read through orix)")
+                       help="per-point property used as quality (files read through orix); default: the first of "
+                       "confidence index, image quality, band contrast, band slope, pattern quality, mean angular "
+                       "deviation (inverted), pattern fit (inverted) that the file has (docs/map-format.md)")
+        g.add_argument("--phase", action="append", metavar="NAME=STRUCTURE",
+                       help="say what a phase of the map is (by name or id): bcc, fcc, other (shown, not analysed "
+                       "for slip) or ignore (its points unindexed); repeatable. Overrides what the file says")
+        g.add_argument("--step-um", type=float, metavar="UM",
+                       help="grid step in µm for a file read through orix whose scan unit is pixels (required "
+                       "there), or to place its points with this step")
 
         self.cleanup = argparse.ArgumentParser(add_help=False)
         g = self.cleanup.add_argument_group("grain reconstruction and clean-up")
@@ -129,7 +137,9 @@ def read_map_from_args(args, path: str):
     from slipnet.study.steps import map_warnings
 
     omap = read_map(path, frame_rotation=getattr(args, "frame_rotation", None),
-                    quality_prop=getattr(args, "quality_prop", None))
+                    quality_prop=getattr(args, "quality_prop", None),
+                    structures=phase_structures(getattr(args, "phase", None)) or None,
+                    step_um=getattr(args, "step_um", None))
     map_warnings(omap, print_warning)
     return omap
 
@@ -166,6 +176,18 @@ def solve_local_stress(args, omap, stress: float):
     print(f"local stress: {field.iterations} iterations, residual {field.residual:.2e}; "
           f"assumptions: {field.assumptions}")
     return field
+
+
+def phase_structures(items) -> dict[str, str]:
+    """``--phase NAME=STRUCTURE`` arguments as ``{name: structure}`` (the check of the choice is the reader's)."""
+    out: dict[str, str] = {}
+    for it in items or ():
+        name, sep, val = str(it).rpartition("=")
+        if not sep or not name.strip() or not val.strip():
+            raise ParameterError(f"--phase should be NAME=STRUCTURE with STRUCTURE one of bcc, fcc, other, ignore, "
+                                 f"e.g. 'austenite=fcc'; got {it!r}")
+        out[name.strip()] = val.strip()
+    return out
 
 
 def name_value_pairs(items, option: str, example: str, *, default: float | None = None,

@@ -9,12 +9,13 @@ from __future__ import annotations
 import os
 from dataclasses import replace
 
-from slipnet.cli._common import name_value_pairs, out_folder
+from slipnet.cli._common import name_value_pairs, out_folder, phase_structures
 from slipnet.errors import ParameterError
 
 #: option dest → (options section, field).
 _OVERRIDES = {
     "frame_rotation": ("map", "frame_rotation"), "quality_prop": ("map", "quality_prop"),
+    "step_um": ("map", "step_um"),
     "threshold": ("grains", "threshold_deg"), "subgrain": ("grains", "subgrain_deg"),
     "min_quality": ("grains", "min_quality"), "min_points": ("grains", "min_grain_size"),
     "min_area": ("grains", "min_grain_area_um2"),
@@ -119,6 +120,8 @@ def options_from_args(args):
         v = getattr(args, dest, None)
         if v is not None:
             parts[sec][key] = os.path.abspath(v)
+    if args.phase:
+        parts["map"]["structures"] = {**(opts.map.structures or {}), **phase_structures(args.phase)}
     if args.fill:
         parts["grains"]["fill_unindexed"] = True
     if args.calibrate:

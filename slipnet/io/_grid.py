@@ -15,7 +15,7 @@ import numpy as np
 from slipnet._inputs import check_allocation
 from slipnet.errors import InputFileError
 
-__all__ = ["GridPlacement", "detect_grid", "place_points"]
+__all__ = ["GridPlacement", "detect_grid", "place_points", "short_rows_note"]
 
 # A point may sit this fraction of a step away from its grid node and still count as on the grid:
 # text files print positions to 1e-6 µm and orix files carry float32 coordinates.
@@ -27,12 +27,37 @@ _BYTES_PER_POINT = 64
 
 
 class GridPlacement:
-    """Where each input point goes: flat row-major index into ``(ny, nx)`` plus the grid origin."""
+    """Where each input point goes: flat row-major index into ``(ny, nx)`` plus the grid origin.
 
-    def __init__(self, flat: np.ndarray, shape: tuple[int, int], origin: tuple[float, float]) -> None:
+    ``filled`` counts the grid points no input point fills because the hex rows of one parity
+    (``filled_parity``: 0 even, 1 odd, counted from row 0) are one point shorter; the reader
+    leaves them unindexed.
+    """
+
+    def __init__(self, flat: np.ndarray, shape: tuple[int, int], origin: tuple[float, float],
+                 filled: int = 0, filled_parity: int | None = None) -> None:
         self.flat = flat
         self.shape = shape
         self.origin = origin
+        self.filled = filled
+        self.filled_parity = filled_parity
+
+
+def _short_row_parity(missing: np.ndarray, ny: int, nx: int) -> int | None:
+    """0 or 1 when the missing points are exactly the last column of every even (odd) row, else None.
+
+    Hex scans commonly alternate row lengths: the rows shifted by step/2 hold one point fewer, so
+    they end half a step inside the longer rows (e.g. 5 points on row 0, 4 on row 1 of a 5-wide
+    scan). Counted from 0 those are the odd rows; the even ones are accepted too, in case a file
+    starts on a short row.
+    """
+    if nx < 2 or ny < 2:
+        return None
+    for parity in (1, 0):
+        rows = np.arange(parity, ny, 2)
+        if missing.size == rows.size and np.array_equal(missing, rows * nx + (nx - 1)):
+            return parity
+    return None
 
 
 def _tolerance(step: float) -> float:
@@ -126,7 +151,9 @@ def place_points(
     Raises
     ------
     InputFileError
-        A point off the grid, outside the declared shape, given twice, or a grid point missing.
+        A point off the grid, outside the declared shape, given twice, or a grid point missing
+        (other than the last point of every even or every odd row of a hex grid: the short rows
+        of a hex scan, see :class:`GridPlacement`).
     """
     tol = _tolerance(step)
     row_spacing = step * (math.sqrt(3.0) / 2.0 if grid == "hex" else 1.0)
@@ -197,6 +224,9 @@ def place_points(
             line=line,
         )
     missing = np.flatnonzero(counts == 0)
+    parity = _short_row_parity(missing, ny, nx) if grid == "hex" and missing.size else None
+    if parity is not None:
+        return GridPlacement(flat, (ny, nx), (x0, y0), filled=int(missing.size), filled_parity=parity)
     if missing.size:
         mi, mj = divmod(int(missing[0]), nx)
         mx = x0 + (mj + (0.5 * (mi % 2) if grid == "hex" else 0.0)) * step
@@ -207,3 +237,10 @@ def place_points(
             path=path,
         )
     return GridPlacement(flat, (ny, nx), (x0, y0))
+
+
+def short_rows_note(place) -> str:
+    """The decision a hex grid with short rows makes, in words."""
+    rows = "odd" if place.filled_parity == 1 else "even"
+    return (f"hex grid with alternating row lengths: the {rows} rows (counted from 0) are one point shorter, so "
+            f"{place.filled} points at the right end of those rows were added as unindexed points")

@@ -33,8 +33,8 @@ import pandas as pd
 
 from slipnet.crystal.orientation import quat_from_euler
 from slipnet.errors import InputFileError
-from slipnet.io._grid import place_points
-from slipnet.maps.orientation_map import GRIDS, STRUCTURES, OrientationMap, Phase
+from slipnet.io._grid import place_points, short_rows_note
+from slipnet.maps.orientation_map import CUBIC_STRUCTURES, GRIDS, STRUCTURES, OrientationMap, Phase
 
 FORMAT_NAME = "slipnet-points"
 FORMAT_VERSION = 1
@@ -265,6 +265,12 @@ def _check_header(path: str, settings: dict, columns: list[str], col_line: int) 
             f"phase lines should be numbered 0, 1, 2, ... without gaps; got {sorted(phases_by_id)}", path=path
         )
     phases = tuple(phases_by_id[k] for k in range(len(phases_by_id)))
+    if phases[0].structure not in CUBIC_STRUCTURES:
+        raise InputFileError(
+            f"phase 0 is {phases[0].name!r} ({phases[0].structure}); phase 0 should be a phase slipnet analyses "
+            f"({', '.join(CUBIC_STRUCTURES)}): renumber the phase lines and the phase column",
+            path=path,
+        )
     unknown = [c for c in columns if c not in COLUMNS]
     if unknown:
         raise InputFileError(
@@ -392,6 +398,9 @@ def _build_map(path: str, settings: dict, phases: tuple[Phase, ...], cols: dict,
     quality[place.flat] = cols["quality"]
     ind = np.zeros(n, bool)
     ind[rows] = True
+    meta = dict(settings.get("meta", {}))
+    if place.filled:
+        meta["decisions"] = [*list(meta.get("decisions") or []), short_rows_note(place)]
     return OrientationMap(
         quats=quats.reshape(ny, nx, 4),
         phase=phase.reshape(ny, nx),
@@ -402,5 +411,5 @@ def _build_map(path: str, settings: dict, phases: tuple[Phase, ...], cols: dict,
         phases=phases,
         origin=place.origin,
         name=settings.get("name", Path(path).stem),
-        meta=dict(settings.get("meta", {})),
+        meta=meta,
     )

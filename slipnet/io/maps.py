@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import os
 from collections.abc import Sequence
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -25,13 +26,14 @@ from slipnet._inputs import checked_input
 from slipnet.crystal.orientation import quat_from_axis_angle
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._bundle import ZIP_MAGIC, read_bundle, write_bundle
-from slipnet.io._orix import from_orix, to_orix
+from slipnet.io._orix import check_all_used, check_structures, from_orix, said_structure, to_orix
 from slipnet.io._text import looks_like_text_table, read_text, write_text
-from slipnet.maps.orientation_map import OrientationMap, apply_frame_rotation
+from slipnet.maps.orientation_map import CUBIC_STRUCTURES, OrientationMap, Phase, apply_frame_rotation
 
 __all__ = [
     "BUNDLE_SUFFIXES",
     "TEXT_SUFFIXES",
+    "check_structures",
     "from_orix",
     "map_summary",
     "parse_frame_rotation",
@@ -129,6 +131,8 @@ def read_map(
     *,
     frame_rotation=None,
     quality_prop: str | None = None,
+    structures: dict | None = None,
+    step_um: float | None = None,
 ) -> OrientationMap:
     """Read an orientation map from any supported file, recognised by content and extension.
 
@@ -142,22 +146,37 @@ def read_map(
         sample frame into slipnet's map frame; applied with
         :func:`slipnet.maps.apply_frame_rotation` and recorded in ``meta["frame_rotation"]``.
     quality_prop
-        For orix-read files: the property used as quality (see :func:`from_orix`).
+        For orix-read files: the property used as quality; ``None`` applies the quality rule
+        (:data:`slipnet.io._orix.QUALITY_RULES`, docs/map-format.md).
+    structures
+        ``{phase name or id: "bcc" | "fcc" | "other" | "ignore"}``: what a phase is, overriding
+        what the file says or cannot say (ids are orix's phase ids, or the phase numbers of a
+        slipnet table). Every entry must name a phase of the file.
+    step_um
+        Grid step in µm, for files read through orix: required when the scan unit is pixels
+        (the coordinates are scaled so one step is ``step_um``); otherwise used to place the
+        points instead of the step worked out from them. slipnet's own files state their step.
 
     Returns
     -------
     OrientationMap
+        ``meta["decisions"]`` lists, in words, every choice the reader made (quality property,
+        phase structures, units, short hex rows); the commands print them.
 
     Raises
     ------
     InputFileError
-        Missing, empty, damaged or malformed file (naming file, line and column and the fix).
+        Missing, empty, damaged or malformed file (naming file, line and column and the fix), a
+        phase whose structure the file does not tell, a pixel scan without ``step_um``.
+    ParameterError
+        Bad ``structures``, ``step_um`` or ``frame_rotation``.
     """
     p = Path(path)
     if not p.exists():
         raise InputFileError("no such file; check the path", path=str(p))
     checked_input(p, "orientation map")
     rot = None if frame_rotation is None else parse_frame_rotation(frame_rotation)
+    said = check_structures(structures)
     kind = _sniff(p)
     if kind == "empty":
         raise InputFileError(
@@ -171,6 +190,12 @@ def read_map(
             path=str(p),
             line=1,
         )
+    if kind in ("bundle", "text") and step_um is not None:
+        raise ParameterError(
+            f"step_um is for files read through orix (a pixel scan needs it); {p.name} is a slipnet "
+            f"{kind}, which states its own step ({'step_um in its header' if kind == 'text' else 'stored'}): "
+            "leave the step out"
+        )
     if kind == "bundle":
         omap = read_bundle(p)
     elif kind == "text":
@@ -181,13 +206,50 @@ def read_map(
                 f"the text is not valid UTF-8 near byte {err.start}; save the table as UTF-8", path=str(p)
             ) from err
     else:
-        omap = _read_with_orix(p, quality_prop)
+        omap = _read_with_orix(p, quality_prop, said, step_um)
+    if kind in ("bundle", "text"):
+        omap = _apply_structures(omap, said, str(p))
     if rot is not None:
         omap = apply_frame_rotation(omap, rot)
     return omap
 
 
-def _read_with_orix(p: Path, quality_prop: str | None) -> OrientationMap:
+def _apply_structures(omap: OrientationMap, said: dict[str, str], path: str) -> OrientationMap:
+    """The phases of a slipnet file re-declared as ``said`` (renumbered bcc/fcc first; 'ignore' dropped)."""
+    if not said:
+        return omap
+    used: set = set()
+    names = [f"{p.name!r} (id {k})" for k, p in enumerate(omap.phases)]
+    decisions = list((omap.meta or {}).get("decisions") or [])
+    kept: list[tuple[int, Phase]] = []
+    for k, ph in enumerate(omap.phases):
+        choice = said_structure(said, ph.name, k, used)
+        count = int(np.count_nonzero(omap.indexed & (omap.phase == k)))
+        if choice is None:
+            kept.append((k, ph))
+        elif choice == "ignore":
+            decisions.append(f"phase {ph.name} (id {k}): ignored as asked; its {count} points are unindexed")
+        else:
+            decisions.append(f"phase {ph.name} (id {k}): {choice}, as given (the file says {ph.structure})")
+            kept.append((k, replace(ph, structure=choice)))
+    check_all_used(said, used, names, path)
+    kept.sort(key=lambda kp: (kp[1].structure not in CUBIC_STRUCTURES, kp[0]))
+    if not kept or kept[0][1].structure not in CUBIC_STRUCTURES:
+        raise InputFileError(
+            "after the phases given, the map has no bcc or fcc phase left; slipnet analyses bcc/fcc phases only",
+            path=path,
+        )
+    table = np.full(len(omap.phases) + 1, -1, dtype=np.int32)  # the last entry serves phase −1
+    for new, (old, _) in enumerate(kept):
+        table[old] = new
+    phase = table[omap.phase]
+    meta = dict(omap.meta)
+    meta["decisions"] = decisions
+    return replace(omap, phase=phase, indexed=omap.indexed & (phase >= 0), phases=tuple(p for _, p in kept),
+                   meta=meta)
+
+
+def _read_with_orix(p: Path, quality_prop: str | None, said: dict, step_um: float | None) -> OrientationMap:
     from orix import io as orix_io
 
     try:
@@ -199,9 +261,7 @@ def _read_with_orix(p: Path, quality_prop: str | None) -> OrientationMap:
             "orix.io.load reads",
             path=str(p),
         ) from err
-    omap = from_orix(xmap, quality_prop=quality_prop, path=str(p))
-    from dataclasses import replace
-
+    omap = from_orix(xmap, quality_prop=quality_prop, structures=said, step=step_um, path=str(p))
     meta = dict(omap.meta)
     meta["source_file"] = p.name
     return replace(omap, name=p.stem, meta=meta)
@@ -262,11 +322,22 @@ def map_summary(omap: OrientationMap) -> list[str]:
         "phases:",
     ]
     counts = np.bincount(omap.phase[omap.indexed].ravel(), minlength=len(omap.phases))
+    point_groups = (omap.meta or {}).get("phase_point_groups") or {}
     for k, ph in enumerate(omap.phases):
-        lines.append(
-            f"  {k}: {ph.name} ({ph.structure}, a = {ph.lattice_parameter_nm:g} nm), "
-            f"{int(counts[k])} points ({100.0 * counts[k] / n:.2f} %)"
-        )
+        if ph.structure in CUBIC_STRUCTURES:
+            what = f"{ph.structure}, a = {ph.lattice_parameter_nm:g} nm"
+        else:
+            pg = point_groups.get(ph.name)
+            what = "other" + (f", point group {pg}" if pg else "") + ": shown, not analysed for slip"
+        lines.append(f"  {k}: {ph.name} ({what}), {int(counts[k])} points ({100.0 * counts[k] / n:.2f} %)")
+    quality = (omap.meta or {}).get("quality")
+    if isinstance(quality, dict):
+        lines.append(f"quality: {quality.get('property') or 'none (1 at every point)'}"
+                     + (f" ({quality.get('kind')}, {quality.get('rule')})" if quality.get("property") else ""))
     if omap.meta.get("frame_rotation") is not None:
         lines.append(f"frame rotation applied: {omap.meta['frame_rotation']}")
+    decisions = (omap.meta or {}).get("decisions") or []
+    if decisions:
+        lines.append("decisions of the reader:")
+        lines += [f"  - {d}" for d in decisions]
     return lines

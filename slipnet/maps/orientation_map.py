@@ -23,10 +23,14 @@ from slipnet._checks import check_choice, check_positive
 from slipnet.crystal.orientation import euler_from_quat, quat_conjugate, quat_from_euler, quat_multiply
 from slipnet.errors import ParameterError
 
-__all__ = ["GRIDS", "STRUCTURES", "OrientationMap", "Phase", "apply_frame_rotation"]
+__all__ = ["CUBIC_STRUCTURES", "GRIDS", "STRUCTURES", "OrientationMap", "Phase", "apply_frame_rotation"]
 
 GRIDS = ("square", "hex")
-STRUCTURES = ("bcc", "fcc")
+#: The structures slipnet analyses (slip systems, elastic constants, cubic symmetry 432).
+CUBIC_STRUCTURES = ("bcc", "fcc")
+#: Every structure a phase may have: 'other' is a phase read from a file that slipnet keeps, shows and
+#: counts but leaves out of slip analysis (non-cubic, or cubic but neither bcc nor fcc).
+STRUCTURES = (*CUBIC_STRUCTURES, "other")
 
 
 @dataclass(frozen=True)
@@ -38,9 +42,13 @@ class Phase:
     name
         Free text, e.g. ``"ferrite"``.
     structure
-        ``"bcc"`` or ``"fcc"`` (both cubic: the orientation maths uses point group 432).
+        ``"bcc"`` or ``"fcc"`` (both cubic: the orientation maths uses point group 432), or
+        ``"other"`` for a phase kept as read but left out of slip analysis (its Schmid factors are
+        NaN; the grain reconstruction still applies cubic symmetry to it, so its grain outlines
+        are approximate).
     lattice_parameter_nm
-        Cubic lattice parameter in nm (used for Burgers vector lengths).
+        Cubic lattice parameter in nm (used for Burgers vector lengths); for ``"other"`` the
+        first lattice parameter as read, not used.
     """
 
     name: str
@@ -113,6 +121,10 @@ class OrientationMap:
         phases = tuple(self.phases)
         if not phases or not all(isinstance(p, Phase) for p in phases):
             raise ParameterError("phases should be a non-empty tuple of Phase")
+        if phases[0].structure not in CUBIC_STRUCTURES:
+            # later steps take the map's structure from its first phase
+            raise ParameterError(f"the first phase should be {' or '.join(CUBIC_STRUCTURES)}; got {phases[0].name!r} "
+                                 f"({phases[0].structure}): list phases slipnet does not analyse after it")
         good = ind & np.all(np.isfinite(q), axis=-1)
         if np.any(ind & ~good):
             raise ParameterError("indexed points should carry finite quaternions; mark NaN points unindexed")

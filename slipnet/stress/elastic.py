@@ -291,10 +291,13 @@ class _Spectral:
             # loop back: recompute the true residual (the CG recurrence drifts in round-off)
 
 
-def _phase_constants(omap: OrientationMap, constants) -> list[CubicConstants]:
+def _phase_constants(omap: OrientationMap, constants) -> list[CubicConstants | None]:
     out = []
     for i, ph in enumerate(omap.phases):
         c = None
+        if ph.structure not in DEFAULT_CONSTANTS:
+            out.append(None)  # a phase slipnet does not analyse ('other'): its points are solved as unindexed
+            continue
         if constants is None:
             c = DEFAULT_CONSTANTS[ph.structure]
         elif isinstance(constants, CubicConstants):
@@ -328,6 +331,8 @@ def _prepare(omap: OrientationMap, constants, compliant_ratio: float, unindexed:
     quats = np.array(omap.quats, dtype=np.float64)
     phase = np.array(omap.phase, dtype=np.int64)
     soft = ~indexed
+    no_constants = np.array([c is None for c in consts] + [False])
+    soft = soft | no_constants[np.asarray(omap.phase)]
     if unindexed != "compliant" and soft.any():
         from scipy import ndimage
 
@@ -347,6 +352,7 @@ def _prepare(omap: OrientationMap, constants, compliant_ratio: float, unindexed:
     main = int(np.bincount(phase[~soft].ravel()).argmax())
     vrh = voigt_reuss_hill(consts[main])
     soft_c = compliant_ratio * _isotropic_mandel(vrh["bulk_gpa"], vrh["shear_hill_gpa"])
+    consts = [consts[main] if c is None else c for c in consts]  # placeholders only: no point uses them
     crystal = np.stack([c.mandel() for c in consts])
     n = quats.shape[0] * quats.shape[1]
     ph = np.where(soft, -1, phase).reshape(n)

@@ -7,7 +7,8 @@ study can be run again exactly: ``slipnet study --study <out>/study.toml``. Notc
 ``[cleanup]``, ``[stress]``, ``[forecast]`` and ``[compare]``::
 
     [specimen]     map (path, relative to the study file), frame_rotation, quality_prop,
-                   threshold_deg, min_grain_size
+                   structures (table: phase name or id = "bcc" | "fcc" | "other" | "ignore"),
+                   step_um (grid step of a pixel scan), threshold_deg, min_grain_size
     [cleanup]      subgrain_deg, min_quality, fill_unindexed, min_grain_area_um2
     [loading]      axis (3 numbers, map frame; required), stress_amplitude_mpa, stress_ratio
     [stress]       tol, unindexed ("auto" | "compliant" | "nearest")
@@ -49,11 +50,18 @@ __all__ = [
 
 @dataclass(frozen=True)
 class MapOptions:
-    """How the map is read: the file, a frame rotation ('AXIS@DEG' or 'w,x,y,z') and the quality property."""
+    """How the map is read (:func:`slipnet.io.read_map` keywords).
+
+    The file, a frame rotation ('AXIS@DEG' or 'w,x,y,z'), the quality property, what phases are
+    (``{phase name or id: "bcc" | "fcc" | "other" | "ignore"}``) and the grid step in µm of a
+    pixel scan.
+    """
 
     path: str = ""
     frame_rotation: str | None = None
     quality_prop: str | None = None
+    structures: dict | None = None
+    step_um: float | None = None
 
 
 @dataclass(frozen=True)
@@ -196,6 +204,9 @@ class StudyOptions:
             raise ParameterError("study: give the load axis as three numbers in the map frame (--load-axis X Y Z "
                                  f"or [loading] axis = [x, y, z]); got {list(axis)}")
         _check_ranges(self)
+        from slipnet.io.maps import check_structures
+
+        check_structures(self.map.structures)  # a wrong phase choice is refused before any work
         if not self.notch.edges:
             raise ParameterError("study: give at least one edge to notch (--side, --edge or [candidates] edges)")
         for e in self.notch.edges:
@@ -220,6 +231,8 @@ _FILE_KEYS: dict[tuple[str, str], tuple[str, str]] = {
     ("specimen", "map"): ("map", "path"),
     ("specimen", "frame_rotation"): ("map", "frame_rotation"),
     ("specimen", "quality_prop"): ("map", "quality_prop"),
+    ("specimen", "structures"): ("map", "structures"),
+    ("specimen", "step_um"): ("map", "step_um"),
     ("specimen", "threshold_deg"): ("grains", "threshold_deg"),
     ("specimen", "min_grain_size"): ("grains", "min_grain_size"),
     **{("cleanup", k): ("grains", k) for k in ("subgrain_deg", "min_quality", "fill_unindexed", "min_grain_area_um2")},
@@ -248,6 +261,7 @@ _PATH_KEYS = {("map", "path"), ("compare", "strain"), ("compare", "control_point
 #: Bounds keep a typing slip (``samples = 1e18``, a size in nm) from becoming a run that never
 #: ends or a request for more memory than any machine has; each is far beyond practical use.
 RANGES: dict[tuple[str, str], tuple[float, float, bool]] = {
+    ("map", "step_um"): (1e-6, 1e6, False),
     ("grains", "min_grain_size"): (1, 10**6, True),
     ("load", "stress_amplitude_mpa"): (1e-3, 1e5, False),
     ("load", "stress_ratio"): (-10.0, 0.99, False),
@@ -381,8 +395,15 @@ def _toml_value(v) -> str:
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(x) for x in v) + "]"
     if isinstance(v, dict):
-        return "{" + ", ".join(f"{k} = {_toml_value(x)}" for k, x in v.items()) + "}"
+        return "{" + ", ".join(f"{_toml_key(str(k))} = {_toml_value(x)}" for k, x in v.items()) + "}"
     raise ParameterError(f"cannot write {v!r} into a study file")
+
+
+def _toml_key(key: str) -> str:
+    """A TOML key: bare when it may be, else quoted (phase names may hold spaces or dots)."""
+    if key and all(ch.isascii() and (ch.isalnum() or ch in "-_") for ch in key):
+        return key
+    return _toml_value(key)
 
 
 def study_file_text(opts: StudyOptions, *, header: str = "") -> str:

@@ -58,20 +58,17 @@ class Outcome:
 
 def step_map(opts: StudyOptions, warn: Warn) -> OrientationMap:
     """Read the map once, with the frame rotation and quality property chosen."""
-    omap = read_map(opts.map.path, frame_rotation=opts.map.frame_rotation, quality_prop=opts.map.quality_prop)
+    m = opts.map
+    omap = read_map(m.path, frame_rotation=m.frame_rotation, quality_prop=m.quality_prop, structures=m.structures,
+                    step_um=m.step_um)
     return omap
 
 
 def map_warnings(omap: OrientationMap, warn: Warn) -> None:
-    """What the reader had to guess or set (kept in the map's meta), told to the user."""
+    """What the reader decided or had to guess (``meta["decisions"]``, kept in the map), told to the user."""
     meta = omap.meta or {}
-    for note in meta.get("notes", []) or []:
-        warn("map", f"{note} (check the phase list of the file)")
-    if str(meta.get("quality_source", "")).startswith("none"):
-        warn("map", "the file has no quality property: quality was set to 1 at every point, so --min-quality "
-             "removes nothing (choose one with --quality-prop)")
-    for name in meta.get("unindexed_non_cubic_phases", []) or []:
-        warn("map", f"phase {name} is not cubic: its points were left unindexed")
+    for decision in meta.get("decisions", []) or []:
+        warn("map", str(decision))
     frac = 1.0 - float(np.mean(omap.indexed))
     if frac > 0.2:
         warn("map", f"{100 * frac:.0f} % of the points are unindexed: grains and forecasts near them are uncertain")
