@@ -37,7 +37,13 @@ from slipnet.compare.localisation import (
     grain_band_directions,
     grain_statistics,
 )
-from slipnet.compare.registration import Transform, fit_transform, labels_on_strain_grid, resample_to_map
+from slipnet.compare.registration import (
+    Transform,
+    check_registration,
+    fit_transform,
+    labels_on_strain_grid,
+    resample_to_map,
+)
 from slipnet.compare.scores import (
     match_dips,
     path_segments,
@@ -153,17 +159,25 @@ def growth_profile_from(growth) -> pd.DataFrame | None:
 
 def compare_files(strain_path, *, points=None, kind: str = "affine", gg=None, map_path=None,
                   threshold_deg: float = 15.0, forecast_folder=None, sites=None, path=None, barriers=None,
-                  measured_path=None, record=None, growth_folder=None, **options) -> Comparison:
+                  measured_path=None, record=None, growth_folder=None, strain_options: dict | None = None,
+                  points_options: dict | None = None, record_options: dict | None = None,
+                  **options) -> Comparison:
     """:func:`compare_forecast` on files: a strain file, control points, map, forecast and growth tables.
 
     The grains come from ``gg`` or, failing that, from the map at ``map_path`` rebuilt at
-    ``threshold_deg``. ``options`` go to :func:`compare_forecast` (tolerances, strain method, load
-    axis...).
+    ``threshold_deg``. ``strain_options`` go to :func:`slipnet.io.read_strain` (column mapping,
+    units, encoding...), ``points_options`` to :func:`slipnet.io.read_control_points` and
+    ``record_options`` to :func:`slipnet.io.read_growth_record`; what those readers had to guess
+    joins :attr:`Comparison.warnings`. ``options`` go to :func:`compare_forecast` (tolerances,
+    strain method, load axis...).
     """
-    series = read_strain(strain_path)
+    series = read_strain(strain_path, **(strain_options or {}))
+    notes: list[str] = []
     transform = None
     if points is not None:
-        src, dst = read_control_points(points)
+        cp_notes: list[str] = []
+        src, dst = read_control_points(points, notes=cp_notes, **(points_options or {}))
+        notes += [f"control points: {n}" for n in cp_notes]
         transform = fit_transform(src, dst, kind)
     if gg is None and map_path is not None:
         gg = build_grain_graph(read_map(map_path), threshold_deg)
@@ -176,9 +190,16 @@ def compare_files(strain_path, *, points=None, kind: str = "affine", gg=None, ma
     growth = read_growth_folder(growth_folder) if growth_folder is not None else None
     if growth is not None and growth.dips is None:
         growth = GrowthTables(pd.DataFrame({"crack_length_um": [], "depth_ratio": []}), growth.profile)
-    return compare_forecast(series, forecast=fc if has_fc else None, gg=gg, transform=transform,
+    rec = None
+    if record:
+        rec_notes: list[str] = []
+        rec = read_growth_record(record, notes=rec_notes, **(record_options or {}))
+        notes += [f"growth record: {n}" for n in rec_notes]
+    comp = compare_forecast(series, forecast=fc if has_fc else None, gg=gg, transform=transform,
                             measured_path=read_measured_path(measured_path) if measured_path else None,
-                            growth_record=read_growth_record(record) if record else None, growth=growth, **options)
+                            growth_record=rec, growth=growth, **options)
+    comp.warnings.extend(notes)
+    return comp
 
 
 # =================================================================================== whole comparison
@@ -218,6 +239,9 @@ class Comparison:
         Predicted growth profile (``crack_length_um``, ``dadn_um_per_cycle``) for the figure.
     map_extent : tuple or None
         ``imshow`` extent of the map grid (µm) when a grain graph was given.
+    warnings : list of str
+        What the user should check: registration checks (grid step against the map's, residual,
+        overlap), notes of the strain reader, scores that could not be computed.
     """
 
     transform: Transform | None
@@ -238,6 +262,7 @@ class Comparison:
     measured_path: np.ndarray | None = None
     predicted_profile: pd.DataFrame | None = None
     map_extent: tuple[float, float, float, float] | None = None
+    warnings: list = field(default_factory=list)
 
     def score_table(self) -> pd.DataFrame:
         """Scores as a two-column table (``score``, ``value``)."""
@@ -302,9 +327,21 @@ def compare_forecast(series: StrainSeries, *, forecast=None, gg=None, transform:
     s = series.strain(strain_method, window=window)
     k = s.step_index(step)
     shear = max_shear_strain(s.components["exx"][k], s.components["eyy"][k], s.components["exy"][k])
-    finite = shear[np.isfinite(shear)]
+    valid = np.isfinite(shear)
+    finite = shear[valid]
     if finite.size == 0:
         raise NumericalError("the measured strain field has no valid point")
+    warnings = [f"strain file: {n}" for n in series.meta.get("notes", []) or []]
+    # stop before any statistics when the registered field cannot be compared with the map
+    if gg is not None:
+        sx, sy = s.coordinates()
+        pm = tr.apply(np.stack([sx.ravel(), sy.ravel()], 1))
+        ii, jj = gg.omap.index_of(pm[:, 0], pm[:, 1])
+        on_map = ((ii >= 0) & (jj >= 0)).reshape(shear.shape)
+        warnings += check_registration(s, transform, map_step=gg.omap.step, on_map=on_map, valid=valid,
+                                       map_extent=gg.omap.extent)
+    else:
+        warnings += check_registration(s, transform)
     thr = float(np.quantile(finite, 0.95)) if peak_threshold is None else float(peak_threshold)
     peaks = find_strain_peaks(shear, s, threshold=thr, min_distance_um=peak_distance_um, transform=tr)
     scores: dict = {"registration_rms_um": tr.rms if transform is not None else float("nan"),
@@ -326,6 +363,11 @@ def compare_forecast(series: StrainSeries, *, forecast=None, gg=None, transform:
                 "band_tol_deg": band_tol_deg, "dip_prominence": dip_prominence, "dip_tol_um": dip_tol_um,
                 "max_sites": max_sites,
                 "synthetic": bool(series.meta.get("synthetic", False))}
+    nan = [key for key, v in scores.items() if key != "registration_rms_um" and isinstance(v, float) and v != v]
+    if nan:
+        warnings.append(f"these scores could not be computed (NaN): {', '.join(nan)}; rank scores need at least "
+                        "two grains (or boundaries) with measured strain and distinct predictions, site scores at "
+                        "least one predicted site and one measured peak")
     mp = None
     if measured_path is not None:
         seg = path_segments(measured_path, "measured_path")
@@ -333,7 +375,7 @@ def compare_forecast(series: StrainSeries, *, forecast=None, gg=None, transform:
     return Comparison(tr if transform is not None else None, s, shear, on_grains["shear_on_map"], peaks,
                       on_grains["grain_stats"], on_grains["boundary_stats"], on_grains["bands"], site_pairs,
                       growth_rates, dips, scores, settings, pred_xy, pred_path, mp, growth_profile_from(growth),
-                      on_grains["extent"])
+                      on_grains["extent"], warnings)
 
 
 def _measure_on_grains(gg, shear, s, tr, thr: float, *, band_um, band_sigma_um, load_axis, n_traces, band_tol_deg,

@@ -292,3 +292,117 @@ def labels_on_strain_grid(labels, omap, grid, transform: Transform) -> np.ndarra
     out = np.full(ii.shape, -1, dtype=np.int64)
     out[ok] = labels[ii[ok], jj[ok]]
     return out.reshape(shape)
+
+
+# ===================================================================================== sanity checks
+#: A grid step this many times off the map's (either way) is taken as a unit error and stops.
+STEP_RATIO_STOP = 300.0
+#: A grid step (or a registration scale) this many times off warns.
+STEP_RATIO_WARN = 30.0
+#: Registration RMS residual, in map steps, that warns and that stops.
+RESIDUAL_WARN_STEPS = 3.0
+RESIDUAL_STOP_STEPS = 20.0
+#: Fraction of the valid strain points on the map below which a warning is given.
+OVERLAP_WARN = 0.25
+
+
+def check_registration(series: StrainSeries, transform: Transform | None, *, map_step: float | None = None,
+                       on_map: np.ndarray | None = None, valid: np.ndarray | None = None,
+                       map_extent: tuple[float, float, float, float] | None = None) -> list[str]:
+    """Check that a registered strain field can be compared with the map; stop or warn with the numbers.
+
+    Parameters
+    ----------
+    series
+        The strain series (its own frame, µm).
+    transform
+        Strain frame → map frame (None: the frames are taken as equal).
+    map_step
+        The map's step, µm (None: no map; the residual is judged against the registered strain step).
+    on_map
+        ``(ny, nx)`` bool: strain points that land on a map point after registration.
+    valid
+        ``(ny, nx)`` bool: strain points with a measured value.
+    map_extent
+        ``(x_min, x_max, y_min, y_max)`` of the map's points, µm, for the message.
+
+    Returns
+    -------
+    list of str
+        Warnings: the comparison can go on, but the user should look.
+
+    Raises
+    ------
+    ParameterError
+        A grid step more than :data:`STEP_RATIO_STOP` times off the map's, a registration residual
+        above :data:`RESIDUAL_STOP_STEPS` map steps, or no measured strain point on the map.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> s = StrainSeries("strain", {c: np.zeros((4, 4)) for c in ("exx", "eyy", "exy")}, 0.001)
+    >>> check_registration(s, None, map_step=1.0)
+    Traceback (most recent call last):
+    ...
+    slipnet.errors.ParameterError: the strain grid step is 0.001 µm, 1/1000 of the map's step ...
+    """
+    out: list[str] = []
+    scale = 1.0
+    if transform is not None:
+        scale = float(np.sqrt(abs(np.linalg.det(transform.linear))))
+    reg_step = series.step * scale
+    reg_note = f" ({reg_step:.4g} µm on the map after registration)" if transform is not None else ""
+    if map_step is not None:
+        ratio = reg_step / float(map_step)
+        shown = f"{ratio:.4g} ×" if ratio >= 1 else f"1/{1 / ratio:.4g}"
+        text = (f"the strain grid step is {series.step:.4g} µm{reg_note}, {shown} of the map's step "
+                f"{map_step:.4g} µm")
+        if ratio > STEP_RATIO_STOP or ratio < 1 / STEP_RATIO_STOP:
+            raise ParameterError(f"{text}: a unit is likely wrong (a factor near 1000 is mm read as µm or µm read "
+                                 "as nm). Fix: give the strain file's length unit (length_unit=, "
+                                 "--strain-length-unit) or correct the unit in its header, and check the control "
+                                 "points' units")
+        if ratio > STEP_RATIO_WARN or ratio < 1 / STEP_RATIO_WARN:
+            out.append(f"{text}: check the units of the strain file and the control points")
+    if transform is not None and (scale > STEP_RATIO_WARN or scale < 1 / STEP_RATIO_WARN):
+        out.append(f"the registration scales the strain frame by {scale:.4g} ×: the strain file and the control "
+                   "points' strain positions are probably not in the unit they state (results hold only if both "
+                   "are wrong alike); check length_unit / --strain-length-unit and the control-point units")
+    if transform is not None and len(transform.residuals):
+        ref = float(map_step) if map_step is not None else reg_step
+        what = "map steps" if map_step is not None else "strain steps"
+        rms = transform.rms
+        worst = int(np.argmax(transform.residuals))
+        text = (f"the registration RMS residual is {rms:.4g} µm = {rms / ref:.3g} {what} over "
+                f"{len(transform.residuals)} control points; the worst, point {worst + 1} (strain "
+                f"({transform.src[worst, 0]:.4g}, {transform.src[worst, 1]:.4g}) µm → map "
+                f"({transform.dst[worst, 0]:.4g}, {transform.dst[worst, 1]:.4g}) µm), is off by "
+                f"{transform.residuals[worst]:.4g} µm")
+        if rms > RESIDUAL_STOP_STEPS * ref:
+            raise ParameterError(f"{text}. A mark is matched to the wrong one, x and y are swapped, or the points "
+                                 "are in another unit: fix the control points (or try kind='projective' for a "
+                                 "tilted view)")
+        if rms > RESIDUAL_WARN_STEPS * ref:
+            out.append(f"{text}: check that point (a mismatched mark) or the transform kind")
+    if on_map is not None:
+        ok = np.ones(on_map.shape, bool) if valid is None else np.asarray(valid, bool)
+        n_valid = int(ok.sum())
+        n_on = int((on_map & ok).sum())
+        if n_valid and n_on < OVERLAP_WARN * n_valid:
+            x, y = series.coordinates()
+            pts = np.stack([x[ok], y[ok]], axis=1)
+            pm = pts if transform is None else transform.apply(pts)
+            span = (f"the measured field lies at x {pm[:, 0].min():.4g}…{pm[:, 0].max():.4g} µm, y "
+                    f"{pm[:, 1].min():.4g}…{pm[:, 1].max():.4g} µm in the map frame")
+            if map_extent is not None:
+                span += (f"; the map covers x {map_extent[0]:.4g}…{map_extent[1]:.4g} µm, y "
+                         f"{map_extent[2]:.4g}…{map_extent[3]:.4g} µm")
+            if n_on == 0:
+                fix = ("give control points (--control-points) to register the frames" if transform is None else
+                       "check that the control points' strain_* and map_* columns are not swapped, that their units "
+                       "are right, and that they belong to this map")
+                raise ParameterError(f"no measured strain point falls on the map after registration ({span}). "
+                                     f"Fix: {fix}")
+            out.append(f"only {n_on} of {n_valid} measured strain points ({100 * n_on / n_valid:.0f} %) fall on the "
+                       f"map ({span}): grain and boundary statistics use that part only")
+    return out
