@@ -527,10 +527,10 @@ def _quality(xmap, n: int, quality_prop: str | None, indexed: np.ndarray, meta: 
         meta["quality_source"] = "none (set to 1)"
         meta["quality"] = {"property": None, "properties": props, "skipped": skipped}
         decisions.append(
-            "the file has no quality property slipnet knows"
-            + (f" that varies (skipped: {', '.join(skipped)})" if skipped else "")
-            + f": quality was set to 1 at every point, so --min-quality removes nothing (properties present: "
-            f"{', '.join(props) or 'none'}; choose one with --quality-prop NAME)"
+            "the file has no quality property: quality was set to 1 at every point, so --min-quality removes "
+            f"nothing (properties present: {', '.join(props) or 'none'}, none of them a quality slipnet knows"
+            + (f" that varies; skipped {', '.join(skipped)}" if skipped else "")
+            + "; choose one with --quality-prop NAME)"
         )
         return np.ones(n)
     good = values[indexed & np.isfinite(values)]
