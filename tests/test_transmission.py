@@ -226,3 +226,146 @@ def test_summaries_unchanged_by_crystal_symmetry():
     r2 = transmission_summaries(q_sym, ga, gb, SYS, load_axis=[0.3, 0.9, 0.1], trace_angle_deg=th)
     for key in ("m_prime_max", "m_prime", "score", "residual_burgers", "shen"):
         np.testing.assert_allclose(r2[key], r1[key], atol=1e-9, err_msg=key)
+
+
+# ------------------------------------------------------------------ array versions against the old loops
+def _transmission_table_reference(gg, load_axis, systems, inc):
+    """The table as it was built before issue 17: the structure mask from a loop over the graph's
+    nodes, one DataFrame per direction, concatenated and sorted."""
+    q = np.asarray(gg.mean_quats, float).copy()
+    ok = np.ones(q.shape[0], bool)
+    for g, data in gg.graph.nodes(data=True):
+        ok[int(g)] = gg.omap.phases[int(data.get("phase", 0))].structure == systems.structure
+    q[~ok] = np.nan
+    factors = schmid_factors(q, load_axis, systems)
+    b = gg.boundaries
+    ga, gb = b["grain_a"].to_numpy(np.int64), b["grain_b"].to_numpy(np.int64)
+    lattice = np.array([ph.lattice_parameter_nm for ph in gg.omap.phases], dtype=float)
+    lat = lattice[np.clip(gg.grains["phase"].to_numpy(np.int64)[ga], 0, len(lattice) - 1)]
+    res = transmission_summaries(q, ga, gb, systems, factors=factors, trace_angle_deg=b["trace_angle_deg"].to_numpy(),
+                                 boundary_inclination_deg=inc, burgers_nm=systems.burgers_length * lat)
+    lab = np.append(systems.labels, "")
+    rows = []
+    for c, (gi, go) in enumerate(((ga, gb), (gb, ga))):
+        rows.append(pd.DataFrame({
+            "boundary_id": b["boundary_id"].to_numpy(), "grain_in": gi, "grain_out": go,
+            "system_in": res["slip_in"][:, c], "label_in": lab[res["slip_in"][:, c]],
+            "system_out": res["slip_out"][:, c], "label_out": lab[res["slip_out"][:, c]],
+            "m_prime": res["m_prime"][:, c], "transmission_score": res["score"][:, c],
+            "score_system": res["score_system"][:, c], "residual_burgers_nm": res["residual_burgers"][:, c],
+            "shen_factor": res["shen"][:, c], "m_prime_max": res["m_prime_max"],
+            "boundary_inclination_deg": inc,
+        }))
+    return pd.concat(rows, ignore_index=True).sort_values(["boundary_id", "grain_in"], ignore_index=True)
+
+
+def test_transmission_table_matches_the_loop_version_on_a_two_phase_specimen():
+    from slipnet.grains import build_grain_graph
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((90, 120), 1.0, grain_size_um=12.0, second_phase_fraction=0.3, seed=4)
+    gg = build_grain_graph(spec.omap)
+    systems = slip_systems(gg.omap.phases[0].structure)
+    assert len(gg.boundaries) > 50 and len({p.structure for p in gg.omap.phases}) == 2
+    new = transmission_table(gg, [0.6, 0.8, 0.0], systems, boundary_inclination_deg=70.0)
+    old = _transmission_table_reference(gg, [0.6, 0.8, 0.0], systems, 70.0)
+    pd.testing.assert_frame_equal(new, old)
+    assert new["m_prime"].isna().any() and new["m_prime"].notna().any()  # both phases' boundaries are in it
+
+
+def _rank_barriers_reference(crossings, weights=None, decay_length_um=np.inf):
+    """rank_barriers as it was before issue 17: dictionaries and sets filled in a loop over crossings."""
+    from slipnet.columns import FORECAST_BARRIERS
+    from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights
+
+    w = weights or BarrierWeights()
+    n = len(crossings)
+    col = {c: crossings[c].to_numpy() for c in crossings.columns}
+    branch = col.get("branch", np.zeros(n, int))
+    ga, gb = col["grain_a"].astype(int), col["grain_b"].astype(int)
+    keys = [(min(a, b), max(a, b)) for a, b in zip(ga, gb, strict=True)]
+    first, seen = {}, {}
+    for i in np.lexsort((col["distance_um"], branch)):
+        k = keys[i]
+        seen.setdefault(k, set()).add(int(branch[i]))
+        first.setdefault(k, i)
+    idx = np.array(list(first.values()), dtype=int)
+    mis = col.get("misorientation_deg", np.full(n, np.nan))
+    out = pd.DataFrame({
+        "boundary_id": col["boundary_id"][idx].astype(int), "grain_a": ga[idx], "grain_b": gb[idx],
+        "twist_deg": col["twist_deg"][idx].astype(float), "tilt_deg": col["tilt_deg"][idx].astype(float),
+        "m_prime": col["m_prime"][idx].astype(float), "distance_um": col["distance_um"][idx].astype(float),
+        "on_path": [0 in seen[keys[i]] for i in idx], "boundary_class": col["boundary_class"][idx].astype(str),
+        "misorientation_deg": mis[idx].astype(float),
+        "schmid_in": col["schmid_in"][idx].astype(float), "schmid_out": col["schmid_out"][idx].astype(float),
+        "x_um": col["x_um"][idx].astype(float), "y_um": col["y_um"][idx].astype(float),
+        "branches": [";".join(str(b) for b in sorted(seen[keys[i]])) for i in idx],
+    })
+
+    def cls(c):
+        if c in CLASS_FACTORS:
+            return CLASS_FACTORS[c]
+        return CLASS_FACTORS.get("csl", 0.8) if c.startswith("sigma") else CLASS_FACTORS.get("high_angle", 1.0)
+
+    out["term_twist"] = np.clip(out["twist_deg"].to_numpy() / 90.0, 0.0, 1.0)
+    out["term_transmission"] = np.clip(1.0 - out["m_prime"].to_numpy(), 0.0, 1.0)
+    out["term_class"] = [cls(c) for c in out["boundary_class"]]
+    out["term_schmid_drop"] = np.clip((out["schmid_in"].to_numpy() - out["schmid_out"].to_numpy()) / 0.5, 0.0, 1.0)
+    out["relevance"] = np.exp(-out["distance_um"] / decay_length_um)
+    out["weight_twist"], out["weight_transmission"] = w.twist, w.transmission
+    out["weight_class"], out["weight_schmid_drop"] = w.boundary_class, w.schmid_drop
+    wsum = w.twist + w.transmission + w.boundary_class + w.schmid_drop
+    raw = (w.twist * out["term_twist"] + w.transmission * out["term_transmission"]
+           + w.boundary_class * out["term_class"] + w.schmid_drop * out["term_schmid_drop"]) / wsum
+    out["barrier_score"] = out["relevance"] * raw
+    out = out.sort_values(["barrier_score", "distance_um"], ascending=[False, True], kind="stable")
+    out = out.reset_index(drop=True)
+    out["rank"] = np.arange(1, len(out) + 1)
+    return out[list(FORECAST_BARRIERS)]
+
+
+def _synthetic_crossings(n: int, seed: int) -> pd.DataFrame:
+    """Crossings of a few branches over shared boundaries: repeats, ties in distance and score, both
+    grain orders, classes with and without their own factor."""
+    rng = np.random.default_rng(seed)
+    ga = rng.integers(0, 12, n)
+    gb = (ga + rng.integers(1, 5, n)) % 14
+    swap = rng.random(n) < 0.5
+    ga, gb = np.where(swap, gb, ga), np.where(swap, ga, gb)
+    classes = np.array(["high_angle", "low_angle", "sigma3", "sigma9", "subgrain", "phase"])
+    return pd.DataFrame({
+        "boundary_id": np.minimum(ga, gb) * 100 + np.maximum(ga, gb), "grain_a": ga, "grain_b": gb,
+        "twist_deg": rng.choice([0.0, 30.0, 45.0, 90.0], n), "tilt_deg": rng.uniform(0, 90, n),
+        "m_prime": rng.choice([0.2, 0.5, 0.9], n), "schmid_in": rng.uniform(0, 0.5, n),
+        "schmid_out": rng.uniform(0, 0.5, n), "boundary_class": rng.choice(classes, n),
+        "distance_um": rng.choice([5.0, 10.0, 10.0, 20.0, 40.0], n), "misorientation_deg": rng.uniform(1, 60, n),
+        "x_um": rng.uniform(0, 100, n), "y_um": rng.uniform(0, 100, n), "branch": rng.integers(0, 6, n),
+    })
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_rank_barriers_matches_the_loop_version(seed):
+    from slipnet.forecast.barriers import rank_barriers
+    from slipnet.forecast.types import BarrierWeights
+
+    cr = _synthetic_crossings(80, seed)
+    for kw in ({}, {"decay_length_um": 30.0, "weights": BarrierWeights(twist=2.0, schmid_drop=0.0)}):
+        pd.testing.assert_frame_equal(rank_barriers(cr, **kw), _rank_barriers_reference(cr, **kw))
+    no_branch = cr.drop(columns="branch")
+    pd.testing.assert_frame_equal(rank_barriers(no_branch), _rank_barriers_reference(no_branch))
+    one = rank_barriers(cr.iloc[:1])
+    assert len(one) == 1 and one["branches"].iloc[0] == str(cr["branch"].iloc[0])
+
+
+def test_rank_barriers_matches_the_loop_version_on_a_forecast():
+    from slipnet.forecast import forecast_crack
+    from slipnet.forecast.barriers import rank_barriers
+    from slipnet.grains import build_grain_graph
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((80, 80), 2.0, grain_size_um=25.0, seed=3)
+    gg = build_grain_graph(spec.omap)
+    fc = forecast_crack(gg, (4.0, 80.0), (1.0, 0.0), (0.0, 1.0, 0.0), horizon=120.0, stress_amplitude=200.0,
+                        stress_ratio=-1.0, samples=0, mode="map", barrier_model="weights", n_sites=0)
+    assert len(fc.crossings) >= 2
+    pd.testing.assert_frame_equal(rank_barriers(fc.crossings), _rank_barriers_reference(fc.crossings))

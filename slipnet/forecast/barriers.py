@@ -11,6 +11,7 @@ from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights
 
 __all__ = ["rank_barriers"]
 
+
 def rank_barriers(
     crossings: pd.DataFrame,
     weights: BarrierWeights | None = None,
@@ -57,33 +58,37 @@ def rank_barriers(
                              for c in cols})
     n = len(crossings)
     col = {c: crossings[c].to_numpy() for c in crossings.columns}
-    branch = col.get("branch", np.zeros(n, int))
+    branch = np.asarray(col["branch"], dtype=np.int64) if "branch" in col else np.zeros(n, np.int64)
     ga, gb = col["grain_a"].astype(int), col["grain_b"].astype(int)
-    keys = [(min(a, b), max(a, b)) for a, b in zip(ga, gb, strict=True)]
+    # one id per boundary (unordered grain pair), numbered in array passes
+    lo, hi = np.minimum(ga, gb).astype(np.int64), np.maximum(ga, gb).astype(np.int64)
+    _, key = np.unique((lo - lo.min()) * (hi.max() - hi.min() + 1) + (hi - hi.min()), return_inverse=True)
+    key = key.reshape(-1)
+    n_keys = int(key.max()) + 1
     # one row per boundary: its main-path crossing if any, else the first alternative crossing
-    first: dict = {}
-    seen: dict = {}
-    for i in np.lexsort((col["distance_um"], branch)):
-        k = keys[i]
-        seen.setdefault(k, set()).add(int(branch[i]))
-        first.setdefault(k, i)
-    idx = np.array(list(first.values()), dtype=int)
+    # (main path first, then by distance; boundaries in the order their chosen rows come)
+    order = np.lexsort((col["distance_um"], branch))
+    _, first_pos = np.unique(key[order], return_index=True)
+    idx = order[np.sort(first_pos)]
+    on_path = np.zeros(n_keys, dtype=bool)
+    on_path[key[branch == 0]] = True
     mis = col.get("misorientation_deg", np.full(n, np.nan))
     out = pd.DataFrame({
         "boundary_id": col["boundary_id"][idx].astype(int),
         "grain_a": ga[idx], "grain_b": gb[idx],
         "twist_deg": col["twist_deg"][idx].astype(float), "tilt_deg": col["tilt_deg"][idx].astype(float),
         "m_prime": col["m_prime"][idx].astype(float), "distance_um": col["distance_um"][idx].astype(float),
-        "on_path": [0 in seen[keys[i]] for i in idx],
+        "on_path": on_path[key[idx]],
         "boundary_class": col["boundary_class"][idx].astype(str),
         "misorientation_deg": mis[idx].astype(float),
         "schmid_in": col["schmid_in"][idx].astype(float), "schmid_out": col["schmid_out"][idx].astype(float),
         "x_um": col["x_um"][idx].astype(float), "y_um": col["y_um"][idx].astype(float),
-        "branches": [";".join(str(b) for b in sorted(seen[keys[i]])) for i in idx],
+        "branches": _branch_lists(key, branch, n_keys)[key[idx]],
     })
     out["term_twist"] = np.clip(out["twist_deg"].to_numpy() / 90.0, 0.0, 1.0)
     out["term_transmission"] = np.clip(1.0 - out["m_prime"].to_numpy(), 0.0, 1.0)
-    out["term_class"] = [_class_factor(c, cf) for c in out["boundary_class"]]
+    which, classes = pd.factorize(out["boundary_class"])  # the few distinct classes, looked up once each
+    out["term_class"] = np.array([_class_factor(str(c), cf) for c in classes], dtype=float)[which]
     out["term_schmid_drop"] = np.clip((out["schmid_in"].to_numpy() - out["schmid_out"].to_numpy()) / _MAX_SCHMID,
                                       0.0, 1.0)
     out["relevance"] = np.exp(-out["distance_um"] / decay_length_um)
@@ -104,6 +109,26 @@ def rank_barriers(
 
 
 _MAX_SCHMID = 0.5  # largest possible Schmid factor: normalises the Schmid terms to [0, 1]
+
+
+def _branch_lists(key: np.ndarray, branch: np.ndarray, n_keys: int) -> np.ndarray:
+    """Per boundary id, its distinct branches ascending as ``"0;2;5"`` (object array, n_keys).
+
+    Built slot by slot (the k-th branch of every boundary at once), so the loops run over branch
+    numbers and the most branches one boundary has, never over boundaries.
+    """
+    span = int(branch.max() - branch.min()) + 1
+    code = np.unique(key * span + (branch - branch.min()))  # sorted by boundary, then branch
+    names = np.array([str(v) for v in range(int(branch.min()), int(branch.max()) + 1)], dtype=object)
+    k, b = code // span, names[code % span]
+    start = np.searchsorted(k, np.arange(n_keys))
+    slot = np.arange(k.size) - start[k]
+    text = np.empty(n_keys, dtype=object)
+    text[k[slot == 0]] = b[slot == 0]
+    for j in range(1, int(slot.max()) + 1 if slot.size else 0):
+        at = slot == j
+        text[k[at]] = text[k[at]] + ";" + b[at]
+    return text
 
 
 def _check_decay(value) -> float:

@@ -43,6 +43,15 @@ def _structure_mask(gg, systems: SlipSystems) -> np.ndarray:
     n = _grain_quats(gg).shape[0]
     phases = gg.omap.phases
     ok = np.ones(n, bool)
+    grains = getattr(gg, "grains", None)
+    if grains is not None and "grain" in grains and "phase" in grains:
+        # the grain table carries the nodes' phases: one array pass instead of a loop over grains
+        g = grains["grain"].to_numpy(np.int64)
+        ph = grains["phase"].to_numpy(np.int64)
+        use = (ph >= 0) & (ph < len(phases)) & (g >= 0) & (g < n)
+        same = np.array([p.structure == systems.structure for p in phases], dtype=bool)
+        ok[g[use]] = same[ph[use]]
+        return ok
     for g, data in gg.graph.nodes(data=True):
         ph = int(data.get("phase", 0))
         if 0 <= ph < len(phases) and 0 <= int(g) < n:

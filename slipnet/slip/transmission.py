@@ -69,19 +69,27 @@ def transmission_table(gg, load_axis, systems: SlipSystems | None = None, *, bou
     lat = lattice[np.clip(gg.grains["phase"].to_numpy(np.int64)[ga], 0, len(lattice) - 1)]
     res = transmission_summaries(q, ga, gb, systems, factors=factors, trace_angle_deg=trace,
                                  boundary_inclination_deg=inc, burgers_nm=systems.burgers_length * lat)
+    # both directions of every boundary in one set of columns, ordered by boundary then incoming
+    # grain (A→B before B→A since grain_a < grain_b): no per-direction frames, no concat and sort
+    n_b = ga.size
+    bid = b["boundary_id"].to_numpy()
+    order = np.lexsort((np.concatenate((ga, gb)), np.concatenate((bid, bid))))
+    row_b, row_c = order % n_b, order // n_b  # boundary row and direction (0: A→B, 1: B→A) of each row
+
+    def per_row(v):
+        return v[row_b, row_c]
+
     lab = np.append(systems.labels, "")
-    rows = []
-    for c, (gi, go) in enumerate(((ga, gb), (gb, ga))):
-        rows.append(pd.DataFrame({
-            "boundary_id": b["boundary_id"].to_numpy(), "grain_in": gi, "grain_out": go,
-            "system_in": res["slip_in"][:, c], "label_in": lab[res["slip_in"][:, c]],
-            "system_out": res["slip_out"][:, c], "label_out": lab[res["slip_out"][:, c]],
-            "m_prime": res["m_prime"][:, c], "transmission_score": res["score"][:, c],
-            "score_system": res["score_system"][:, c], "residual_burgers_nm": res["residual_burgers"][:, c],
-            "shen_factor": res["shen"][:, c], "m_prime_max": res["m_prime_max"],
-            "boundary_inclination_deg": inc,
-        }))
-    table = pd.concat(rows, ignore_index=True).sort_values(["boundary_id", "grain_in"], ignore_index=True)
+    s_in, s_out = per_row(res["slip_in"]), per_row(res["slip_out"])
+    table = pd.DataFrame({
+        "boundary_id": bid[row_b], "grain_in": np.where(row_c == 0, ga[row_b], gb[row_b]),
+        "grain_out": np.where(row_c == 0, gb[row_b], ga[row_b]),
+        "system_in": s_in, "label_in": lab[s_in], "system_out": s_out, "label_out": lab[s_out],
+        "m_prime": per_row(res["m_prime"]), "transmission_score": per_row(res["score"]),
+        "score_system": per_row(res["score_system"]), "residual_burgers_nm": per_row(res["residual_burgers"]),
+        "shen_factor": per_row(res["shen"]), "m_prime_max": res["m_prime_max"][row_b],
+        "boundary_inclination_deg": inc,
+    })
     if stress_field is not None:
         table["factor_source"] = LOCAL_SOURCE
     return table
