@@ -736,3 +736,18 @@ def test_forecast_field_is_the_whole_map_field_within_the_horizon(poly_gg):
     np.testing.assert_allclose(fc.field[disc], ref[disc], rtol=1e-12, atol=1e-15)
     # outside the window the field is not computed: 0, and the window is much smaller than the map
     assert (fc.field[x > tip[0] + 2.0 * horizon] == 0.0).all() and (ref[x > tip[0] + 2.0 * horizon] > 0).any()
+
+
+def test_monte_carlo_gives_the_same_numbers_on_any_number_of_workers(poly_gg):
+    kw = dict(samples=70, seed=5, noise=MonteCarloNoise(orientation_deg=3.0, load_deg=3.0, tip_um=1.5, weights=0.3))
+    one = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 60.0, mode="map", workers=1, **kw)
+    two = forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 60.0, mode="map", workers=2, **kw)
+    assert len(one.samples) == 70  # more than one batch of draws
+    assert one.samples.equals(two.samples)
+    for col in ("p_on_path", "p_top_k", "p_drop"):
+        np.testing.assert_array_equal(one.barriers[col], two.barriers[col])
+    for col in ("p_hit", "p_present", "p_top_k"):
+        np.testing.assert_array_equal(one.sites[col], two.sites[col])
+    assert 0.0 < one.barriers["p_on_path"].max() <= 1.0 and one.samples["tip_x_um"].nunique() > 60
+    with pytest.raises(ParameterError, match="workers"):
+        forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 60.0, mode="map", workers=0)

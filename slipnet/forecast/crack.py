@@ -98,6 +98,7 @@ def forecast_crack(
     seed: int = 0,
     noise: MonteCarloNoise | None = None,
     top_k: int = 3,
+    workers: int = 1,
     path_weights: PathWeights | None = None,
     barrier_weights: BarrierWeights | None = None,
     class_factors: dict[str, float] | None = None,
@@ -161,6 +162,8 @@ def forecast_crack(
         Localisation sites (field peaks) to report.
     samples, seed, noise, top_k
         Monte Carlo samples (0: none), their seed, perturbation sizes and the k of "top k".
+    workers
+        Threads computing the Monte Carlo samples (≥ 1); the numbers are the same for any value.
     path_weights, barrier_weights, class_factors
         Path-choice and resistance-score weights (:class:`PathWeights`, :class:`BarrierWeights`,
         :data:`CLASS_FACTORS`).
@@ -237,6 +240,9 @@ def forecast_crack(
     if mode == "map" and (stress_field is not None or cyclic_field is not None):
         raise ParameterError("mode='map' uses no stress solve; give mode='elastic' (or 'cyclic') with stress_field, "
                              "or leave stress_field and cyclic_field out")
+    if isinstance(workers, bool) or not isinstance(workers, int | np.integer) or workers < 1:
+        raise ParameterError(f"workers should be an integer >= 1; got {workers!r}")
+    n_workers = int(workers)
     if isinstance(n_sites, bool) or not isinstance(n_sites, int | np.integer) or n_sites < 0:
         raise ParameterError(f"n_sites should be an integer >= 0; got {n_sites!r}")
     pw = path_weights or PathWeights()
@@ -323,7 +329,7 @@ def forecast_crack(
                          noise=noise, top_k=int(top_k), amplitude=amplitude, decay=decay, bw=bw, cf=class_factors,
                          site_radius=site_r, gg=gg, inputs=inputs, weights=wts, crack=crack, systems=systems,
                          stress_given=stress_field is not None, cyclic_field=cyclic_field, free_edges=free_edges,
-                         ratio=ratio, barrier_model=barrier_model)
+                         ratio=ratio, barrier_model=barrier_model, workers=n_workers)
     return fc
 
 
