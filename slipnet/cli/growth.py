@@ -10,6 +10,39 @@ from slipnet.cli._common import output_run, print_warning
 from slipnet.errors import InputFileError, ParameterError
 
 
+def add_record_options(p, *, encoding: bool = True) -> None:
+    """Options that say how to read a crack-growth record (shared with ``slipnet compare``)."""
+    p.add_argument("--record-column", action="append", metavar="NAME=COLUMN", default=None,
+                   help="which column of the record holds slipnet's 'cycles' or 'crack_length' "
+                   "(e.g. --record-column crack_length='a [mm]'; '#2' for the 2nd column); repeatable")
+    p.add_argument("--record-length-unit", choices=("nm", "um", "mm"), default=None,
+                   help="unit of the record's crack lengths (default: from the header, e.g. 'a [mm]')")
+    p.add_argument("--record-cycles-unit", choices=("cycles", "kcycles", "mcycles"), default=None,
+                   help="unit of the record's cycles (default: from the header, e.g. 'N [kcycles]', else cycles)")
+    if encoding:
+        p.add_argument("--encoding", default=None,
+                       help="text encoding of the table files (default: detected; e.g. cp1252, latin-1)")
+
+
+def text_mapping(items, option: str) -> dict[str, str] | None:
+    """``NAME=COLUMN`` arguments as a dict of strings (None when none were given)."""
+    out: dict[str, str] = {}
+    for it in items or ():
+        name, sep, val = str(it).partition("=")
+        if not sep or not name.strip() or not val.strip():
+            raise ParameterError(f"{option} should be NAME=COLUMN, e.g. {option} exx=E_xx; got {it!r}")
+        out[name.strip()] = val.strip()
+    return out or None
+
+
+def record_options(args) -> dict:
+    """Keyword arguments of :func:`slipnet.io.read_growth_record` from the record options."""
+    return {"columns": text_mapping(getattr(args, "record_column", None), "--record-column"),
+            "length_unit": getattr(args, "record_length_unit", None),
+            "cycles_unit": getattr(args, "record_cycles_unit", None),
+            "encoding": getattr(args, "encoding", None)}
+
+
 def add(sub, parents) -> None:
     p = sub.add_parser(
         "growth", parents=[parents.output],
@@ -44,7 +77,9 @@ def add(sub, parents) -> None:
     p.add_argument("--samples", type=int, help="Monte Carlo draws of barrier strength for bands "
                    "(default: the forecast's sample count, else 0)")
     p.add_argument("--seed", type=int, default=0, help="seed of the draws (default 0)")
-    p.add_argument("--record", metavar="CSV", help="measured record (columns crack_length_um, cycles) to calibrate on")
+    p.add_argument("--record", metavar="CSV", help="measured crack-growth record to calibrate on (cycles and crack "
+                   "length; any delimiter and column names, units from the header brackets: docs/own-data.md)")
+    add_record_options(p)
     p.add_argument("--life", type=float, metavar="CYCLES",
                    help="also find the stress amplitude that grows the crack to the final length in CYCLES")
     p.add_argument("--local-stress", action="store_true",
@@ -93,7 +128,7 @@ def run(args) -> int:
 def _simulate(args):
     """The growth path, the simulated growth and the calibration (or None) the arguments ask for."""
     from slipnet.growth import GrowthParameters, GrowthPath, calibrate, life_amplitude, simulate_growth
-    from slipnet.io import read_csv_table
+    from slipnet.io import read_csv_table, read_growth_record
 
     amplitude, samples, seed, settings = args.stress_amplitude, args.samples, args.seed, {}
     if args.barriers and args.local_stress:
@@ -118,12 +153,17 @@ def _simulate(args):
                               twist_weight=args.twist_weight)
     fit = None
     if args.record:
-        rec = read_csv_table(args.record, ("crack_length_um", "cycles"), "growth record")
+        notes: list[str] = []
+        rec = read_growth_record(args.record, notes=notes, **record_options(args))
+        for note in notes:
+            print_warning("growth", f"growth record: {note}")
         fit = calibrate(rec["crack_length_um"], rec["cycles"], path, float(amplitude), initial=params)
-        if not fit.success:
-            print_warning("growth", f"the calibration did not converge ({fit.message}): the fitted constants are "
-                          "not reliable")
-        params = fit.params
+        if fit.success:
+            params = fit.params
+        else:
+            print_warning("growth", f"the calibration did not converge: {fit.message}. The growth below uses the "
+                          f"starting constants (σ_f {params.friction_stress:g} MPa, C {params.coefficient:g}, "
+                          f"m {params.exponent:g}), not the failed fit")
     res = simulate_growth(path, float(amplitude), params=params, initial_length=args.initial_length,
                           final_length=args.final_length, n_points=args.profile_points, samples=samples or 0,
                           seed=seed)

@@ -123,9 +123,12 @@ class CalibrationResult:
     residual_rms
         RMS of the cycle residuals (counts).
     success
-        Optimiser success flag.
+        True only when the fit converged to constants the record determines: the optimiser
+        succeeded, the model reaches every recorded length, no constant sits at the edge of its
+        range and every confidence interval is finite.
     message
-        Optimiser message.
+        The optimiser's message, and, when ``success`` is False, what went wrong with the numbers
+        and the likely fix.
     """
 
     params: GrowthParameters
@@ -220,15 +223,53 @@ def calibrate(
         cov = s2 * np.linalg.inv(jtj)
     except np.linalg.LinAlgError:
         cov = np.full((3, 3), np.inf)
-    sd = np.sqrt(np.clip(np.diag(cov), 0, None))
+    with np.errstate(invalid="ignore"):
+        sd = np.sqrt(np.clip(np.diag(cov), 0, None))
     t = float(sps.t.ppf(0.5 + conf / 2.0, dof))
+    with np.errstate(over="ignore", invalid="ignore"):
+        low, high = np.exp(fit.x - t * sd), np.exp(fit.x + t * sd)
+    bounded = np.isfinite(sd) & (low > 0) & np.isfinite(high)
+    names = ["friction_stress_mpa", "coefficient", "exponent"]
     table = pd.DataFrame({
-        "parameter": ["friction_stress_mpa", "coefficient", "exponent"],
+        "parameter": names,
         "value": [sf, cc, m],
-        "low": np.exp(fit.x - t * sd),
-        "high": np.exp(fit.x + t * sd),
+        "low": np.where(bounded, low, np.nan),
+        "high": np.where(bounded, high, np.nan),
         "std_log": sd,
     })
+    problems = _diagnose(fit, path, s, pfit, a, n_points, lo, hi, bounded, names)
+    message = str(fit.message)
+    if problems:
+        message = (f"{message}; " if fit.success else f"{message} (the optimiser stopped without converging); ") + \
+            "; ".join(problems)
     return CalibrationResult(params=pfit, table=table, covariance=cov,
-                             residual_rms=math.sqrt(rss / a.size) * scale, success=bool(fit.success),
-                             message=str(fit.message))
+                             residual_rms=math.sqrt(rss / a.size) * scale, success=bool(fit.success) and not problems,
+                             message=message)
+
+
+def _diagnose(fit, path: GrowthPath, s: float, pfit: GrowthParameters, a: np.ndarray, n_points: int,
+              lo: np.ndarray, hi: np.ndarray, bounded: np.ndarray, names: list[str]) -> list[str]:
+    """What makes a finished fit unreliable, each with the numbers and the likely fix (empty: none)."""
+    problems = []
+    model = _model_cycles(path, s, pfit, a, n_points)
+    stuck = ~np.isfinite(model)
+    if stuck.any():
+        k = int(np.flatnonzero(stuck)[0])
+        before = f"{a[k - 1]:.4g}" if k > 0 else f"{a[0]:.4g}"
+        problems.append(
+            f"at σ_a = {s:g} MPa the model crack stops between {before} and {a[k]:.4g} µm (the record reaches "
+            f"{a[-1]:.4g} µm) with the constants reached, so the record gives the fit nothing to follow: check the "
+            "stress amplitude, that the record's lengths are in µm along this path, or start from a lower barrier "
+            "stress or a higher friction stress (--barrier-stress, --friction-stress)")
+    at_lo = [bool(np.isfinite(lo[i]) and abs(fit.x[i] - lo[i]) <= 1e-3) for i in range(3)]
+    at_hi = [bool(np.isfinite(hi[i]) and abs(fit.x[i] - hi[i]) <= 1e-3) for i in range(3)]
+    edge = [f"{names[i]} at the {'lower' if at_lo[i] else 'upper'} end of its range ({math.exp(fit.x[i]):.4g})"
+            for i in range(3) if at_lo[i] or at_hi[i]]
+    if edge:
+        problems.append(f"{', '.join(edge)}: the model's form does not follow the record (a record of constant rate, "
+                        "or lengths in another unit, does this)")
+    loose = [names[i] for i in range(3) if not bounded[i]]
+    if loose and not stuck.any():
+        problems.append(f"the record does not determine {', '.join(loose)} (unbounded confidence intervals): give "
+                        "more readings across the barriers, or fix those constants from another test")
+    return problems
