@@ -38,7 +38,7 @@ from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 
 from slipnet._files import atomic_path
-from slipnet._inputs import checked_input
+from slipnet._inputs import check_nesting, checked_input, guarded_reader
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.maps.notch import SIDES
 
@@ -321,6 +321,7 @@ def _edges(value) -> tuple:
     raise ParameterError(f"an edge should be a side name or a list of [x, y] points; got {value!r}")
 
 
+@guarded_reader("study file", "check its TOML against the keys in the study-file documentation")
 def read_study_file(path: str | os.PathLike) -> StudyOptions:
     """Read a TOML study file (see the module docstring), paths resolved against its folder.
 
@@ -335,7 +336,9 @@ def read_study_file(path: str | os.PathLike) -> StudyOptions:
         raise InputFileError("study file not found; give the path of a TOML study file", path=str(p))
     checked_input(p, "study file")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
+        text = p.read_text(encoding="utf-8")
+        check_nesting(text, "study file", path=p)
+        data = tomllib.loads(text)
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
         raise InputFileError(f"not a valid TOML study file ({err})", path=str(p)) from err
     sections = sorted({s for s, _ in _FILE_KEYS})
