@@ -751,3 +751,29 @@ def test_monte_carlo_gives_the_same_numbers_on_any_number_of_workers(poly_gg):
     assert 0.0 < one.barriers["p_on_path"].max() <= 1.0 and one.samples["tip_x_um"].nunique() > 60
     with pytest.raises(ParameterError, match="workers"):
         forecast_crack(poly_gg, (5.0, 60.0), (1.0, 0.0), (0.0, 1.0, 0.0), 60.0, mode="map", workers=0)
+
+
+def test_peak_kernel_makes_the_greedy_choice_of_a_stable_sort():
+    # field_peaks picks peaks in one kernel; the rule is the greedy suppression over a stable sort
+    from slipnet.forecast.features import field_peaks
+    from slipnet.forecast.localise import _GridShim
+
+    rng = np.random.default_rng(0)
+    for _ in range(60):
+        ny, nx_ = (int(v) for v in rng.integers(5, 40, 2))
+        v = np.round(rng.random((ny, nx_)), 1)  # many ties
+        reg = rng.random((ny, nx_)) < 0.8
+        jj, ii = np.meshgrid(np.arange(nx_), np.arange(ny))
+        x, y = 0.7 * jj + 0.35 * (ii % 2), 0.6 * ii
+        k, sep = int(rng.integers(1, 12)), float(rng.uniform(0.0, 5.0))
+        got = field_peaks(v, reg, _GridShim(x, y), k, sep)
+        idx = np.flatnonzero(reg.ravel())
+        order = idx[np.argsort(-v.ravel()[idx], kind="stable")]
+        px, py = x.ravel()[order], y.ravel()[order]
+        alive, want = np.ones(order.size, bool), []
+        while len(want) < k and alive.any():
+            p = int(np.flatnonzero(alive)[0])
+            want.append((px[p], py[p]))
+            alive &= (px - px[p]) ** 2 + (py - py[p]) ** 2 >= sep ** 2
+            alive[p] = False if sep > 0 else alive[p]
+        np.testing.assert_array_equal(got, np.asarray(want, float).reshape(-1, 2))

@@ -154,3 +154,41 @@ def accumulate_segments(img, hexgrid, ox, oy, step, rs, x0, y0, x1, y1, weight, 
             i, j = nearest_point(hexgrid, ox, oy, step, rs, ny, nx, x0[k] + f * lx, y0[k] + f * ly)
             if i >= 0:
                 img[i, j] += weight[k] * (length / (n + 1))
+
+
+@nb.njit(cache=True)
+def greedy_peaks(values, region, x, y, k, sep2, out):
+    """The highest points of ``values`` in ``region``, each at least √sep2 from those before (µm).
+
+    The greedy non-maximum suppression of :func:`slipnet.forecast.features.field_peaks` without its
+    sort: each round takes the highest point still allowed (the first in row-major order among equal
+    values, as the stable sort does), ``k`` rounds at most. Writes ``out[:n]`` = (x, y); returns n.
+    All arrays are flat; ``values`` must be finite.
+    """
+    n = values.shape[0]
+    count = 0
+    for _ in range(k):
+        best = -math.inf
+        bi = -1
+        for p in range(n):
+            if not region[p]:
+                continue
+            v = values[p]
+            if bi >= 0 and not v > best:
+                continue
+            ok = True
+            for c in range(count):
+                dx = x[p] - out[c, 0]
+                dy = y[p] - out[c, 1]
+                if not dx * dx + dy * dy >= sep2:
+                    ok = False
+                    break
+            if ok:
+                best = v
+                bi = p
+        if bi < 0:
+            break
+        out[count, 0] = x[bi]
+        out[count, 1] = y[bi]
+        count += 1
+    return count

@@ -33,6 +33,7 @@ from scipy import ndimage
 from slipnet._checks import check_choice, check_positive, check_vector
 from slipnet.crystal.orientation import matrix_from_quat, nearest_equivalent
 from slipnet.errors import ParameterError
+from slipnet.forecast._geometry import _matrices  # = matrix_from_quat, without a thread pool for a few grains
 from slipnet.forecast._window import (
     _holes,
     _union,
@@ -301,7 +302,7 @@ def _effective(tau: np.ndarray, systems) -> np.ndarray:
     return np.abs(tau) / np.where(tau >= 0, systems.crss, systems.crss_reverse)
 
 
-def _youngs_ratio(mean_quats: np.ndarray, load: np.ndarray, constants) -> np.ndarray:
+def _youngs_ratio(mean_quats: np.ndarray, load: np.ndarray, constants, matrices=matrix_from_quat) -> np.ndarray:
     """Young's modulus of each grain along the load over the Hill modulus of the aggregate.
 
     ``1/E = S11 − 2 (S11 − S12 − S44/2)(l1² l2² + l2² l3² + l3² l1²)`` with l the load axis in the
@@ -313,7 +314,7 @@ def _youngs_ratio(mean_quats: np.ndarray, load: np.ndarray, constants) -> np.nda
     s = np.linalg.inv(np.array([[c11, c12, c12], [c12, c11, c12], [c12, c12, c11]]))
     s11, s12, s44 = s[0, 0], s[0, 1], 1.0 / c44
     q = np.where(np.all(np.isfinite(mean_quats), axis=1)[:, None], mean_quats, [1.0, 0.0, 0.0, 0.0])
-    lc = np.einsum("gij,j->gi", matrix_from_quat(q), load)
+    lc = np.einsum("gij,j->gi", matrices(q), load)
     j = lc[:, 0] ** 2 * lc[:, 1] ** 2 + lc[:, 1] ** 2 * lc[:, 2] ** 2 + lc[:, 2] ** 2 * lc[:, 0] ** 2
     e = 1.0 / (s11 - 2.0 * (s11 - s12 - 0.5 * s44) * j)
     return e / voigt_reuss_hill(constants)["young_hill_gpa"]
@@ -569,6 +570,16 @@ def field_peaks(field: np.ndarray, region: np.ndarray, omap, k: int, min_separat
     the separation, repeat.
     """
     x, y = omap.coordinates()
+    vals = np.ascontiguousarray(field, dtype=float).ravel()
+    if np.all(np.isfinite(vals)) and int(k) > 0:
+        # the same greedy choice in one kernel: k passes over the points instead of a sort of them all
+        from slipnet.forecast._kernels import greedy_peaks
+
+        out = np.zeros((int(k), 2))
+        n = greedy_peaks(vals, np.ascontiguousarray(region, dtype=np.bool_).ravel(),
+                         np.ascontiguousarray(x, dtype=float).ravel(), np.ascontiguousarray(y, dtype=float).ravel(),
+                         int(k), float(min_separation_um) ** 2, out)
+        return out[:n].copy()
     idx = np.flatnonzero(region.ravel())
     if idx.size == 0:
         return np.zeros((0, 2))
@@ -680,14 +691,14 @@ def window_features(gg, geo, win, tip, direction, load_axis, *, mode: str = "ela
         edges = ()
         solid = (labels >= 0) & ~holes & ~cut
         q = np.where(np.all(np.isfinite(mq[used]), axis=1)[:, None], mq[used], [1.0, 0.0, 0.0, 0.0])
-        g = matrix_from_quat(q)
+        g = _matrices(q)
         n_s = np.einsum("sk,gkj->gsj", np.asarray(systems.normals, float), g)
         d_s = np.einsum("sk,gkj->gsj", np.asarray(systems.directions, float), g)
         schmid = (n_s @ load) * (d_s @ load)
         struct = omap.phases[0].structure
         cst = constants if constants is not None else DEFAULT_CONSTANTS.get(struct, IRON_CONSTANTS)
         eratio = np.zeros(ng)
-        eratio[used] = _youngs_ratio(mq[used], load, cst)
+        eratio[used] = _youngs_ratio(mq[used], load, cst, _matrices)
         grain_tau = np.zeros((ng, schmid.shape[1]))
         grain_tau[used] = _effective(schmid, systems) * eratio[used, None]
         point_sys = np.where(solid, np.argmax(grain_tau, axis=1)[lab0], -1)
@@ -816,7 +827,7 @@ def _transmission_pairs(ea: np.ndarray, eb: np.ndarray, mean_quats, best_sys_gra
     used, inv = np.unique(both.ravel(), return_inverse=True)
     mq = np.asarray(mean_quats, float)[used]
     q = np.where(np.all(np.isfinite(mq), axis=1)[:, None], mq, [1.0, 0.0, 0.0, 0.0])
-    g = matrix_from_quat(q)
+    g = _matrices(q)
     ns_ = np.einsum("sk,gkj->gsj", np.asarray(systems.normals, float), g)
     ds_ = np.einsum("sk,gkj->gsj", np.asarray(systems.directions, float), g)
     ia, ib = inv.reshape(-1, 2)[:, 0], inv.reshape(-1, 2)[:, 1]

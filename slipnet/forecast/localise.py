@@ -169,11 +169,24 @@ def barrier_features(barriers: pd.DataFrame, crossings: pd.DataFrame, inputs: Fi
 
 
 def _coords(geo, window=None):
-    """Point positions of the map (or of ``window`` = ``(r0, r1, c0, c1)``), µm, as ``(x, y)``."""
+    """Point positions of the map (or of ``window`` = ``(r0, r1, c0, c1)``), µm, as ``(x, y)`` (read-only).
+
+    Kept on the geometry for the last few windows: every Monte Carlo sample asks for the same one.
+    """
     r0, r1, c0, c1 = (0, geo.ny, 0, geo.nx) if window is None else window
+    cache = geo.__dict__.setdefault("coords_cache", {})
+    hit = cache.get((r0, r1, c0, c1))
+    if hit is not None:
+        return hit
     jj, ii = np.meshgrid(np.arange(c0, c1), np.arange(r0, r1))
     x = geo.ox + jj * geo.step + (0.5 * geo.step * (ii % 2) if geo.hexgrid else 0.0)
-    return x, geo.oy + ii * geo.rs
+    y = geo.oy + ii * geo.rs
+    x.setflags(write=False)
+    y.setflags(write=False)
+    if len(cache) >= 4:
+        cache.pop(next(iter(cache)), None)
+    cache[(r0, r1, c0, c1)] = (x, y)
+    return x, y
 
 
 def _slices(window) -> tuple[slice, slice]:
