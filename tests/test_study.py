@@ -348,3 +348,20 @@ def test_a_study_file_with_a_huge_count_is_refused(orix_map, tmp_path):
     path.write_text(text, encoding="utf-8")
     with pytest.raises(ParameterError, match=r"samples should lie between 0 and 10000"):
         read_study_file(path).check()
+
+
+def test_short_path_warning_names_what_it_falls_short_of():
+    from types import SimpleNamespace
+
+    from slipnet.study.steps import forecast_warnings
+
+    said = []
+    fc = SimpleNamespace(length_um=40.0, stop_reason="map_edge")
+    forecast_warnings("N1", fc, 200.0, lambda step, msg: said.append((step, msg)))
+    forecast_warnings("", fc, 150.0, lambda step, msg: said.append((step, msg)), reach="horizon (--horizon)")
+    assert "200 µm observation window" in said[0][1] and said[0][0] == "forecast N1"
+    assert "150 µm horizon (--horizon)" in said[1][1] and "observation" not in said[1][1]
+    said.clear()
+    forecast_warnings("", SimpleNamespace(length_um=250.0, stop_reason="map_edge"), 200.0,
+                      lambda step, msg: said.append(msg))
+    assert said == []

@@ -72,7 +72,7 @@ def run(args) -> int:
         write_forecast(fc, run.folder, gg, figures=not args.no_figures)
     from slipnet.study.steps import forecast_warnings
 
-    forecast_warnings("", fc, float(args.horizon), print_warning)
+    forecast_warnings("", fc, float(args.horizon), print_warning, reach="horizon (--horizon)")
     out = run.folder
     print(f"forecast: path {fc.length_um:.1f} µm through {fc.path['grain'].nunique() if len(fc.path) else 0} "
           f"grains (stopped: {fc.stop_reason}), {len(fc.barriers)} barriers, {len(fc.sites)} sites; load axis "

@@ -254,13 +254,18 @@ def compare_warnings(opts: StudyOptions, cal: CalibrationResult | None, warn: Wa
              "not reliable; the forecast keeps the model defaults")
 
 
-def forecast_warnings(name: str, fc: CrackForecast, window_um: float, warn: Warn) -> None:
-    """A forecast that leaves the map (or stops) before the plan's observation window."""
+def forecast_warnings(name: str, fc: CrackForecast, window_um: float, warn: Warn, *,
+                      reach: str = "observation window") -> None:
+    """A forecast that leaves the map (or stops) before ``window_um``, called ``reach`` in the message.
+
+    The study measures against the plan's observation window; the ``forecast`` command against
+    its ``--horizon``.
+    """
     if fc.length_um < window_um and fc.stop_reason in ("map_edge", "unindexed", "blocked"):
         where = {"map_edge": "reaches the map edge", "unindexed": "runs into unindexed points",
                  "blocked": "is blocked (it would have to run along a boundary)"}[fc.stop_reason]
         warn(f"forecast {name}".strip(), f"the forecast path {where} after {fc.length_um:.0f} µm, short of the "
-             f"{window_um:g} µm observation window: the map does not show what the crack meets beyond")
+             f"{window_um:g} µm {reach}: the map does not show what the crack meets beyond")
 
 
 def finite_or_none(v) -> float | None:
