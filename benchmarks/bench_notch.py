@@ -5,19 +5,21 @@ Shaped like an asv benchmark (setup, parameters, fixed seed), runnable as a plai
     python benchmarks/bench_notch.py                      # the issue's sizes: 41 x 31 and 200 x 100
     python benchmarks/bench_notch.py --sizes 20x10        # candidates x Monte Carlo samples
 
-For each size it times the same sweep (candidates along the demo coupon's right edge, across its
-load axis, × Monte Carlo samples) on a :class:`~slipnet.notch.sweep.SweepPool` of one worker
-process and on one of two, checks that both give the identical table, and prints:
+For each size it evaluates the same candidates (along the demo coupon's right edge, across its
+load axis, × Monte Carlo samples) on two :class:`~slipnet.notch.sweep.SweepPool` s kept open side
+by side, one of one worker process and one of two, checks that both give the identical plan
+table, and prints:
 
-* the scaling ratio, time on one worker ÷ time on two (2 is perfect on a two-core machine;
-  target ≥ 1.7×), counted from the moment the pool is created, so the workers' start-up
-  (process spawn, imports, the graph sent to each worker) is inside it, as a user waits for it;
-* the same ratio of the sweeps alone, and the start-up itself;
-* the cost of a second sweep on the same pool (the workers and the graph are reused: no start-up);
-* the load average before and after (``os.getloadavg``): the machine may be shared, and a ratio
-  measured while other jobs hold a core is not the code's.
+* the start-up of each pool (process spawn, imports; paid once per study);
+* the sweep time on each and the scaling ratio, time on one worker ÷ time on two (2 is perfect
+  on a two-core machine; target ≥ 1.7×), with and without the start-up;
+* the load average before and after (``os.getloadavg``).
 
-The 200 × 100 size is 20,000 forecast + growth runs: tens of minutes on one worker.
+The machine may be shared, and other jobs come and go: the candidates are therefore swept in
+two halves in the order A B B A (half 1 on one worker, then on two; half 2 on two, then on
+one), so a change of load during the run falls on both sides alike. The graph goes to each pool
+once and stays there for both halves. The 200 × 100 size is 20,000 forecast + growth runs: about
+an hour on one worker.
 """
 
 from __future__ import annotations
@@ -26,10 +28,12 @@ import argparse
 import os
 import time
 
+import numpy as np
 import pandas as pd
 
 from slipnet.grains import build_grain_graph
-from slipnet.notch import plan_notch
+from slipnet.maps import NotchShape
+from slipnet.notch import DEFAULT_WEIGHTS, PlanSettings, candidate_positions, finish_plan, plan_notch, run_sweep
 from slipnet.notch.sweep import SweepPool
 from slipnet.synthetic import demo_specimen
 
@@ -42,13 +46,20 @@ class NotchSweepBench:
         self.gg = build_grain_graph(self.spec.omap)
         _, _, y0, y1 = self.spec.omap.extent
         self.spacing = (y1 - y0) / candidates
-        self.samples = samples
+        self.s = PlanSettings(
+            load_axis=tuple(float(v) for v in self.spec.load_axis), stress_amplitude=200.0, stress_ratio=-1.0,
+            notch=NotchShape(60.0, 15.0, 45.0), window_um=200.0, crack_sizes_um=(10.0,), strong_barrier=0.5,
+            weights=dict(DEFAULT_WEIGHTS), target=None, samples=samples, orientation_noise_deg=1.5,
+            load_misalignment_deg=2.0, position_error_um=5.0, seed=1, growth={}, concentration="peterson")
+        self.candidates = candidate_positions(self.gg, "right", self.spacing, self.s.notch)
 
-    def time_sweep(self, pool: SweepPool | None = None, *, samples: int | None = None,
-                   spacing: float | None = None) -> pd.DataFrame:
-        return plan_notch(self.gg, "right", self.spec.load_axis, spacing_um=spacing or self.spacing, depth_um=60.0,
-                          root_radius_um=15.0, opening_deg=45.0, window_um=200.0, crack_sizes_um=(10.0,),
-                          samples=self.samples if samples is None else samples, seed=1, pool=pool).table
+    def time_sweep(self, candidates, pool: SweepPool) -> list[dict]:
+        return run_sweep(self.gg, candidates, self.s, pool=pool)
+
+    def warm(self) -> None:
+        """Compile / load this process's kernels (and fill the on-disk cache the workers read)."""
+        plan_notch(self.gg, "right", self.s.load_axis, spacing_um=100.0, depth_um=60.0, root_radius_um=15.0,
+                   opening_deg=45.0, window_um=200.0, crack_sizes_um=(10.0,), samples=1, seed=1)
 
 
 def _load() -> str:
@@ -58,29 +69,31 @@ def _load() -> str:
 def run(candidates: int, samples: int) -> None:
     b = NotchSweepBench()
     b.setup(candidates, samples)
-    # compile / load this process's kernels (and fill the on-disk cache the workers read) outside the timing
-    b.time_sweep(samples=1, spacing=100.0)
+    b.warm()
     print(f"{candidates} x {samples}: before: {_load()}", flush=True)
-    total, sweep, start, again, tables = {}, {}, {}, {}, {}
-    for w in (1, 2):
-        t0 = time.perf_counter()
-        with SweepPool("processes", workers=w) as pool:
-            pool.start()
-            t1 = time.perf_counter()
-            tables[w] = b.time_sweep(pool)
-            t2 = time.perf_counter()
-            b.time_sweep(pool, samples=0)  # a second, small sweep on the same workers and graph
-            again[w] = time.perf_counter() - t2
-        total[w], sweep[w], start[w] = t2 - t0, t2 - t1, t1 - t0
+    halves = [list(h) for h in np.array_split(np.array(b.candidates, dtype=object), 2)]
+    start, sweep, rows = {}, {1: 0.0, 2: 0.0}, {1: [], 2: []}
+    with SweepPool("processes", workers=1) as one, SweepPool("processes", workers=2) as two:
+        pools = {1: one, 2: two}
+        for w in (1, 2):
+            t0 = time.perf_counter()
+            pools[w].start()
+            start[w] = time.perf_counter() - t0
+        for half, order in zip(halves, ((1, 2), (2, 1)), strict=True):
+            for w in order:
+                t0 = time.perf_counter()
+                rows[w] += b.time_sweep(half, pools[w])
+                sweep[w] += time.perf_counter() - t0
+    tables = {w: finish_plan(sorted(rows[w], key=lambda r: r["candidate"]), b.s).table for w in (1, 2)}
     pd.testing.assert_frame_equal(tables[1], tables[2])
-    n = len(tables[1])
-    assert n > 0 and tables[1]["valid"].any()  # real work: evaluated candidates
-    runs = int(n + tables[1]["valid"].sum() * samples)
-    print(f"  candidates={n} samples={samples} ({runs} forecast+growth runs), identical tables on 1 and 2 workers")
-    print(f"  1 worker : {total[1]:7.1f} s = start-up {start[1]:4.1f} s + sweep {sweep[1]:7.1f} s "
-          f"({1e3 * sweep[1] / runs:.0f} ms per run); second sweep (nominal only) {again[1]:.1f} s")
-    print(f"  2 workers: {total[2]:7.1f} s = start-up {start[2]:4.1f} s + sweep {sweep[2]:7.1f} s; "
-          f"second sweep (nominal only) {again[2]:.1f} s")
+    t = tables[1]
+    assert len(t) > 0 and t["valid"].any()  # real work: evaluated candidates
+    runs = int(len(t) + t["valid"].sum() * samples)
+    total = {w: start[w] + sweep[w] for w in (1, 2)}
+    print(f"  candidates={len(t)} samples={samples} ({runs} forecast+growth runs), identical tables on 1 and 2 "
+          "workers")
+    print(f"  1 worker : start-up {start[1]:4.1f} s, sweep {sweep[1]:7.1f} s ({1e3 * sweep[1] / runs:.0f} ms per run)")
+    print(f"  2 workers: start-up {start[2]:4.1f} s, sweep {sweep[2]:7.1f} s")
     print(f"  scaling ratio 1 worker / 2 workers: {total[1] / total[2]:.2f}x with start-up, "
           f"{sweep[1] / sweep[2]:.2f}x sweeps alone (target >= 1.7x, ideal 2.0)")
     print(f"  after: {_load()}", flush=True)

@@ -183,8 +183,9 @@ class SweepPool:
 
             from distributed import LocalCluster
 
+            # ":0": any free port; None would still ask for 8787 and warn when another cluster holds it
             self._cluster = LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=True,
-                                         dashboard_address=None, silence_logs=logging.ERROR,
+                                         dashboard_address=":0", silence_logs=logging.ERROR,
                                          env=dict(_SINGLE_THREAD_ENV))
             self._client = Client(self._cluster, set_as_default=False)
             # every worker imports the sweep's code now, side by side, not inside its first task
