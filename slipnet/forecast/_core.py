@@ -15,7 +15,7 @@ import numpy as np
 from slipnet._checks import check_choice, check_positive, check_range, check_vector
 from slipnet.errors import ParameterError
 from slipnet.forecast import _kernels as _k
-from slipnet.forecast._geometry import _boundary_info, _Crystal, _Geometry, _Planes, crack_plane_angles
+from slipnet.forecast._geometry import _boundary_info, _Crystal, _Geometry, _Planes
 from slipnet.forecast.barriers import _MAX_SCHMID
 
 if TYPE_CHECKING:
@@ -121,7 +121,11 @@ def _crossing_scores(cry: _Crystal, planes: _Planes, ga: int, sys_a: int, gb: in
     if sys_a >= 0:
         mp = cry.m_prime_row(ga, sys_a, gb)[psys]
         n_in = cry.n_s[ga, sys_a]
-        twist, tilt = crack_plane_angles(n_in, cry.plane_n[gb], trace_angle, opts.inclination)
+        # crack_plane_angles for one boundary in one kernel (the same angles to round-off, ~1e-14°)
+        twist = np.empty(meff.shape[0])
+        tilt = np.empty(meff.shape[0])
+        _k.plane_angles(np.ascontiguousarray(n_in), np.ascontiguousarray(cry.plane_n[gb]), float(trace_angle),
+                        float(opts.inclination), twist, tilt)
     else:
         mp = np.ones_like(meff)
         twist = np.zeros_like(meff)

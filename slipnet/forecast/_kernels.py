@@ -192,3 +192,41 @@ def greedy_peaks(values, region, x, y, k, sep2, out):
         out[count, 1] = y[bi]
         count += 1
     return count
+
+
+@nb.njit(cache=True, inline="always")
+def _line_angle_deg(ax, ay, az, bx, by, bz):
+    # atan2(|a × b|, |a · b|) in degrees, 0 for a zero line (as _geometry._line_angle)
+    na = math.sqrt(ax * ax + ay * ay + az * az)
+    nb_ = math.sqrt(bx * bx + by * by + bz * bz)
+    if not (na > 1e-9 and nb_ > 1e-9):
+        return 0.0
+    dot = abs(ax * bx + ay * by + az * bz)
+    cx = ay * bz - az * by
+    cy = az * bx - ax * bz
+    cz = ax * by - ay * bx
+    return math.degrees(math.atan2(math.sqrt(cx * cx + cy * cy + cz * cz), dot))
+
+
+@nb.njit(cache=True)
+def plane_angles(n_in, n_out, trace_angle_deg, inclination_deg, twist, tilt):
+    """Twist and tilt (degrees) from one incoming crack-plane normal to each row of ``n_out``.
+
+    :func:`slipnet.forecast.crack_plane_angles` for one boundary, written out per plane: the same
+    products in the same order, without the array temporaries of 3-element vectors.
+    """
+    th = math.radians(trace_angle_deg)
+    phi = math.radians(inclination_deg)
+    b0 = math.cos(th)
+    b1 = math.sin(th)
+    gx = math.sin(phi) * -b1 + math.cos(phi) * 0.0
+    gy = math.sin(phi) * b0 + math.cos(phi) * 0.0
+    gz = math.sin(phi) * 0.0 + math.cos(phi) * 1.0
+    ix, iy, iz = n_in[0], n_in[1], n_in[2]
+    # incoming traces on the boundary plane (n × n_gb) and on the surface (n × z)
+    lix, liy, liz = iy * gz - iz * gy, iz * gx - ix * gz, ix * gy - iy * gx
+    tix, tiy, tiz = iy * 1.0 - iz * 0.0, iz * 0.0 - ix * 1.0, ix * 0.0 - iy * 0.0
+    for p in range(n_out.shape[0]):
+        ox, oy, oz = n_out[p, 0], n_out[p, 1], n_out[p, 2]
+        twist[p] = _line_angle_deg(lix, liy, liz, oy * gz - oz * gy, oz * gx - ox * gz, ox * gy - oy * gx)
+        tilt[p] = _line_angle_deg(tix, tiy, tiz, oy * 1.0 - oz * 0.0, oz * 0.0 - ox * 1.0, ox * 0.0 - oy * 0.0)
