@@ -235,8 +235,9 @@ def _cross(geo, cry, planes, st: _State, g: int, lab: int, sys_in: int, d: np.nd
         sc = _crossing_scores(cry, planes, g, sys_in, lab, ang, opts)
         order = np.argsort(-sc["score"], kind="stable")
         best = int(order[0])
-        close = [int(p) for p in order[1:] if np.isfinite(sc["score"][p])
-                 and sc["score"][p] >= sc["score"][best] - opts.branch_tol]
+        rest = order[1:]
+        sr = sc["score"][rest]
+        close = rest[np.isfinite(sr) & (sr >= sc["score"][best] - opts.branch_tol)].tolist()
         for p in close:
             if budget[0] <= 0:
                 break

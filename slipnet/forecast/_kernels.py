@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 
 import numba as nb
+import numpy as np
 
 #: Status codes returned by :func:`march_ray`.
 STATUS_INSIDE = 0  # the ray reached its length without leaving the grain
@@ -52,7 +53,7 @@ def nearest_point(hexgrid, ox, oy, step, rs, ny, nx, x, y):
     return i, j
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def label_at(labels, hexgrid, ox, oy, step, rs, x, y):
     """Label at the grid point nearest (x, y); −2 outside the map (−1 is 'no grain')."""
     ny, nx = labels.shape
@@ -62,7 +63,7 @@ def label_at(labels, hexgrid, ox, oy, step, rs, x, y):
     return labels[i, j]
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def _bisect(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, lo, hi, max_len):
     """Exit distance between ``lo`` (inside ``grain``) and ``hi`` (outside) to (hi − lo)/64."""
     ny, nx = labels.shape
@@ -76,7 +77,7 @@ def _bisect(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, lo, hi, ma
     return min(0.5 * (lo + hi), max_len)
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def march_ray(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, ds, max_len, max_gap):
     """Walk from (px, py) along the unit vector (dx, dy) in steps ``ds`` while inside ``grain``.
 
@@ -124,7 +125,7 @@ def march_ray(labels, hexgrid, ox, oy, step, rs, px, py, dx, dy, grain, ds, max_
     return max_len, grain, STATUS_INSIDE
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def chord_ends(labels, hexgrid, ox, oy, step, rs, px, py, dxs, dys, grains, ds, max_len, max_gap, t_out, lab_out):
     """Both exits of a line through each grain: ``t_out[k, 0/1]`` along ±(dx, dy), ``lab_out`` beyond.
 
@@ -140,7 +141,7 @@ def chord_ends(labels, hexgrid, ox, oy, step, rs, px, py, dxs, dys, grains, ds, 
             lab_out[k, s] = lab
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def accumulate_segments(img, hexgrid, ox, oy, step, rs, x0, y0, x1, y1, weight, ds):
     """Add ``weight[k]·ds`` at every ``ds`` sample along segment ``k`` into ``img`` (line density)."""
     ny, nx = img.shape
@@ -156,7 +157,7 @@ def accumulate_segments(img, hexgrid, ox, oy, step, rs, x0, y0, x1, y1, weight, 
                 img[i, j] += weight[k] * (length / (n + 1))
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def greedy_peaks(values, region, x, y, k, sep2, out):
     """The highest points of ``values`` in ``region``, each at least √sep2 from those before (µm).
 
@@ -208,7 +209,7 @@ def _line_angle_deg(ax, ay, az, bx, by, bz):
     return math.degrees(math.atan2(math.sqrt(cx * cx + cy * cy + cz * cz), dot))
 
 
-@nb.njit(cache=True)
+@nb.njit(cache=True, nogil=True)
 def plane_angles(n_in, n_out, trace_angle_deg, inclination_deg, twist, tilt):
     """Twist and tilt (degrees) from one incoming crack-plane normal to each row of ``n_out``.
 
@@ -230,3 +231,46 @@ def plane_angles(n_in, n_out, trace_angle_deg, inclination_deg, twist, tilt):
         ox, oy, oz = n_out[p, 0], n_out[p, 1], n_out[p, 2]
         twist[p] = _line_angle_deg(lix, liy, liz, oy * gz - oz * gy, oz * gx - ox * gz, ox * gy - oy * gx)
         tilt[p] = _line_angle_deg(tix, tiy, tiz, oy * 1.0 - oz * 0.0, oz * 0.0 - ox * 1.0, ox * 0.0 - oy * 0.0)
+
+
+@nb.njit(cache=True, nogil=True)
+def map_field(lab, solid, e_block, pair_pos, lnd, x, y, tau_g, mod_g, exc_g, mp_sorted, tx, ty, d0, d1, step,
+              perm, mean, scale, coef, b, fld, tau_out):
+    """The map-mode field of one Monte Carlo sample over a window, features and logistic in one pass.
+
+    Per metal point ``p`` of grain ``g``: the seven map-mode features (:data:`FEATURES` ``["map"]``
+    order: τ_g, modulus ratio_g, grain excess_g, (1 − |m′|)·e^(−d), tip field, ln(1 + r/h),
+    ln(1 + d_notch/h)), non-finite values taken as 0 as the feature builder does, then
+    ``b + Σ_k (f[perm[k]] − mean_k)/scale_k · coef_k`` and the logistic with the logit clipped to
+    ±40 (:meth:`slipnet.forecast.predictor.Model.probability`). Off the metal both outputs are 0.
+    Releases the GIL, so samples run in parallel on threads.
+    """
+    f = np.empty(7)
+    for p in range(lab.shape[0]):
+        if not solid[p]:
+            fld[p] = 0.0
+            tau_out[p] = 0.0
+            continue
+        g = lab[p]
+        mp = mp_sorted[pair_pos[p]] if pair_pos[p] >= 0 else 1.0
+        dx = x[p] - tx
+        dy = y[p] - ty
+        r = math.hypot(dx, dy)
+        th = math.atan2(dx * d1 * -1.0 + dy * d0, dx * d0 + dy * d1)
+        s = math.sin(0.5 * th)
+        f[0] = tau_g[g]
+        f[1] = mod_g[g]
+        f[2] = exc_g[g]
+        f[3] = (1.0 - mp) * e_block[p]
+        f[4] = math.cos(0.5 * th) * math.sqrt(1.0 + 3.0 * s * s) * math.sqrt(step / (r + step))
+        f[5] = math.log1p(r / step)
+        f[6] = lnd[p]
+        z = b
+        for k in range(perm.shape[0]):
+            v = f[perm[k]]
+            if not math.isfinite(v):
+                v = 0.0
+            z += (v - mean[k]) / scale[k] * coef[k]
+        z = min(max(z, -40.0), 40.0)
+        fld[p] = 1.0 / (1.0 + math.exp(-z))
+        tau_out[p] = f[0] if math.isfinite(f[0]) else 0.0

@@ -862,3 +862,107 @@ def _tip_terms(x, y, step, tip, direction, dn):
     theta = np.arctan2(dx * d[1] * -1.0 + dy * d[0], dx * d[0] + dy * d[1])
     ang = np.cos(0.5 * theta) * np.sqrt(1.0 + 3.0 * np.sin(0.5 * theta) ** 2)
     return ang * np.sqrt(step / (r + step)), np.log1p(r / step), np.log1p(dn / step)
+
+
+class MapFieldPlan:
+    """The map-mode field of many Monte Carlo samples on one window (no crack moved per sample).
+
+    What depends only on the geometry (metal mask, boundary distance and partner, notch distance,
+    pair look-up, positions) is computed once from a :func:`window_features` call; each sample then
+    costs its grain terms and one kernel pass over the window
+    (:func:`slipnet.forecast._kernels.map_field`). The field equals :func:`predict_field` of
+    :func:`window_features` to round-off (the logit is summed in another order).
+    """
+
+    def __init__(self, gg, geo, win, tip, direction, load_axis, systems, constants=None) -> None:
+        from slipnet.stress import IRON_CONSTANTS
+        from slipnet.stress.constants import DEFAULT_CONSTANTS
+
+        memo: dict = {}
+        ref = window_features(gg, geo, win, tip, direction, load_axis, mode="map", systems=systems, memo=memo,
+                              constants=constants)
+        (terms,) = memo.values()
+        mc = map_cache(gg, geo)
+        self.win, self.systems, self.window = win, systems, ref.window
+        box = win.crop
+        isl = box.inner(win.inner)
+        labels = geo.labels[box.sl]
+        self.labels_crop = labels
+        solid_c = (labels >= 0) & ~mc.holes[box.sl] & ~terms["cut"]
+        self.solid_crop = solid_c
+        self.lab_solid = labels[solid_c]
+        self.used = np.unique(labels[labels >= 0])
+        self.eids = mc.edges_of(win.grains)
+        self.ea, self.eb, self.ew = mc.edge_a[self.eids], mc.edge_b[self.eids], mc.edge_w[self.eids]
+        self.ng = int(np.asarray(gg.mean_quats).shape[0])
+        # the pair keys are the same for every sample (the same edges); only their |m′| changes
+        keys, _ = _transmission_pairs(self.ea, self.eb, np.asarray(gg.mean_quats, float),
+                                      np.zeros(self.ng, np.int64), systems)
+        self.keys = keys
+        lab_i = labels[isl]
+        partner = terms["partner"][isl]
+        lab0 = np.maximum(lab_i, 0)
+        pos = np.full(lab_i.shape, -1, np.int64)
+        if keys.size:
+            code = keys[:, 0] * (self.ng + 1) + keys[:, 1]
+            self.order = np.argsort(code)
+            pc = lab0 * (self.ng + 1) + np.maximum(partner, 0)
+            p = np.clip(np.searchsorted(code[self.order], pc), 0, code.size - 1)
+            hit = (code[self.order][p] == pc) & (partner >= 0)
+            pos = np.where(hit, p, -1)
+        else:
+            self.order = np.zeros(0, np.int64)
+        flat = (lambda a: np.ascontiguousarray(a).ravel())
+        self.shape = lab_i.shape
+        self.lab = flat(lab0).astype(np.int64)
+        self.solid = flat(solid_c[isl])
+        self.e_block = flat(np.exp(-np.nan_to_num(terms["dist"][isl], posinf=1e3)))
+        self.pair_pos = flat(pos)
+        self.lnd = flat(np.log1p(terms["dn"][isl] / float(gg.omap.step)))
+        self.x, self.y = flat(terms["x"][isl]), flat(terms["y"][isl])
+        self.step = float(gg.omap.step)
+        struct = gg.omap.phases[0].structure
+        self.constants = constants if constants is not None else DEFAULT_CONSTANTS.get(struct, IRON_CONSTANTS)
+
+    def sample(self, mean_quats, load_axis, tip, direction, model, replicate=None):
+        """``(inputs, field)`` of one sample: the window's metal mask, τ and window, and the field there."""
+        from slipnet.forecast import _kernels as _k
+
+        mq = np.asarray(mean_quats, float)
+        load = check_vector(load_axis, "load_axis")
+        used, systems = self.used, self.systems
+        q = np.where(np.all(np.isfinite(mq[used]), axis=1)[:, None], mq[used], [1.0, 0.0, 0.0, 0.0])
+        g = _matrices(q)
+        n_s = np.einsum("sk,gkj->gsj", np.asarray(systems.normals, float), g)
+        d_s = np.einsum("sk,gkj->gsj", np.asarray(systems.directions, float), g)
+        schmid = (n_s @ load) * (d_s @ load)
+        eratio = np.zeros(self.ng)
+        eratio[used] = _youngs_ratio(mq[used], load, self.constants, _matrices)
+        grain_tau = np.zeros((self.ng, schmid.shape[1]))
+        grain_tau[used] = _effective(schmid, systems) * eratio[used, None]
+        tau_g = grain_tau.max(axis=1)
+        # grain means over the metal points of the crop, summed as the feature builder sums them
+        cnt = np.bincount(self.lab_solid, minlength=self.ng).astype(float)
+        tg = np.where(cnt > 0, np.bincount(self.lab_solid, weights=tau_g[self.lab_solid], minlength=self.ng)
+                      / np.maximum(cnt, 1.0), np.nan)
+        excess = np.nan_to_num(tg - _neighbour_mean_edges(self.ea, self.eb, self.ew, tg))
+        best = np.argmax(grain_tau, axis=1)
+        keys, vals = _transmission_pairs(self.ea, self.eb, mq, best, systems)
+        mp_sorted = vals[self.order] if vals.size else np.ones(1)
+        c, b = model.coef, model.intercept
+        if replicate is not None and model.bootstrap_coef.shape[0]:
+            r = int(replicate) % model.bootstrap_coef.shape[0]
+            c, b = model.bootstrap_coef[r], float(model.bootstrap_intercept[r])
+        perm = np.array([FEATURES["map"].index(n) for n in model.features], np.int64)
+        d = np.asarray(direction, float) / np.linalg.norm(direction)
+        fld = np.empty(self.lab.size)
+        tau = np.empty(self.lab.size)
+        _k.map_field(self.lab, self.solid, self.e_block, self.pair_pos, self.lnd, self.x, self.y, tau_g, eratio,
+                     excess, mp_sorted, float(tip[0]), float(tip[1]), float(d[0]), float(d[1]), self.step, perm,
+                     np.asarray(model.mean, float), np.asarray(model.scale, float), np.asarray(c, float), float(b),
+                     fld, tau)
+        inputs = FieldInputs(mode="map", features={}, solid=self.solid.reshape(self.shape),
+                             tau=tau.reshape(self.shape), best_system=np.zeros(self.shape, np.int64),
+                             grain_tau=grain_tau, stress_field=None, cyclic_field=None, free_edges=(), notes=(),
+                             window=self.window)
+        return inputs, fld.reshape(self.shape)

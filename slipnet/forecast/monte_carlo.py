@@ -35,7 +35,7 @@ from slipnet.crystal.perturb import perturb_sample
 from slipnet.forecast._core import _start_grain
 from slipnet.forecast._run import run_forecast_pass
 from slipnet.forecast._window import forecast_window
-from slipnet.forecast.features import field_peaks, window_features
+from slipnet.forecast.features import MapFieldPlan, field_peaks, window_features
 from slipnet.forecast.localise import _coords, _GridShim, barrier_features, predict_field, site_probability
 
 __all__ = ["monte_carlo"]
@@ -130,6 +130,12 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     spread = 5.0 * float(noise.tip_um) + 2.0 * max(geo.step, geo.rs)
     win = forecast_window(gg, geo, tip, opts.horizon + drop_r + spread) if gg is not None else None
     memo: dict = {}
+    keep = stress_given or not noise.resolve_stress
+    plan = None
+    if win is not None and weights is not None and inputs is not None and mode == "map" and crack is None:
+        # the geometry of the window once; each sample then costs its grain terms and one kernel pass
+        plan = MapFieldPlan(gg, geo, win, tip, opts.d_ref, load, systems)
+        field_model = weights.model(mode, "field")
     site_ij = np.asarray(gg.omap.index_of(sxy[:, 0], sxy[:, 1])) if (ns and gg is not None) else None
 
     def one(s: int, dr: dict) -> dict:
@@ -155,11 +161,12 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             if crack is not None:
                 crack_s = np.asarray(crack, float).copy()
                 crack_s[-1] = t
-            keep = stress_given or not noise.resolve_stress
             kw = dict(mode=mode, stress_amplitude=amplitude, crack=crack_s, systems=systems, free_edges=free_edges,
                       stress_ratio=ratio, cyclic_field=inputs.cyclic_field if mode == "cyclic" else cyclic_field,
                       memo=memo if w is win else None)
-            if keep:
+            if plan is not None and w is win:
+                inp, fld = plan.sample(q, load if keep else ld, t, opts.d_ref, field_model, dr["rep"])
+            elif keep:
                 rot = None
                 if inputs.stress_field is not None:
                     rot = _rotation(q_old, q)
@@ -167,7 +174,8 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                                       mean_quats=q, point_rotation=rot, **kw)
             else:  # a solve per sample on the rotated map (MonteCarloNoise.resolve_stress)
                 inp = window_features(_rotated_graph(gg, q), geo, w, t, opts.d_ref, ld, **kw)
-            fld = predict_field(inp, weights, dr["rep"])
+            if plan is None or w is not win:
+                fld = predict_field(inp, weights, dr["rep"])
             r0, _r1, c0, _c1 = inp.window
             x, y = _coords(geo, inp.window)
             if ns:
