@@ -81,7 +81,8 @@ def main(argv=None) -> None:
           f"{fc.path['grain'].nunique()} path grains, {len(fc.barriers)} barriers, {len(fc.sites)} sites")
     print(f"one forecast (reference, one core): {t_one * 1e3:.1f} ms")
     r1 = t_mc1 / t_one
-    print(f"{args.samples} samples, 1 worker (one core): {t_mc1:.2f} s ({t_mc1 / args.samples * 1e3:.1f} ms per sample)")
+    print(f"{args.samples} samples, 1 worker (one core): {t_mc1:.2f} s "
+          f"({t_mc1 / args.samples * 1e3:.1f} ms per sample)")
     print(f"  ratio Monte Carlo / one forecast = {r1:.1f}  (target <= 15: {'met' if r1 <= 15 else 'NOT met'})")
     sp = t_mc1 / t_mc2
     print(f"{args.samples} samples, 2 workers: {t_mc2:.2f} s; speed-up over 1 worker = {sp:.2f}  "

@@ -912,7 +912,9 @@ class MapFieldPlan:
             pos = np.where(hit, p, -1)
         else:
             self.order = np.zeros(0, np.int64)
-        flat = (lambda a: np.ascontiguousarray(a).ravel())
+        def flat(a):
+            return np.ascontiguousarray(a).ravel()
+
         self.shape = lab_i.shape
         self.lab = flat(lab0).astype(np.int64)
         self.solid = flat(solid_c[isl])
@@ -947,7 +949,7 @@ class MapFieldPlan:
                       / np.maximum(cnt, 1.0), np.nan)
         excess = np.nan_to_num(tg - _neighbour_mean_edges(self.ea, self.eb, self.ew, tg))
         best = np.argmax(grain_tau, axis=1)
-        keys, vals = _transmission_pairs(self.ea, self.eb, mq, best, systems)
+        _keys, vals = _transmission_pairs(self.ea, self.eb, mq, best, systems)
         mp_sorted = vals[self.order] if vals.size else np.ones(1)
         c, b = model.coef, model.intercept
         if replicate is not None and model.bootstrap_coef.shape[0]:
