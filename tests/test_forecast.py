@@ -777,3 +777,43 @@ def test_peak_kernel_makes_the_greedy_choice_of_a_stable_sort():
             alive &= (px - px[p]) ** 2 + (py - py[p]) ** 2 >= sep ** 2
             alive[p] = False if sep > 0 else alive[p]
         np.testing.assert_array_equal(got, np.asarray(want, float).reshape(-1, 2))
+
+
+def test_plane_angle_kernel_matches_crack_plane_angles():
+    from slipnet.forecast._kernels import plane_angles
+
+    rng = np.random.default_rng(4)
+    for _ in range(200):
+        n_in, n_out = rng.normal(size=3), rng.normal(size=(12, 3))
+        n_out[0] = 2.0 * n_in  # the same plane: both angles 0
+        n_out[1] = (0.0, 0.0, 1.0)  # parallel to the surface: no surface trace, tilt reported 0
+        trace, incl = rng.uniform(0.0, 180.0), float(rng.choice([90.0, rng.uniform(1.0, 179.0)]))
+        twist, tilt = np.empty(12), np.empty(12)
+        plane_angles(n_in, n_out, trace, incl, twist, tilt)
+        want = crack_plane_angles(n_in, n_out, trace, incl)
+        np.testing.assert_allclose(twist, want[0], rtol=0, atol=1e-11)
+        np.testing.assert_allclose(tilt, want[1], rtol=0, atol=1e-11)
+
+
+def test_monte_carlo_field_plan_equals_the_window_features(poly_gg):
+    # the map-mode Monte Carlo computes each sample's field in one kernel pass over the window
+    from slipnet.crystal import perturb_sample
+    from slipnet.forecast import load_weights
+    from slipnet.forecast._geometry import geometry_of
+    from slipnet.forecast._window import forecast_window
+    from slipnet.forecast.features import MapFieldPlan, window_features
+    from slipnet.forecast.localise import predict_field
+
+    geo, systems, wts = geometry_of(poly_gg), slip_systems("bcc"), load_weights()
+    tip = np.array([5.0, 60.0])
+    win = forecast_window(poly_gg, geo, tip, 45.0)
+    plan = MapFieldPlan(poly_gg, geo, win, tip, (1.0, 0.0), (0.0, 1.0, 0.0), systems)
+    rng = np.random.default_rng(1)
+    for rep in (None, 3, 7):
+        q, _ld, dt = perturb_sample(rng, np.asarray(poly_gg.mean_quats), 2.0, (0.0, 1.0, 0.0), 2.0, tip, 1.0)
+        inp = window_features(poly_gg, geo, win, tip + dt, (1.0, 0.0), (0.0, 1.0, 0.0), mode="map", systems=systems,
+                              mean_quats=q)
+        got_inp, got = plan.sample(q, (0.0, 1.0, 0.0), tip + dt, (1.0, 0.0), wts.model("map", "field"), rep)
+        np.testing.assert_array_equal(got_inp.solid, inp.solid)
+        np.testing.assert_allclose(got, predict_field(inp, wts, rep), rtol=1e-12, atol=1e-14)
+        np.testing.assert_allclose(got_inp.tau, inp.tau, rtol=1e-12, atol=1e-15)
