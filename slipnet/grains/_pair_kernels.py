@@ -16,6 +16,10 @@ import numpy as np
 
 from slipnet.crystal.orientation_kernels import cubic_angle
 
+# numba's on-disk cache checks only this file's own source, not the crystal kernels inlined from
+# slipnet.crystal.orientation_kernels: after changing those, edit (or touch) this file too, or a
+# warm cache keeps running the old inlined code
+
 # Forward offsets (each unordered neighbour pair once). Hex grid: odd rows shifted +step/2, so the
 # row below an even row is met at columns j-1 and j, below an odd row at j and j+1.
 FORWARD_OFFSETS = {

@@ -15,6 +15,10 @@ import numpy as np
 
 from slipnet.crystal.orientation_kernels import cubic_angle, nearest_cubic_single
 
+# numba's on-disk cache checks only this file's own source, not the crystal kernels inlined from
+# slipnet.crystal.orientation_kernels: after changing those, edit (or touch) this file too, or a
+# warm cache keeps running the old inlined code
+
 
 # ----------------------------------------------------------------------------- orientations
 @nb.njit(cache=True, parallel=True)
