@@ -166,14 +166,14 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                       memo=memo if w is win else None)
             if plan is not None and w is win:
                 inp, fld = plan.sample(q, load if keep else ld, t, opts.d_ref, field_model, dr["rep"])
-            elif keep:
-                rot = None
-                if inputs.stress_field is not None:
-                    rot = _rotation(q_old, q)
-                inp = window_features(gg, geo, w, t, opts.d_ref, load, stress_field=inputs.stress_field,
-                                      mean_quats=q, point_rotation=rot, **kw)
-            else:  # a solve per sample on the rotated map (MonteCarloNoise.resolve_stress)
-                inp = window_features(_rotated_graph(gg, q), geo, w, t, opts.d_ref, ld, **kw)
+            else:
+                with solve_lock:  # parallel kernels of the stress steps: one thread at a time if they must be
+                    if keep:
+                        rot = None if inputs.stress_field is None else _rotation(q_old, q)
+                        inp = window_features(gg, geo, w, t, opts.d_ref, load, stress_field=inputs.stress_field,
+                                              mean_quats=q, point_rotation=rot, **kw)
+                    else:  # a solve per sample on the rotated map (MonteCarloNoise.resolve_stress)
+                        inp = window_features(_rotated_graph(gg, q), geo, w, t, opts.d_ref, ld, **kw)
             if plan is None or w is not win:
                 fld = predict_field(inp, weights, dr["rep"])
             r0, _r1, c0, _c1 = inp.window
@@ -207,6 +207,7 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
            ("on_path", "top", "p_hit", "present", "site_top", "p_drop")}
     rows = []
     n_workers = max(1, int(workers))
+    solve_lock = _parallel_guard(n_workers)
     pool = ThreadPoolExecutor(max_workers=n_workers) if n_workers > 1 else None
     try:
         for start in range(0, samples, BATCH):
@@ -231,6 +232,26 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     sites["p_top_k"] = tot["site_top"] / n
     sites["p_hit"] = tot["p_hit"] / n
     return replace(fc, barriers=barriers, sites=sites, samples=pd.DataFrame(rows))
+
+
+def _parallel_guard(n_workers: int):
+    """A lock for the steps that run numba's parallel kernels, when threads may not share them.
+
+    The "omp" and "tbb" threading layers take parallel kernels from several threads at once;
+    "workqueue" aborts the process on that, so there the stress steps of the samples take turns.
+    """
+    import contextlib
+    import threading
+
+    if n_workers <= 1:
+        return contextlib.nullcontext()
+    import numba
+
+    try:
+        layer = numba.threading_layer()
+    except ValueError:  # no parallel kernel has run yet: the layer is chosen from the configuration
+        layer = str(numba.config.THREADING_LAYER)
+    return contextlib.nullcontext() if layer in ("omp", "tbb") else threading.Lock()
 
 
 def _rotation(q_old: np.ndarray, q_new: np.ndarray) -> np.ndarray:
