@@ -226,3 +226,49 @@ def test_disorientation_properties(a, b, i, j):
     qa2 = quat_multiply(CUBIC_OPERATORS[i], qa)
     qb2 = quat_multiply(CUBIC_OPERATORS[j], qb)
     assert abs(d - float(disorientation_angle(qa2, qb2))) < 1e-6
+
+
+def test_closed_form_angle_by_atan_equals_the_atan2_form():
+    # issue 17: the closed form takes atan(|v|/w) (w >= 1/2 for the best equivalent of a unit
+    # quaternion) instead of atan2(|v|, w); the same angle to rounding, near zero and at the largest
+    # disorientations, and 0 for the zero quaternion as atan2 gives
+    rng = np.random.default_rng(4)
+    small = quat_from_axis_angle(rng.normal(size=(2000, 3)), 10.0 ** rng.uniform(-9, 0, 2000))
+    q = np.concatenate([random_quats(20000, seed=3), small, reduce_cubic(random_quats(2000, seed=5))])
+    srt = -np.sort(-np.abs(q), axis=1)
+    a, b, c, d = srt.T
+    w = np.maximum.reduce([a, (a + b) / np.sqrt(2), 0.5 * (a + b + c + d)])
+    v2 = np.where(w == 0.5 * (a + b + c + d), 0.25 * ((a - b) ** 2 + (a - c) ** 2 + (a - d) ** 2 + (b - c) ** 2
+                                                       + (b - d) ** 2 + (c - d) ** 2),
+                  np.where(w == (a + b) / np.sqrt(2), 0.5 * (a - b) ** 2 + c * c + d * d, b * b + c * c + d * d))
+    ref = 2.0 * np.arctan2(np.sqrt(v2), w)
+    got = np.array([K.closed_form_angle(*r) for r in srt[:3000]])
+    np.testing.assert_allclose(got, ref[:3000], rtol=1e-15, atol=1e-18)
+    out = np.empty(len(q))
+    K.disorientation_angle_rows(q, np.tile([1.0, 0.0, 0.0, 0.0], (len(q), 1)), out)
+    np.testing.assert_allclose(out, ref, rtol=1e-14, atol=1e-17)
+    assert K.closed_form_angle(0.0, 0.0, 0.0, 0.0) == 0.0
+    assert np.isnan(K.closed_form_angle(np.nan, 0.0, 0.0, 0.0))
+
+
+def test_csl_deviation_picks_the_closest_equivalent_like_the_full_search():
+    from slipnet.crystal.csl import csl_rotations
+
+    table = csl_rotations()
+    cq = table[["qw", "qx", "qy", "qz"]].to_numpy()
+    equiv = np.ascontiguousarray(quat_multiply(cq[:, None, :], CUBIC_OPERATORS[None, :, :]))
+    rng = np.random.default_rng(8)
+    near = quat_multiply(cq[rng.integers(0, len(cq), 300)],
+                         quat_from_axis_angle(rng.normal(size=(300, 3)), rng.uniform(0, 4, 300)))
+    dq = np.concatenate([misorientation(random_quats(300, seed=1), random_quats(300, seed=2)), near])
+    angle = disorientation_angle(dq, [1.0, 0.0, 0.0, 0.0])
+    limit = 3 * table["brandon_limit_deg"].to_numpy()
+    out = np.empty((len(dq), len(table)))
+    K.csl_deviation(dq, angle, equiv, table["angle_deg"].to_numpy(), limit, out)
+    # the full search: the smallest disorientation between dq and every C·S (numpy, no kernel)
+    full = disorientation_angle(np.repeat(dq[:, None, None, :], len(table), 1), equiv[None])
+    ref = full.min(axis=2)
+    skip = np.abs(angle[:, None] - table["angle_deg"].to_numpy()[None]) > limit[None]
+    assert np.all(np.isinf(out[skip]))
+    np.testing.assert_allclose(out[~skip], ref[~skip], atol=1e-9)
+    assert (~skip).sum() > 300  # the near-CSL cases are compared, not skipped
