@@ -11,6 +11,8 @@ by side, one of one worker process and one of two, checks that both give the ide
 table, and prints:
 
 * the start-up of each pool (process spawn, imports; paid once per study);
+* the CPU time the workers got during the sweeps: the same work on one or two workers means no
+  cost of the split, and the cores used on average show how much of the machine was free;
 * the sweep time on each and the scaling ratio, time on one worker ÷ time on two (2 is perfect
   on a two-core machine; target ≥ 1.7×), with and without the start-up;
 * the load average before and after (``os.getloadavg``).
@@ -62,6 +64,15 @@ class NotchSweepBench:
                    opening_deg=45.0, window_um=200.0, crack_sizes_um=(10.0,), samples=1, seed=1)
 
 
+def _process_cpu() -> float:
+    return time.process_time()
+
+
+def _worker_cpu(pool: SweepPool) -> float:
+    """CPU seconds used so far by all worker processes of ``pool``."""
+    return float(sum(pool.client.run(_process_cpu).values()))
+
+
 def _load() -> str:
     return "load average " + ", ".join(f"{v:.2f}" for v in os.getloadavg())
 
@@ -79,11 +90,13 @@ def run(candidates: int, samples: int) -> None:
             t0 = time.perf_counter()
             pools[w].start()
             start[w] = time.perf_counter() - t0
+        cpu0 = {w: _worker_cpu(pools[w]) for w in (1, 2)}
         for half, order in zip(halves, ((1, 2), (2, 1)), strict=True):
             for w in order:
                 t0 = time.perf_counter()
                 rows[w] += b.time_sweep(half, pools[w])
                 sweep[w] += time.perf_counter() - t0
+        cpu = {w: _worker_cpu(pools[w]) - cpu0[w] for w in (1, 2)}
     tables = {w: finish_plan(sorted(rows[w], key=lambda r: r["candidate"]), b.s).table for w in (1, 2)}
     pd.testing.assert_frame_equal(tables[1], tables[2])
     t = tables[1]
@@ -94,6 +107,8 @@ def run(candidates: int, samples: int) -> None:
           "workers")
     print(f"  1 worker : start-up {start[1]:4.1f} s, sweep {sweep[1]:7.1f} s ({1e3 * sweep[1] / runs:.0f} ms per run)")
     print(f"  2 workers: start-up {start[2]:4.1f} s, sweep {sweep[2]:7.1f} s")
+    print(f"  CPU time the workers got: {cpu[1]:.1f} s on 1 worker, {cpu[2]:.1f} s on 2 (the same work; "
+          f"2 workers used {cpu[2] / sweep[2]:.2f} cores on average, 1 worker {cpu[1] / sweep[1]:.2f})")
     print(f"  scaling ratio 1 worker / 2 workers: {total[1] / total[2]:.2f}x with start-up, "
           f"{sweep[1] / sweep[2]:.2f}x sweeps alone (target >= 1.7x, ideal 2.0)")
     print(f"  after: {_load()}", flush=True)
