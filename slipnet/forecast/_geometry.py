@@ -187,7 +187,8 @@ class _Crystal:
 
     Rows are computed for the grains a forecast reads (``rows``, default all) and for any other grain
     on first use (:meth:`ensure`): a forecast near the tip of a large map touches tens of grains of
-    thousands. Rows not yet computed hold zeros; every reader calls :meth:`ensure` first.
+    thousands. Rows not yet computed are left unset (allocating is then free of a pass over all
+    grains); every reader calls :meth:`ensure` first.
     ``schmid`` is a ``(n, S)`` array or a callable giving the rows of the grains it is passed.
     """
 
@@ -199,16 +200,16 @@ class _Crystal:
         ng = self._q.shape[0]
         ns, npl = planes.sys_normals.shape[0], planes.n_planes
         self.have = np.zeros(ng, bool)
-        self.n_s = np.zeros((ng, ns, 3))
-        self.d_s = np.zeros((ng, ns, 3))
-        self.schmid = np.zeros((ng, ns))
-        self.meff = np.zeros((ng, ns))
-        self.plane_sys = np.zeros((ng, npl), np.int64)
-        self.plane_meff = np.zeros((ng, npl))
-        self.plane_n = np.zeros((ng, npl, 3))
-        self.trace_ok = np.zeros((ng, npl), bool)
-        self.trace = np.zeros((ng, npl, 2))
-        self.best_sys = np.zeros(ng, np.int64)
+        self.n_s = np.empty((ng, ns, 3))
+        self.d_s = np.empty((ng, ns, 3))
+        self.schmid = np.empty((ng, ns))
+        self.meff = np.empty((ng, ns))
+        self.plane_sys = np.empty((ng, npl), np.int64)
+        self.plane_meff = np.empty((ng, npl))
+        self.plane_n = np.empty((ng, npl, 3))
+        self.trace_ok = np.empty((ng, npl), bool)
+        self.trace = np.empty((ng, npl, 2))
+        self.best_sys = np.empty(ng, np.int64)
         self.ensure(np.arange(ng) if rows is None else rows)
 
     def ensure1(self, g: int) -> None:

@@ -756,7 +756,10 @@ def window_features(gg, geo, win, tip, direction, load_axis, *, mode: str = "ela
     nbm = _neighbour_mean_edges(mc.edge_a[eids], mc.edge_b[eids], mc.edge_w[eids], tg)
     excess = np.nan_to_num(tg - nbm)
     feats["grain_excess"] = np.where(solid, excess[lab0], 0.0)
-    best_grain = np.argmax(np.nan_to_num(grain_tau), axis=1) if ng else np.zeros(0, np.int64)
+    # only the crop's grains are read: the most stressed system of those (zeros elsewhere)
+    best_grain = np.zeros(ng, np.int64)
+    if used.size:
+        best_grain[used] = np.argmax(np.nan_to_num(grain_tau[used]), axis=1)
     keys, vals = _transmission_pairs(mc.edge_a[eids], mc.edge_b[eids], mq, best_grain, systems)
     if "partner" not in geo_terms:
         geo_terms["dist"], geo_terms["partner"] = _boundary_partner(labels, solid)
@@ -785,8 +788,9 @@ def window_features(gg, geo, win, tip, direction, load_axis, *, mode: str = "ela
     for k in FEATURES[mode]:
         v = feats[k][isl]
         out[k] = np.nan_to_num(v, nan=0.0, posinf=0.0, neginf=0.0) if not np.all(np.isfinite(v)) else v
+    grain_tau[used] = np.nan_to_num(grain_tau[used])
     return FieldInputs(mode=mode, features=out, solid=solid[isl], tau=tau[isl],
-                       best_system=point_sys[isl].astype(np.int64), grain_tau=np.nan_to_num(grain_tau),
+                       best_system=point_sys[isl].astype(np.int64), grain_tau=grain_tau,
                        stress_field=field, cyclic_field=cyc, free_edges=tuple(edges), notes=tuple(notes),
                        window=(inner.r0, inner.r1, inner.c0, inner.c1))
 
