@@ -216,11 +216,13 @@ def forecast_crack(
     A tip lying on a boundary starts in the grain half a step ahead along ``direction``. A load
     along the surface normal is valid for stage I (Schmid factors are defined) but has no stage II
     direction: every in-plane direction is normal to it, so stage II options are refused.
-    Cost: the point features (O(points): a few distance transforms and array passes), the elastic
-    solve (elastic and cyclic modes), one march per segment (numba) and O(grains ahead × systems)
-    for scores. Measured on the shared two-core machine: 100² points, map mode 0.07 s, elastic 0.2 s,
-    cyclic 6 s; 300² map mode 0.3 s; 256² elastic 1.5 s (the solve 1.0 s); a Monte Carlo sample costs
-    about 1.5 × a forecast (``benchmarks/bench_forecast.py``). The weights and how well they do are in
+    Cost: the point features on the window of the horizon (O(window points): a few distance
+    transforms and array passes; the holes of the map once per graph), the elastic solve of the
+    whole map (elastic and cyclic modes; give ``stress_field`` to reuse one), one march per segment
+    (numba) and O(grains in the window × systems) for the crystal data, so a repeated map-mode
+    forecast costs about the same on a 250² and a 2000² map (``benchmarks/bench_forecast.py``,
+    ``benchmarks/bench_scaling.py``). A map-mode Monte Carlo sample costs roughly 0.3–0.4 × a
+    forecast on one core (``benchmarks/bench_monte_carlo.py``; the machine is shared, times vary). The weights and how well they do are in
     ``slipnet/forecast/weights.json`` and ``slipnet/validation/standing.json``: they are fitted
     against slipnet's own cyclic crystal-plasticity model, a consistency test, not a validation
     against experiments.

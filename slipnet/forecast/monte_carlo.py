@@ -21,6 +21,15 @@ barriers are scored again. The reported probabilities are the sample means:
 Averaging the calibrated probabilities over the input and weight uncertainty keeps them calibrated
 to the extent the perturbations are realistic; the harness checks it (reliability diagram, Brier
 score: :mod:`slipnet.validation`).
+
+How it is computed: the draws are made in batches of :data:`BATCH` samples, each sample's in the
+order above, so the stream (and every number) is that of a plain sample-by-sample loop whatever the
+batch or the number of worker threads. Each sample works on the forecast's window (the horizon of
+its tip) and reads per-grain data only for the grains in it. In map mode without a crack the
+window's geometry is prepared once and each sample's features and field are one kernel pass
+(:class:`slipnet.forecast.features.MapFieldPlan`); in the other modes each sample runs the windowed
+feature builder. The path passes (a Python loop over segments and crossings, the barrier table in
+pandas) are the larger part of a sample's cost.
 """
 
 from __future__ import annotations
