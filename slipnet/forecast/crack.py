@@ -222,8 +222,8 @@ def forecast_crack(
     (numba) and O(grains in the window × systems) for the crystal data, so a repeated map-mode
     forecast costs about the same on a 250² and a 2000² map (``benchmarks/bench_forecast.py``,
     ``benchmarks/bench_scaling.py``). A map-mode Monte Carlo sample costs roughly 0.3–0.4 × a
-    forecast on one core (``benchmarks/bench_monte_carlo.py``; the machine is shared, times vary). The weights and how well they do are in
-    ``slipnet/forecast/weights.json`` and ``slipnet/validation/standing.json``: they are fitted
+    forecast on one core (``benchmarks/bench_monte_carlo.py``; the machine is shared, times vary).
+    The weights and how well they do are in ``slipnet/forecast/weights.json`` and ``slipnet/validation/standing.json``: they are fitted
     against slipnet's own cyclic crystal-plasticity model, a consistency test, not a validation
     against experiments.
     """
