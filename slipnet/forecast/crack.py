@@ -223,9 +223,9 @@ def forecast_crack(
     forecast costs about the same on a 250² and a 2000² map (``benchmarks/bench_forecast.py``,
     ``benchmarks/bench_scaling.py``). A map-mode Monte Carlo sample costs roughly 0.3–0.4 × a
     forecast on one core (``benchmarks/bench_monte_carlo.py``; the machine is shared, times vary).
-    The weights and how well they do are in ``slipnet/forecast/weights.json`` and ``slipnet/validation/standing.json``: they are fitted
-    against slipnet's own cyclic crystal-plasticity model, a consistency test, not a validation
-    against experiments.
+    The weights and how well they do are in ``slipnet/forecast/weights.json`` and
+    ``slipnet/validation/standing.json``: they are fitted against slipnet's own cyclic
+    crystal-plasticity model, a consistency test, not a validation against experiments.
     """
     geo = geometry_of(gg)
     horizon = check_positive(horizon, "horizon")
