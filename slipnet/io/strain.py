@@ -27,6 +27,7 @@ import math
 import os
 import re
 import struct
+import zipfile
 import zlib
 from pathlib import Path
 
@@ -82,7 +83,7 @@ _SIDECAR_KEYS = ("quantity", "components", "steps", "step_name", "step", "x0", "
 
 # what the array libraries raise on a damaged file (their own error classes derive from these)
 _LIB_ERRORS = (OSError, ValueError, KeyError, IndexError, TypeError, EOFError, RuntimeError, NotImplementedError,
-               AttributeError, OverflowError, struct.error, zlib.error, MemoryError)
+               AttributeError, OverflowError, struct.error, zlib.error, zipfile.BadZipFile, MemoryError)
 
 
 def _hint(option: str, example: str = "", flags: dict | None = None) -> str:
@@ -172,7 +173,7 @@ def decode_text(raw: bytes, path, encoding: str | None, what: str, notes: list) 
         except UnicodeDecodeError as err:
             line = raw[:err.start].count(b"\n") + 1
             raise InputFileError(f"the {what} is not {encoding} text (byte 0x{raw[err.start]:02x} at byte "
-                                 f"{err.start}); state its real encoding with {_hint('encoding', 'cp1252')}",
+                                 f"{err.start}); state its real encoding with {_hint('encoding', repr('cp1252'))}",
                                  path=p, line=line) from err
     for bom, name in _BOMS:
         if raw.startswith(bom):
@@ -180,7 +181,7 @@ def decode_text(raw: bytes, path, encoding: str | None, what: str, notes: list) 
                 return raw.decode(name), name
             except UnicodeDecodeError as err:
                 raise InputFileError(f"the {what} starts with a {name} byte-order mark but is not {name} text; "
-                                     f"state its encoding with {_hint('encoding', 'cp1252')}", path=p) from err
+                                     f"state its encoding with {_hint('encoding', repr('cp1252'))}", path=p) from err
     head = raw[:4096]
     if b"\x00" in head:
         even, odd = head[0::2].count(0), head[1::2].count(0)
@@ -208,7 +209,7 @@ def decode_text(raw: bytes, path, encoding: str | None, what: str, notes: list) 
         shown = bad.decode(used, errors="replace")
         notes.append(f"the {what} is not UTF-8 (byte 0x{bad[0]:02x} on line {line}); read as {used} "
                      f"('{shown}'): if that character is wrong, state the encoding with "
-                     f"{_hint('encoding', 'latin-1')}")
+                     f"{_hint('encoding', repr('latin-1'))}")
         return text, used
 
 
@@ -336,7 +337,8 @@ def read_text_table(text: str, path, *, delimiter: str | None = None, encoding: 
     width = max(set(map(len, tail)), key=[len(t) for t in tail].count)
     decimal = "."
     if delim != ",":
-        toks = [t for row in tail for t in row if t]
+        toks = [t for row in tail if len(row) == width for t in row
+                if re.fullmatch(r"[-+]?[\d.,]+([eE][-+]?\d+)?", t)]
         if any(re.fullmatch(r"[-+]?\d*,\d+([eE][-+]?\d+)?", t) for t in toks) and not any("." in t for t in toks):
             decimal = ","
     # the columns that hold numbers in every trailing row; a text column (a label) may sit beside them
@@ -985,11 +987,12 @@ def _read_our_text(text: str, path: Path, opts: dict, budget) -> StrainSeries:
 def _read_npz(path: Path, opts: dict, budget) -> StrainSeries:
     check_npz_sizes(path, "strain bundle", budget=budget)
     try:
-        with np.load(path, allow_pickle=False) as data:
+        # our own handle: numpy leaves the file open when the zip inside is damaged
+        with open(path, "rb") as fh, np.load(fh, allow_pickle=False) as data:
             arrays = {k: data[k] for k in data.files}
     except ValueError as err:
         raise InputFileError(f"not a plain npz bundle (pickled objects are refused): {err}", path=str(path)) from err
-    except (OSError, EOFError, KeyError, zlib.error, struct.error, RuntimeError) as err:
+    except _LIB_ERRORS as err:
         raise InputFileError(f"the npz bundle is damaged ({type(err).__name__}: {err}); write it again",
                              path=str(path)) from err
     if "header" not in arrays:
@@ -1008,9 +1011,21 @@ def _read_npz(path: Path, opts: dict, budget) -> StrainSeries:
 # ===================================================================================== TIFF
 def _tiff_pages(path: Path, budget) -> list:
     """The pages of a TIFF, their declared sizes checked against the memory budget before any pixel is read."""
+    import logging
+
     import tifffile
 
     p = str(path)
+    log = logging.getLogger("tifffile")
+    level = log.level
+    log.setLevel(logging.CRITICAL)  # its notes on a damaged file would precede our error; ours names the damage
+    try:
+        return _tiff_pages_of(tifffile, path, p, budget)
+    finally:
+        log.setLevel(level)
+
+
+def _tiff_pages_of(tifffile, path: Path, p: str, budget) -> list:
     try:
         tif = tifffile.TiffFile(path)
     except _LIB_ERRORS as err:
@@ -1232,11 +1247,13 @@ def _pick(leaves: dict, opts: dict, path, what: str) -> tuple[dict, str]:
 
 def _read_mat5(path: Path, opts: dict, notes: list, budget) -> StrainSeries:
     import scipy.io as sio
+    from scipy.io.matlab import MatReadError
 
     p = str(path)
+    errors = (*_LIB_ERRORS, MatReadError)
     try:
         info = sio.whosmat(p)
-    except _LIB_ERRORS as err:
+    except errors as err:
         raise InputFileError(f"not a readable MATLAB file ({type(err).__name__}: {err}); save it again from MATLAB "
                              "(save -v7 or -v7.3) or export a CSV", path=p) from err
     total = sum(float(np.prod([float(s) for s in shape])) * 8 for _, shape, _ in info)
@@ -1246,7 +1263,7 @@ def _read_mat5(path: Path, opts: dict, notes: list, budget) -> StrainSeries:
                          path=p, budget=budget)
     try:
         data = sio.loadmat(p, simplify_cells=True)
-    except _LIB_ERRORS as err:
+    except errors as err:
         raise InputFileError(f"the MATLAB file is damaged ({type(err).__name__}: {err})", path=p) from err
     leaves: dict = {}
 
@@ -1295,14 +1312,16 @@ def _read_hdf5(path: Path, opts: dict, notes: list, budget, matlab: bool) -> Str
                 if key in fh.attrs and key not in ("columns", "meta"):
                     v = fh.attrs[key]
                     t = _attr_text(v)
-                    root[key] = t if t is not None else (v.tolist() if isinstance(v, np.ndarray) else v)
+                    root["grid_step" if key == "step" else key] = t if t is not None else (
+                        v.tolist() if isinstance(v, np.ndarray) else v)
             units = {}
             for k, d in numeric.items():
                 for key in ("units", "unit"):
                     if key in d.attrs:
                         units[k] = _attr_text(d.attrs[key])
             leaves_shape = {k: d.shape for k, d in numeric.items()}
-            chosen, quantity = _pick(leaves_shape, {**root, **opts}, path, "HDF5 file")
+            given = {k: v for k, v in opts.items() if v is not None}
+            chosen, quantity = _pick(leaves_shape, {**root, **given}, path, "HDF5 file")
             need = [chosen[n] for n in chosen]
             total = sum(float(np.prod([float(s) for s in numeric[k].shape])) * 8 for k in need)
             check_allocation(total, 1, f"{len(need)} dataset(s) ({', '.join(f'{k} {numeric[k].shape}' for k in need)})",
@@ -1316,7 +1335,7 @@ def _read_hdf5(path: Path, opts: dict, notes: list, budget, matlab: bool) -> Str
     except _LIB_ERRORS as err:
         raise InputFileError(f"the HDF5 file is damaged or not in a layout slipnet reads ({type(err).__name__}: "
                              f"{err})", path=p) from err
-    return _from_leaves(leaves, units, path, {**root, **opts}, notes, layout, chosen=(chosen, quantity))
+    return _from_leaves(leaves, units, path, {**root, **given}, notes, layout, chosen=(chosen, quantity))
 
 
 def _from_leaves(leaves: dict, units: dict, path: Path, opts: dict, notes: list, layout: str, *,
