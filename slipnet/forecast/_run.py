@@ -18,14 +18,17 @@ def run_forecast_pass(geo, planes, quats, load, schmid, tip, grain0, opts: _Opts
     cry = _Crystal(quats, load, planes, schmid, rows=rows)
     states, alt_cross = _trace_all(geo, cry, planes, float(tip[0]), float(tip[1]), grain0, opts)
     main = states[0]
+    crossings = pd.DataFrame(main.crossings + alt_cross)
+    barriers = rank_barriers(crossings, bw, decay_length_um=decay, class_factors=cf)
+    if not want_sites:  # the Monte Carlo's path passes need no band sites and no segment tables
+        seg = main.segments
+        summary = {"length_um": float(sum(s["length_um"] for s in seg)), "n_main_crossings": len(main.crossings),
+                   "end": (seg[-1]["x1_um"], seg[-1]["y1_um"]) if seg else None}
+        return {"path": None, "path_summary": summary, "alternatives": None, "crossings": crossings,
+                "barriers": barriers, "sites": None, "field": None, "stop": main.stop, "crystal": cry}
     seg_cols = list(FORECAST_ALTERNATIVES)
     path = pd.DataFrame(main.segments, columns=seg_cols).drop(columns="branch")
     alts = pd.DataFrame([s for st in states[1:] for s in st.segments], columns=seg_cols)
-    crossings = pd.DataFrame(main.crossings + alt_cross)
-    barriers = rank_barriers(crossings, bw, decay_length_um=decay, class_factors=cf)
-    if not want_sites:  # the Monte Carlo's path passes need no band sites
-        return {"path": path, "alternatives": alts, "crossings": crossings, "barriers": barriers, "sites": None,
-                "field": None, "stop": main.stop, "crystal": cry}
     on = set(path["grain"].tolist()) | set(alts["grain"].tolist())
     near = set(on)
     for g in path["grain"].tolist():

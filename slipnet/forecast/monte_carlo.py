@@ -199,16 +199,15 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             if nb:
                 xb = barrier_features(fc.barriers, fc.crossings, inp, fld, geo, res["crystal"], weights, opts.horizon)
                 out["p_drop"] = weights.model(mode, "barriers").probability(xb, dr["rep"])
-        path = res["path"]
+        path = res["path_summary"]
+        end = path["end"] if path["end"] is not None else (t[0], t[1])
         out["row"] = {
             "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": dr["reset"],
             "load_x": float(ld[0]), "load_y": float(ld[1]), "load_z": float(ld[2]),
-            "path_length_um": float(path["length_um"].sum()), "n_crossings": int((res["crossings"].get(
-                "branch", pd.Series(dtype=int)) == 0).sum()) if len(res["crossings"]) else 0,
+            "path_length_um": path["length_um"], "n_crossings": int(path["n_main_crossings"]),
             "stop_reason": res["stop"],
             "top_barrier_id": int(b["boundary_id"].iloc[0]) if len(b) else -1,
-            "end_x_um": float(path["x1_um"].iloc[-1]) if len(path) else float(t[0]),
-            "end_y_um": float(path["y1_um"].iloc[-1]) if len(path) else float(t[1]),
+            "end_x_um": float(end[0]), "end_y_um": float(end[1]),
         }
         return out
 
