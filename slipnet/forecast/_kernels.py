@@ -256,13 +256,23 @@ def map_field(lab, solid, e_block, pair_pos, lnd, x, y, tau_g, mod_g, exc_g, mp_
         dx = x[p] - tx
         dy = y[p] - ty
         r = math.hypot(dx, dy)
-        th = math.atan2(dx * d1 * -1.0 + dy * d0, dx * d0 + dy * d1)
-        s = math.sin(0.5 * th)
+        # cos(θ/2) and sin²(θ/2) of θ = atan2(v, u) without trigonometry, in the forms that keep
+        # their digits on either side of the tip (r ± u computed as v²/(r ∓ u) where it cancels)
+        u = dx * d0 + dy * d1
+        v = dx * d1 * -1.0 + dy * d0
+        if r == 0.0:
+            ch, s2 = 1.0, 0.0
+        elif u >= 0.0:
+            ch = math.sqrt((r + u) / (2.0 * r))
+            s2 = v * v / (2.0 * r * (r + u))
+        else:
+            ch = abs(v) / math.sqrt(2.0 * r * (r - u))
+            s2 = (r - u) / (2.0 * r)
         f[0] = tau_g[g]
         f[1] = mod_g[g]
         f[2] = exc_g[g]
         f[3] = (1.0 - mp) * e_block[p]
-        f[4] = math.cos(0.5 * th) * math.sqrt(1.0 + 3.0 * s * s) * math.sqrt(step / (r + step))
+        f[4] = ch * math.sqrt(1.0 + 3.0 * s2) * math.sqrt(step / (r + step))
         f[5] = math.log1p(r / step)
         f[6] = lnd[p]
         z = b
