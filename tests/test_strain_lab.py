@@ -447,3 +447,36 @@ def test_mutated_lab_csv_gives_a_series_or_the_projects_error(tmp_path, cut, jun
     except SlipnetError:
         return
     assert isinstance(s, StrainSeries)
+
+
+# ----------------------------------------------------------------------------------- the documented examples
+def _doc_files(tmp_path: Path) -> dict[str, Path]:
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "own-data.md").read_text(encoding="utf-8")
+    out = {}
+    for part in doc.split("<!-- file: ")[1:]:
+        name, rest = part.split(" -->", 1)
+        body = rest.split("```\n", 1)[1].split("```", 1)[0]
+        (tmp_path / name).write_text(body, encoding="utf-8")
+        out[name] = tmp_path / name
+    return out
+
+
+def test_documented_examples_read_as_the_page_says(tmp_path):
+    files = _doc_files(tmp_path)
+    s = read_strain(files["dic_export.csv"], columns={"exy": "Shear XY"})
+    assert s.step == pytest.approx(5.0) and s.shape == (2, 3) and np.isnan(s.components["exx"][0, 1, 2])
+    assert s.components["exx"][0, 0, 0] == pytest.approx(0.00112)
+    src, dst = read_control_points(files["marks.csv"], columns={"strain_x": "DIC x", "strain_y": "DIC y",
+                                                                "map_x": "EBSD x", "map_y": "EBSD y"},
+                                   pixel_size_um=0.2)
+    assert src[0].tolist() == pytest.approx([22.4, 17.4]) and dst[0].tolist() == pytest.approx([21.5, 18.0])
+    r = read_growth_record(files["record.txt"])
+    assert r["cycles"].tolist() == [10000.0, 20000.0, 35000.0, 50000.0]
+    assert r["crack_length_um"].iloc[[0, -1]].tolist() == pytest.approx([21.2, 61.1])
+    pages = np.arange(6 * 3 * 4, dtype=np.float64).reshape(6, 3, 4)
+    for side in ("stack.json", "stack.toml"):
+        stack = tmp_path / f"{Path(side).stem}_{Path(side).suffix[1:]}.tif"
+        tifffile.imwrite(stack, pages, photometric="minisblack")
+        t = read_strain(stack, sidecar=files[side])
+        assert t.n_steps == 2 and t.steps.tolist() == [10000.0, 50000.0] and t.step == pytest.approx(5.0)
+        assert np.allclose(t.components["eyy"][1], pages[4] / 100, rtol=1e-15, atol=0)  # step 1, 2nd component
