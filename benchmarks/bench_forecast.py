@@ -75,8 +75,8 @@ def same_path_pair(horizon: float, mode: str = "map", small: int = 250, large: i
     xy = ["x0_um", "y0_um", "x1_um", "y1_um"]
     assert len(fa.path) >= 3 and np.allclose(fa.path[xy].to_numpy(), fb.path[xy].to_numpy()), "paths differ"
     ratio = t_large / t_small
-    print(f"same path on {small}² ({gga.n_grains} grains) and {large}² ({ggb.n_grains} grains), horizon {horizon:g} µm, "
-          f"{mode} mode: {len(fa.path)} segments, {fa.path['grain'].nunique()} grains")
+    print(f"same path on {small}² ({gga.n_grains} grains) and {large}² ({ggb.n_grains} grains), "
+          f"horizon {horizon:g} µm, {mode} mode: {len(fa.path)} segments, {fa.path['grain'].nunique()} grains")
     print(f"  repeated forecast {t_small * 1e3:.1f} ms on {small}², {t_large * 1e3:.1f} ms on {large}²")
     print(f"  ratio {large}² / {small}² = {ratio:.2f}  (target <= 1.3: {'met' if ratio <= 1.3 else 'NOT met'})")
     return ratio
