@@ -253,7 +253,15 @@ class TextTable:
 
     def numbers(self, index: int, path) -> np.ndarray:
         """Column ``index`` as floats (missing values NaN); a value that is not a number is refused by line."""
-        col = self.frame.iloc[:, index].astype(str).str.strip().str.strip("\"'")
+        raw = self.frame.iloc[:, index]
+        if pd.api.types.is_numeric_dtype(raw.dtype) and not pd.api.types.is_bool_dtype(raw.dtype):
+            out = raw.to_numpy(np.float64)
+            if np.isinf(out).any():
+                r = int(np.flatnonzero(np.isinf(out))[0])
+                raise InputFileError("infinite value; mark a missing point with nan or an empty field",
+                                     path=str(path), line=int(self.lines[r]), column=self.headers[index])
+            return out
+        col = raw.astype(str).str.strip().str.strip("\"'")
         if self.decimal == ",":
             col = col.str.replace(",", ".", regex=False)
         vals = pd.to_numeric(col, errors="coerce")
@@ -386,8 +394,10 @@ def read_text_table(text: str, path, *, delimiter: str | None = None, encoding: 
     rows = live[first:]
     body = "\n".join(lines[n] for n in rows)
     try:
-        frame = pd.read_csv(_io.StringIO(body), sep=r"\s+" if delim is None else delim, header=None, dtype=str,
-                            keep_default_na=False, skipinitialspace=True, engine="c" if delim else "python")
+        # numbers parsed by pandas at C speed; a column with text in it stays text and is checked by numbers()
+        frame = pd.read_csv(_io.StringIO(body), sep=r"\s+" if delim is None else delim, header=None,
+                            decimal=decimal, na_values=sorted(_NA), keep_default_na=False, skipinitialspace=True,
+                            engine="c")
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as err:
         m = re.search(r"line (\d+)", str(err))
         line = rows[int(m.group(1)) - 1] + 1 if m and int(m.group(1)) - 1 < len(rows) else None
