@@ -487,6 +487,7 @@ def test_compare_forecast_on_a_synthetic_measurement(tmp_path):
     written = write_comparison(comp, tmp_path / "cmp")
     text = (tmp_path / "cmp" / "summary.md").read_text()
     assert CAUTION in text and "SYNTHETIC" in text
+    assert all(f"- {w}" in text for w in comp.warnings)  # the summary repeats what the console said
     assert (tmp_path / "cmp" / "scores.csv").exists() and any(p.suffix == ".png" for p in written.values())
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import re
 from dataclasses import replace
 from html.parser import HTMLParser
@@ -365,3 +366,51 @@ def test_short_path_warning_names_what_it_falls_short_of():
     forecast_warnings("", SimpleNamespace(length_um=250.0, stop_reason="map_edge"), 200.0,
                       lambda step, msg: said.append(msg))
     assert said == []
+
+
+def test_lab_file_reader_options_reach_the_readers_and_the_study_file(orix_map, tmp_path, monkeypatch):
+    import slipnet.study.steps as steps
+    from slipnet.cli import build_parser
+    from slipnet.cli.study import options_from_args
+    from slipnet.errors import ParameterError
+    from slipnet.study import read_study_file, write_study_file
+
+    strain = tmp_path / "lab.csv"
+    strain.write_text("x [mm],y [mm],exx [%],eyy [%],exy [%]\n0,0,0.1,0.2,0.3\n")
+    args = build_parser().parse_args([
+        "study", str(orix_map), "--side", "right", "--load-axis", "0", "1", "0", "--strain", str(strain),
+        "--strain-length-unit", "mm", "--strain-value-unit", "%", "--strain-column", "exx=E_xx",
+        "--encoding", "cp1252", "--record-cycles-unit", "kcycles"])
+    opts = options_from_args(args)
+    assert opts.compare.strain_reader == {"columns": {"exx": "E_xx"}, "length_unit": "mm", "value_unit": "%",
+                                          "encoding": "cp1252"}
+    assert opts.compare.points_reader == {"encoding": "cp1252"}
+    assert opts.compare.record_reader == {"cycles_unit": "kcycles", "encoding": "cp1252"}
+    again = read_study_file(write_study_file(opts, tmp_path / "study.toml"))
+    assert again.compare.strain_reader == opts.compare.strain_reader
+    assert again.compare.record_reader == opts.compare.record_reader
+
+    seen = {}
+
+    class Stop(Exception):
+        pass
+
+    def fake_read_strain(path, **kwargs):
+        seen.update(kwargs)
+        raise Stop
+
+    monkeypatch.setattr(steps, "read_strain", fake_read_strain)
+    with pytest.raises(Stop):
+        _call_compare(steps, opts)
+    assert seen == opts.compare.strain_reader
+
+    bad = dataclasses.replace(opts, compare=dataclasses.replace(opts.compare, strain_reader={"lenght_unit": "mm"}))
+    with pytest.raises(ParameterError, match="does not take lenght_unit; accepted: columns"):
+        bad.check()
+
+
+def _call_compare(steps, opts):
+    from types import SimpleNamespace
+
+    gg = SimpleNamespace(omap=SimpleNamespace(step=1.0))
+    return steps.step_compare(gg, None, opts, lambda *a: None)

@@ -6,15 +6,8 @@ from slipnet.cli._common import grain_graph_from_args, output_run, print_warning
 from slipnet.cli.growth import add_record_options, record_options, text_mapping
 
 
-def add(sub, parents) -> None:
-    p = sub.add_parser("compare", parents=[parents.map, parents.cleanup, parents.output],
-                       help="score a forecast against measured strain maps and a crack-growth record",
-                       description="Register a measured displacement/strain series (our text, npz or TIFF "
-                       "format, docs/strain-format.md, or a file as the lab exports it: CSV/TXT with bracketed units, "
-                       "MATLAB .mat, HDF5, a TIFF stack with a sidecar, docs/own-data.md) to the orientation map "
-                       "by control points, measure "
-                       "strain localisation and score the forecast sites, path, barriers and growth-rate dips.")
-    p.add_argument("strain", help="measured displacement or strain file (CSV/TXT table, .npz, .tif, .mat, .h5)")
+def add_strain_reader_options(p) -> None:
+    """Options that say how to read a lab's strain file and tables (shared with ``slipnet study``)."""
     g = p.add_argument_group("reading the strain file (docs/own-data.md)")
     g.add_argument("--strain-column", action="append", metavar="NAME=COLUMN", default=None,
                    help="which column (or .mat/HDF5 variable) holds slipnet's NAME (x, y, u, v, exx, eyy, exy, step), "
@@ -37,9 +30,10 @@ def add(sub, parents) -> None:
     g.add_argument("--strain-delimiter", default=None, help="column delimiter of a text table (default: detected)")
     g.add_argument("--encoding", default=None,
                    help="text encoding of the strain, control-point and record tables (default: detected; e.g. cp1252)")
-    p.add_argument("--control-points", metavar="CSV",
-                   help="control points table: strain_x_um, strain_y_um, map_x_um, map_y_um (or other names with "
-                   "--points-column; units from the header brackets)")
+
+
+def add_points_reader_options(p) -> None:
+    """Options that say how to read a control-point table (shared with ``slipnet study``)."""
     p.add_argument("--points-column", action="append", metavar="NAME=COLUMN", default=None,
                    help="which column holds slipnet's strain_x, strain_y, map_x or map_y (e.g. map_x='EBSD X'); "
                    "repeatable")
@@ -47,6 +41,22 @@ def add(sub, parents) -> None:
                    help="unit of every control-point position (default: the header's)")
     p.add_argument("--points-strain-unit", choices=("nm", "um", "mm", "px"), default=None,
                    help="unit of the strain-image positions only (px uses --strain-pixel-size)")
+
+
+def add(sub, parents) -> None:
+    p = sub.add_parser("compare", parents=[parents.map, parents.cleanup, parents.output],
+                       help="score a forecast against measured strain maps and a crack-growth record",
+                       description="Register a measured displacement/strain series (our text, npz or TIFF "
+                       "format, docs/strain-format.md, or a file as the lab exports it: CSV/TXT with bracketed units, "
+                       "MATLAB .mat, HDF5, a TIFF stack with a sidecar, docs/own-data.md) to the orientation map "
+                       "by control points, measure "
+                       "strain localisation and score the forecast sites, path, barriers and growth-rate dips.")
+    p.add_argument("strain", help="measured displacement or strain file (CSV/TXT table, .npz, .tif, .mat, .h5)")
+    add_strain_reader_options(p)
+    p.add_argument("--control-points", metavar="CSV",
+                   help="control points table: strain_x_um, strain_y_um, map_x_um, map_y_um (or other names with "
+                   "--points-column; units from the header brackets)")
+    add_points_reader_options(p)
     p.add_argument("--kind", default="affine", choices=("similarity", "affine", "projective"),
                    help="registration transform (default affine)")
     p.add_argument("--map", dest="map_path", help="orientation map file (for grain and boundary statistics)")

@@ -10,6 +10,8 @@ import os
 from dataclasses import replace
 
 from slipnet.cli._common import name_value_pairs, out_folder, phase_structures
+from slipnet.cli.compare import add_points_reader_options, add_strain_reader_options, points_options, strain_options
+from slipnet.cli.growth import add_record_options, record_options
 from slipnet.errors import ParameterError
 
 #: option dest → (options section, field).
@@ -92,6 +94,9 @@ def add(sub, parents) -> None:
     g.add_argument("--growth-record", help="CSV crack-growth record (cycles, crack_length_um)")
     g.add_argument("--cut", type=int, help="rank of the candidate notch that was cut and measured (1)")
     g.add_argument("--calibrate", action="store_true", help="fit the growth constants to the growth record")
+    add_strain_reader_options(p)
+    add_points_reader_options(p)
+    add_record_options(p, encoding=False)
     g = p.add_argument_group("run")
     g.add_argument("--quiet", action="store_true", help="no progress bar (warnings still printed)")
     g.add_argument("--no-cache", action="store_true", help="compute every step; store nothing under <out>/.cache")
@@ -132,6 +137,14 @@ def options_from_args(args):
         parts["notch"]["method"] = "pareto"
     if args.crack_sizes:
         parts["notch"]["crack_sizes_um"] = tuple(args.crack_sizes)
+    readers = {"strain_reader": strain_options(args), "points_reader": points_options(args),
+               "record_reader": record_options(args)}
+    for name, given in readers.items():
+        given = {k: v for k, v in given.items() if v is not None}
+        if given.get("sidecar"):
+            given["sidecar"] = os.path.abspath(given["sidecar"])
+        if given:
+            parts["compare"][name] = {**(getattr(opts.compare, name) or {}), **given}
     if args.objective:
         parts["notch"]["weights"] = name_value_pairs(args.objective, "--objective", "initiation_drive=1", default=1.0)
     edges: list = list(args.side or [])

@@ -40,6 +40,12 @@ def write_comparison(comp: Comparison, folder: str | os.PathLike, *, title: str 
     if comp.transform is not None:
         lines.append(f"Registration: {comp.transform.kind}, {len(comp.transform.residuals)} control points, "
                      f"RMS residual {comp.transform.rms:.3g} µm, largest {comp.transform.residuals.max():.3g} µm.")
+    if comp.transform is None:
+        lines.append("Registration: none (no control points); the strain map's frame was taken as the orientation "
+                     "map's.")
+    if comp.warnings:
+        lines += ["", "Warnings (check these before trusting the scores):", ""]
+        lines += [f"- {w}" for w in comp.warnings]
     lines += ["", "| score | value |", "| --- | --- |"]
     for k, v in comp.scores.items():
         lines.append(f"| {k} | {v:.4g} |" if isinstance(v, float) else f"| {k} | {v} |")

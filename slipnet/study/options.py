@@ -25,7 +25,10 @@ study can be run again exactly: ``slipnet study --study <out>/study.toml``. Notc
     [compare]      strain, control_points, transform ("affine" | "projective"), crack_path,
                    growth_record (paths relative to the study file), notch (rank of the notch that
                    was cut, 1), step, window, site_tol_um, path_tol_um, peak_distance_um,
-                   dip_prominence, dip_tol_um, calibrate (fit the growth constants to the record)
+                   dip_prominence, dip_tol_um, calibrate (fit the growth constants to the record),
+                   strain_reader, points_reader, record_reader (tables of keywords of read_strain,
+                   read_control_points and read_growth_record that say how a lab's files are laid
+                   out: columns, units, encoding...; docs/own-data.md)
     [run]          scheduler, workers (of the notch sweep)
 """
 
@@ -168,6 +171,9 @@ class CompareOptions:
     dip_tol_um: float | None = None
     calibrate: bool = False
     synthetic: bool = False
+    strain_reader: dict | None = None
+    points_reader: dict | None = None
+    record_reader: dict | None = None
 
     @property
     def given(self) -> bool:
@@ -204,6 +210,7 @@ class StudyOptions:
             raise ParameterError("study: give the load axis as three numbers in the map frame (--load-axis X Y Z "
                                  f"or [loading] axis = [x, y, z]); got {list(axis)}")
         _check_ranges(self)
+        _check_readers(self.compare)
         from slipnet.io.maps import check_structures
 
         check_structures(self.map.structures)  # a wrong phase choice is refused before any work
@@ -287,6 +294,35 @@ RANGES: dict[tuple[str, str], tuple[float, float, bool]] = {
     ("growth", "strength_scatter"): (0.0, 10.0, False),
     ("compare", "notch"): (1, 50, True),
 }
+
+
+#: Keywords a study may pass to each reader of measured data (``[compare] *_reader`` tables).
+READER_KEYS: dict[str, frozenset[str]] = {
+    "strain_reader": frozenset({"columns", "length_unit", "value_unit", "quantity", "pixel_size_um", "grid_step",
+                                "shear", "sidecar", "encoding", "delimiter"}),
+    "points_reader": frozenset({"columns", "length_unit", "strain_length_unit", "pixel_size_um", "encoding",
+                                "delimiter"}),
+    "record_reader": frozenset({"columns", "length_unit", "cycles_unit", "encoding", "delimiter"}),
+}
+
+
+def _check_readers(c) -> None:
+    """Refuse a reader table with an unknown keyword or a column mapping that is not NAME = COLUMN."""
+    for name, allowed in READER_KEYS.items():
+        table = getattr(c, name)
+        if table is None:
+            continue
+        if not isinstance(table, dict):
+            raise ParameterError(f"study: compare {name} should be a table of reader keywords "
+                                 f"({', '.join(sorted(allowed))}); got {table!r}")
+        extra = sorted(set(table) - allowed)
+        if extra:
+            raise ParameterError(f"study: compare {name} does not take {', '.join(extra)}; accepted: "
+                                 f"{', '.join(sorted(allowed))}")
+        cols = table.get("columns")
+        if cols is not None and not (isinstance(cols, dict) and all(isinstance(v, str) for v in cols.values())):
+            raise ParameterError(f"study: compare {name} columns should map slipnet's names to the file's column "
+                                 f"names, e.g. {{exx = \"E_xx [%]\"}}; got {cols!r}")
 
 
 def _check_ranges(opts) -> None:

@@ -279,7 +279,7 @@ def run_study(options: StudyOptions, out: str | os.PathLike, *, progress: bool =
                 cut_keys = next(v for n, v in keys.items() if n == cut.rank)
                 comp, cal = c.run("compare", step_key("compare", ckey, cut_keys),
                                   lambda: st.step_compare(gg, cut, opts, warn))
-                st.compare_warnings(opts, cal, warn)
+                st.compare_warnings(opts, cal, warn, comp)
             bar("compare")
         result = StudyResult(options=opts, omap=omap, gg=gg, slip=slip, stress_field=field_, plan=plan,
                              outcomes=outcomes, comparison=comp, calibration=cal, warnings=warnings,

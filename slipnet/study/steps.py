@@ -220,19 +220,22 @@ def step_compare(gg: GrainGraph, outcome: Outcome, opts: StudyOptions,
     """Measured strain (and crack path, growth record) against the forecast of the notch that was cut."""
     c = opts.compare
     step_um = gg.omap.step
-    series = read_strain(c.strain)
+    notes: list[str] = []  # the tables' reader notes; the strain file's come with the comparison
+    series = read_strain(c.strain, **(c.strain_reader or {}))
     transform = None
     if c.control_points:
-        src, dst = read_control_points(c.control_points)
+        src, dst = read_control_points(c.control_points, **(c.points_reader or {}), notes=notes)
         transform = fit_transform(src, dst, c.transform)
     measured = read_measured_path(c.crack_path) if c.crack_path else None
-    record = read_growth_record(c.growth_record) if c.growth_record else None
+    record = (read_growth_record(c.growth_record, **(c.record_reader or {}), notes=notes)
+              if c.growth_record else None)
     comp = compare_forecast(
         series, forecast=outcome.forecast, gg=gg, transform=transform, step=c.step, window=c.window,
         peak_distance_um=c.peak_distance_um or 4.0 * step_um, site_tol_um=c.site_tol_um or 3.0 * step_um,
         path_tol_um=c.path_tol_um or 3.0 * step_um, measured_path=measured, load_axis=opts.load.axis,
         growth_record=record, growth=outcome.growth, dip_prominence=c.dip_prominence,
         dip_tol_um=c.dip_tol_um or 3.0 * step_um, max_sites=12)
+    comp.warnings.extend(f"measured tables: {n}" for n in notes)  # kept with the cached comparison
     if c.synthetic:
         comp.settings["synthetic"] = True
     cal = None
@@ -244,8 +247,11 @@ def step_compare(gg: GrainGraph, outcome: Outcome, opts: StudyOptions,
     return comp, cal
 
 
-def compare_warnings(opts: StudyOptions, cal: CalibrationResult | None, warn: Warn) -> None:
-    """Frames taken as equal, a calibration that did not converge."""
+def compare_warnings(opts: StudyOptions, cal: CalibrationResult | None, warn: Warn,
+                     comp: Comparison | None = None) -> None:
+    """Frames taken as equal, the comparison's own warnings, a calibration that did not converge."""
+    for w in (comp.warnings if comp is not None else ()):
+        warn("compare", str(w))
     if not opts.compare.control_points:
         warn("compare", "no control points given: the strain map's frame is taken as equal to the orientation "
              "map's frame (give --control-points to register them)")
