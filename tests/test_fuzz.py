@@ -18,6 +18,7 @@ import contextlib
 import dataclasses
 import gc
 import io
+import json
 import os
 import re
 import signal
@@ -155,10 +156,28 @@ def _strain_series() -> StrainSeries:
 
 
 class _Seeds(dict):
-    """The seed files; a short repr, because Hypothesis prints a failing example's arguments."""
+    """The seed files; a short repr, because Hypothesis prints a failing example's arguments.
+
+    ``beside[case]`` holds files written undamaged beside the damaged one (suffix: bytes), such
+    as a TIFF stack's sidecar.
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.beside: dict[str, dict[str, bytes]] = {}
 
     def __repr__(self) -> str:
         return f"<{len(self)} fuzz seed files>"
+
+
+def _read_mat_in_mm(path):
+    """A MATLAB file holds no units: they are given, as a user would."""
+    return read_strain(path, length_unit="mm", value_unit="%")
+
+
+def _read_stack_beside(path):
+    """The TIFF stack beside a (damaged) sidecar ``path``."""
+    return read_strain(Path(path).with_suffix(".tif"), sidecar=path)
 
 
 @pytest.fixture(scope="module")
@@ -176,6 +195,31 @@ def seeds(tmp_path_factory) -> dict[str, tuple[Callable, bytes]]:
     out["map.h5"] = (read_map, (folder / "map.h5").read_bytes())
     for suffix in (".txt", ".npz", ".tif"):
         out[f"strain{suffix}"] = (read_strain, write_strain(_strain_series(), folder / f"s{suffix}").read_bytes())
+    lab_rows = ["Correlation export", "x [mm], y [mm], E_xx [%], E_yy [%], E_xy [%]"]
+    lab_rows += [f"{j * 0.005!r}, {i * 0.005!r}, 0.{i}{j}1, -0.{j}2, 0.0{i}" for i in range(4) for j in range(5)]
+    out["strain_lab.csv"] = (read_strain, ("\n".join(lab_rows) + "\n").encode())
+    import h5py
+    import scipy.io as sio
+    import tifffile
+
+    fields = {c: np.random.default_rng(k).normal(0.0, 0.4, (4, 5)) for k, c in enumerate(("exx", "eyy", "exy"))}
+    sio.savemat(folder / "dic.mat", {"x": np.arange(5) * 0.005, "y": np.arange(4) * 0.005, **fields})
+    out["strain.mat"] = (_read_mat_in_mm, (folder / "dic.mat").read_bytes())
+    with h5py.File(folder / "dic.h5", "w") as fh:
+        fh.attrs["length_unit"] = "mm"
+        fh.attrs["step"] = 0.005
+        for c, a in fields.items():
+            fh.create_dataset(f"fields/{c}", data=a[None]).attrs["units"] = "%"
+    out["strain_plain.h5"] = (read_strain, (folder / "dic.h5").read_bytes())
+    with tifffile.TiffWriter(folder / "stack.tif") as tif:
+        for c in ("exx", "eyy", "exy"):
+            tif.write(fields[c])
+    sidecar = json.dumps({"quantity": "strain", "components": ["exx", "eyy", "exy"], "step": 0.005,
+                          "length_unit": "mm", "value_unit": "%"}).encode()
+    out["strain_stack.tif"] = (read_strain, (folder / "stack.tif").read_bytes())
+    out.beside["strain_stack.tif"] = {".json": sidecar}
+    out["stack_sidecar.json"] = (_read_stack_beside, sidecar)
+    out.beside["stack_sidecar.json"] = {".tif": (folder / "stack.tif").read_bytes()}
     out["control_points.csv"] = (read_control_points, b"strain_x_um,strain_y_um,map_x_um,map_y_um\n"
                                  b"0,0,1.5,2\n10,0,11.5,2\n0,10,1.5,12\n10,10,11.5,12\n")
     out["growth_record.csv"] = (read_growth_record, b"cycles,crack_length_um\n0,10\n1000,12.5\n2000,16\n4000,30\n")
@@ -193,7 +237,8 @@ def seeds(tmp_path_factory) -> dict[str, tuple[Callable, bytes]]:
     return out
 
 
-CASES = ("map.txt", "map.npz", "map.h5", "strain.txt", "strain.npz", "strain.tif", "control_points.csv",
+CASES = ("map.txt", "map.npz", "map.h5", "strain.txt", "strain.npz", "strain.tif", "strain_lab.csv", "strain.mat",
+         "strain_plain.h5", "strain_stack.tif", "stack_sidecar.json", "control_points.csv",
          "growth_record.csv", "crack_path.csv", "graph.npz", "notch_study.toml", "study.toml")
 
 # Module-scoped seeds and a per-test folder are reused across examples on purpose: each example
@@ -212,6 +257,8 @@ def _fuzz_one(seeds, tmp_path, case: str, data) -> None:
         (Path(tmp_path) / "plan-map.npz").write_bytes(seeds["map.npz"][1])
     else:
         target = Path(tmp_path) / f"damaged-{case}"
+    for suffix, content in seeds.beside.get(case, {}).items():
+        target.with_suffix(suffix).write_bytes(content)
     _read_expecting_only_our_errors(reader, target, data.draw(damaged(original)))
 
 
@@ -221,6 +268,8 @@ def test_every_seed_file_reads(seeds, tmp_path):
         reader, original = seeds[case]
         target = tmp_path / (case if case.endswith(".toml") else f"seed-{case}")
         target.write_bytes(original)
+        for suffix, content in seeds.beside.get(case, {}).items():
+            target.with_suffix(suffix).write_bytes(content)
         if case.endswith(".toml"):
             (tmp_path / "plan-map.npz").write_bytes(seeds["map.npz"][1])
         reader(target)
