@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from slipnet._files import atomic_path
-from slipnet._inputs import checked_input
+from slipnet._inputs import checked_input, guarded_reader
 from slipnet.crystal.orientation import quat_from_axis_angle
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.io._bundle import ZIP_MAGIC, read_bundle, write_bundle
@@ -126,6 +126,7 @@ def _sniff(path: Path) -> str:
     return "other"
 
 
+@guarded_reader("orientation map", "check that orix or slipnet reads it (docs/map-format.md) and export it again")
 def read_map(
     path: str | os.PathLike,
     *,

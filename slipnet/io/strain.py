@@ -35,7 +35,7 @@ import numpy as np
 import pandas as pd
 
 from slipnet._files import atomic_path
-from slipnet._inputs import check_allocation, check_npz_sizes, checked_input
+from slipnet._inputs import check_allocation, check_npz_sizes, checked_input, guarded_reader
 from slipnet.errors import InputFileError, ParameterError
 from slipnet.maps.strain import DISPLACEMENT_COMPONENTS, STRAIN_COMPONENTS, StrainSeries
 
@@ -1420,6 +1420,7 @@ def _read_lab_text(text: str, used: str, path: Path, opts: dict, notes: list, bu
 
 
 # ===================================================================================== entry
+@guarded_reader("strain file", "check its format and units against docs/own-data.md and export it again")
 def read_strain(path: str | os.PathLike, *, columns: dict | None = None, length_unit: str | None = None,
                 value_unit: str | None = None, quantity: str | None = None, pixel_size_um: float | None = None,
                 grid_step: float | None = None, shear: str | None = None, sidecar: str | os.PathLike | None = None,

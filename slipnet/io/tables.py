@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from slipnet._inputs import check_allocation, checked_input
+from slipnet._inputs import check_allocation, checked_input, guarded_reader
 from slipnet.columns import SEGMENT_XY
 from slipnet.errors import InputFileError
 from slipnet.io.strain import (
@@ -56,6 +56,7 @@ class ForecastTables:
     barriers: pd.DataFrame | None = None
 
 
+@guarded_reader("table", "check that it is a comma-separated table with a header row")
 def read_csv_table(path: str | os.PathLike, required: tuple[str, ...], what: str) -> pd.DataFrame:
     """Read a CSV table and check that it has the ``required`` columns (numeric where named)."""
     path = Path(path)
@@ -92,6 +93,7 @@ def read_forecast_tables(*, sites=None, path=None, barriers=None) -> ForecastTab
     )
 
 
+@guarded_reader("measured crack path", "give a CSV of x_um, y_um points (docs/own-data.md)")
 def read_measured_path(path: str | os.PathLike) -> np.ndarray | pd.DataFrame:
     """A measured crack path: CSV polyline (``x_um, y_um``) or segments (``x0_um, y0_um, x1_um, y1_um``)."""
     t = read_csv_table(path, (), "measured path")
@@ -137,6 +139,7 @@ def _cycles_unit(text) -> str | None:
     return _CYCLE_SPELLINGS.get(str(text).strip().lower().replace(" ", ""))
 
 
+@guarded_reader("crack-growth record", "give a CSV of cycles and crack length (docs/own-data.md)")
 def read_growth_record(path: str | os.PathLike, *, columns: dict | None = None, length_unit: str | None = None,
                        cycles_unit: str | None = None, encoding: str | None = None, delimiter: str | None = None,
                        notes: list | None = None) -> pd.DataFrame:
@@ -279,6 +282,7 @@ _CP_FLAGS = {"columns": "--points-column NAME=COLUMN", "length_unit": "--points-
              "encoding": "--encoding"}
 
 
+@guarded_reader("control-point table", "give a CSV of strain and map positions (docs/own-data.md)")
 def read_control_points(path: str | os.PathLike, *, columns: dict | None = None, length_unit: str | None = None,
                         strain_length_unit: str | None = None, pixel_size_um: float | None = None,
                         encoding: str | None = None, delimiter: str | None = None,
