@@ -79,7 +79,8 @@ def transmission_table(gg, load_axis, systems: SlipSystems | None = None, *, bou
     def per_row(v):
         return v[row_b, row_c]
 
-    lab = np.append(systems.labels, "")
+    # an object array: taking labels copies references, where a str array would make pandas build new strings
+    lab = np.array([*systems.labels, ""], dtype=object)
     s_in, s_out = per_row(res["slip_in"]), per_row(res["slip_out"])
     table = pd.DataFrame({
         "boundary_id": bid[row_b], "grain_in": np.where(row_c == 0, ga[row_b], gb[row_b]),
