@@ -369,3 +369,16 @@ def test_rank_barriers_matches_the_loop_version_on_a_forecast():
                         stress_ratio=-1.0, samples=0, mode="map", barrier_model="weights", n_sites=0)
     assert len(fc.crossings) >= 2
     pd.testing.assert_frame_equal(rank_barriers(fc.crossings), _rank_barriers_reference(fc.crossings))
+
+
+def test_transmission_table_orders_rows_by_boundary_whatever_the_table_order():
+    from slipnet.grains import build_grain_graph
+    from slipnet.synthetic import make_specimen
+
+    gg = build_grain_graph(make_specimen((60, 80), 1.0, grain_size_um=12.0, seed=6).omap)
+    systems = slip_systems("bcc")
+    ref = transmission_table(gg, [1, 0, 0], systems)
+    shuffled = gg.boundaries.sample(frac=1.0, random_state=2)  # the slow path: ids not increasing
+    gg2 = type(gg)(**{**{f: getattr(gg, f) for f in gg.__dataclass_fields__}, "boundaries": shuffled})
+    pd.testing.assert_frame_equal(transmission_table(gg2, [1, 0, 0], systems), ref)
+    assert np.array_equal(ref["boundary_id"].to_numpy()[::2], np.sort(gg.boundaries["boundary_id"].to_numpy()))

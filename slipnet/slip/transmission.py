@@ -73,7 +73,11 @@ def transmission_table(gg, load_axis, systems: SlipSystems | None = None, *, bou
     # grain (A→B before B→A since grain_a < grain_b): no per-direction frames, no concat and sort
     n_b = ga.size
     bid = b["boundary_id"].to_numpy()
-    order = np.lexsort((np.concatenate((ga, gb)), np.concatenate((bid, bid))))
+    if n_b < 2 or bool(np.all(bid[1:] > bid[:-1])):
+        # the grain graph lists boundaries by increasing id: the order is A→B, B→A of each in turn
+        order = np.arange(2 * n_b).reshape(2, n_b).T.ravel()
+    else:
+        order = np.lexsort((np.concatenate((ga, gb)), np.concatenate((bid, bid))))
     row_b, row_c = order % n_b, order // n_b  # boundary row and direction (0: A→B, 1: B→A) of each row
 
     def per_row(v):
