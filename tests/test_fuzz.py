@@ -7,9 +7,9 @@ file replaced by random bytes. Whatever comes back must be a result or a
 :class:`~slipnet.errors.SlipnetError` — never a library's exception — within a time limit. The
 command-line cases also check that a refused run leaves no file behind.
 
-The CI budget is small and derandomised (profile ``ci`` in ``conftest.py``); the ``slow`` tests
-try more examples per reader (``SLIPNET_FUZZ_EXAMPLES``, default 100).
-``HYPOTHESIS_PROFILE=dev`` gives a random, wider search.
+The CI budget is small and derandomised (profile ``ci`` in ``conftest.py``). The longer search
+is ``python3 benchmarks/fuzz_readers.py`` (``--examples N`` per reader, random examples), which
+runs these same tests with a wider budget outside CI.
 """
 
 from __future__ import annotations
@@ -48,6 +48,10 @@ from slipnet.io import (
 from slipnet.maps import OrientationMap, StrainSeries
 from slipnet.maps.orientation_map import AUSTENITE, FERRITE
 from slipnet.study.options import StudyOptions, read_study_file, write_study_file
+
+#: Damaged files per reader in one run: small and derandomised in CI; benchmarks/fuzz_readers.py
+#: raises it (``SLIPNET_FUZZ_EXAMPLES``) for a longer search.
+FUZZ_EXAMPLES = int(os.environ.get("SLIPNET_FUZZ_EXAMPLES", "15"))
 
 #: A read that takes longer than this on a file of a few kB hangs (seconds).
 TIME_LIMIT_S = 20
@@ -276,22 +280,9 @@ def test_every_seed_file_reads(seeds, tmp_path):
 
 
 @pytest.mark.parametrize("case", CASES)
-@settings(max_examples=25, **_FUZZ)
+@settings(max_examples=FUZZ_EXAMPLES, **_FUZZ)
 @given(data=st.data())
 def test_damaged_files_raise_only_our_errors(seeds, tmp_path, case, data):
-    _fuzz_one(seeds, tmp_path, case, data)
-
-
-#: Examples per reader in the slow run; ``SLIPNET_FUZZ_EXAMPLES=5000 pytest -m slow tests/test_fuzz.py``
-#: searches far wider (hours), outside CI.
-LONG_RUN = int(os.environ.get("SLIPNET_FUZZ_EXAMPLES", "100"))
-
-
-@pytest.mark.slow
-@pytest.mark.parametrize("case", CASES)
-@settings(max_examples=LONG_RUN, **_FUZZ)
-@given(data=st.data())
-def test_damaged_files_raise_only_our_errors_longer(seeds, tmp_path, case, data):
     _fuzz_one(seeds, tmp_path, case, data)
 
 
