@@ -50,10 +50,13 @@ def plot_forecast_map(fc, gg, *, ax: Axes | None = None, n_barriers: int = 8, n_
         fig = ax.figure
     ext = map_extent(gg.omap)
     field = fc.field if fc.field is not None else np.zeros(gg.labels.shape)
+    # the field is computed only in the window the forecast reads (0 elsewhere): leave the rest
+    # blank, not dark, so that 'not forecast' never reads as 'no localisation'
+    field = np.ma.masked_where(np.asarray(field) == 0.0, field)
     im = ax.imshow(field, extent=ext, origin="upper", cmap=SCALAR_CMAP, vmin=0, vmax=1, interpolation="nearest")
     bm = np.ma.masked_where(~_boundary_mask(np.asarray(gg.labels)), np.ones(gg.labels.shape))
     ax.imshow(bm, extent=ext, origin="upper", cmap="gray_r", vmin=0, vmax=1.5, alpha=0.8, interpolation="nearest")
-    fig.colorbar(im, ax=ax, shrink=0.8, label="predicted localisation (normalised, 0–1)")
+    fig.colorbar(im, ax=ax, shrink=0.8, label="predicted localisation (normalised, 0–1; blank: not forecast)")
     handles = []
     alts = fc.alternatives
     if len(alts):

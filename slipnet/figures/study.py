@@ -161,12 +161,15 @@ def plot_notch_forecast(result, index: int, *, n_sites: int = 8, margin_um: floa
     fig, ax = plt.subplots(figsize=(7.2, 5.8))
     ext = map_extent(gg.omap)
     field = fc.field if fc.field is not None else np.zeros(np.asarray(gg.labels).shape)
+    # the field is computed only in the window the forecast reads (0 elsewhere): leave the rest
+    # blank, not dark, so that 'not forecast' never reads as 'no localisation'
+    field = np.ma.masked_where(np.asarray(field) == 0.0, field)
     im = ax.imshow(field, extent=ext, origin="upper", cmap=SCALAR_CMAP, vmin=0, vmax=1, interpolation="nearest")
     labels = np.asarray(gg.labels)
     edges = _grain_edges(labels)
     ax.imshow(np.ma.masked_where(~edges, np.ones(labels.shape)), extent=ext, origin="upper", cmap="gray_r",
               vmin=0, vmax=1.2, alpha=0.9, interpolation="nearest")
-    fig.colorbar(im, ax=ax, shrink=0.8, label="predicted localisation (normalised, 0–1)")
+    fig.colorbar(im, ax=ax, shrink=0.8, label="predicted localisation (normalised, 0–1; blank: not forecast)")
     _notch_outline(ax, gg, o.row, result.plan.settings.notch, "white", 2.0)
     handles = _draw_outcome(ax, o, _colour(index), "-", main=True, n_sites=n_sites)
     pts = [np.array([[float(o.row["edge_x_um"]), float(o.row["edge_y_um"])]])]
