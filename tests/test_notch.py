@@ -376,3 +376,20 @@ def test_full_field_kt_of_an_edge_notch_near_the_chart_value():
     with pytest.raises(ParameterError, match="concentration should be"):
         plan_notch(gg, "top", (1, 0, 0), concentration="guess", depth_um=40.0, root_radius_um=10.0,
                    window_um=60.0, crack_sizes_um=(5.0,))
+
+
+def test_notch_study_file_says_how_to_read_its_map(tmp_path):
+    # [specimen] carries read_map's keywords, so a batch or a notch study reads a lab map as asked
+    from slipnet.io import write_map
+
+    omap, _ = _band_specimen()
+    write_map(omap, tmp_path / "bands.npz")
+    study = tmp_path / "study.toml"
+    study.write_text(STUDY.replace("[specimen]\n", "[specimen]\nframe_rotation = '0,0,1@90'\n"
+                                   "structures = {ferrite = 'bcc'}\n", 1))
+    st = read_study(study)
+    assert st.map_options == {"frame_rotation": "0,0,1@90", "structures": {"ferrite": "bcc"}}
+    assert st.with_map(tmp_path / "other.npz").map_options == st.map_options
+    study.write_text(STUDY.replace("[specimen]\n", "[specimen]\nquality_column = 'ci'\n", 1))
+    with pytest.raises(InputFileError, match="unknown key.*quality_column.*quality_prop"):
+        read_study(study)

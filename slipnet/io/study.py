@@ -2,7 +2,8 @@
 
 See ``examples/notch/study.toml``. Sections and keys (units in the key names)::
 
-    [specimen]     map (path, relative to the study file), threshold_deg, min_grain_size
+    [specimen]     map (path, relative to the study file), threshold_deg, min_grain_size, and how
+                   to read the map: frame_rotation, quality_prop, structures, step_um (read_map keywords)
     [loading]      axis (3 numbers, map frame; required), stress_amplitude_mpa, stress_ratio
     [notch]        depth_um, root_radius_um, opening_deg, concentration ("peterson" | "full_field")
     [candidates]   edge ("left" | "right" | "top" | "bottom" or [[x, y], ...] in µm), spacing_um,
@@ -19,7 +20,7 @@ from __future__ import annotations
 
 import os
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -30,7 +31,8 @@ from slipnet.errors import InputFileError
 __all__ = ["Study", "read_study"]
 
 _STUDY_KEYS = {
-    "specimen": {"map", "threshold_deg", "min_grain_size"},
+    "specimen": {"map", "threshold_deg", "min_grain_size", "frame_rotation", "quality_prop", "structures",
+                 "step_um"},
     "loading": {"axis", "stress_amplitude_mpa", "stress_ratio"},
     "notch": {"depth_um", "root_radius_um", "opening_deg", "concentration"},
     "candidates": {"edge", "spacing_um", "window_um", "crack_sizes_um"},
@@ -43,16 +45,17 @@ _STUDY_KEYS = {
 
 @dataclass(frozen=True)
 class Study:
-    """A parsed study file: the map to read, how to build grains, and the plan keywords."""
+    """A parsed study file: the map to read (and how), how to build grains, and the plan keywords."""
 
     path: Path
     map_path: Path | None
     grain_options: dict
     plan_options: dict
+    map_options: dict = field(default_factory=dict)
 
     def with_map(self, map_path: Path) -> Study:
         """The same study on another specimen map (batch mode)."""
-        return Study(self.path, Path(map_path), self.grain_options, self.plan_options)
+        return Study(self.path, Path(map_path), self.grain_options, self.plan_options, self.map_options)
 
 
 @guarded_reader("study file", "check its TOML against the keys listed in the study-file documentation")
@@ -94,6 +97,7 @@ def read_study(path: str | os.PathLike) -> Study:
             raise InputFileError(f"the map {spec['map']!r} named in [specimen] does not exist ({map_path})",
                                  path=str(p))
     grain_options = {k: spec[k] for k in ("threshold_deg", "min_grain_size") if k in spec}
+    map_options = {k: spec[k] for k in ("frame_rotation", "quality_prop", "structures", "step_um") if k in spec}
     load = data.get("loading", {})
     notch = data.get("notch", {})
     cand = data.get("candidates", {})
@@ -126,4 +130,4 @@ def read_study(path: str | os.PathLike) -> Study:
     opts.update(run)
     if isinstance(opts.get("edge"), list):
         opts["edge"] = np.asarray(opts["edge"], dtype=float)
-    return Study(p, map_path, grain_options, opts)
+    return Study(p, map_path, grain_options, opts, map_options)

@@ -51,7 +51,7 @@ def run_study(study: Study | str | os.PathLike, *, gg: GrainGraph | None = None,
     if gg is None:
         if st.map_path is None:
             raise ParameterError("the study names no [specimen] map; give one or pass a grain graph")
-        gg = build_grain_graph(read_map(st.map_path), **st.grain_options)
+        gg = build_grain_graph(read_map(st.map_path, **st.map_options), **st.grain_options)
     opts = dict(st.plan_options)
     edge = opts.pop("edge", "left")
     load = opts.pop("load_axis")
@@ -92,7 +92,7 @@ def iter_batch(folder: str | os.PathLike, study: Study | str | os.PathLike, *, s
     """
     st = study if isinstance(study, Study) else read_study(study)
     _check_scheduler(st, scheduler, allow_remote)
-    maps = read_map_folder(folder)
+    maps = read_map_folder(folder, **st.map_options)
     opts = st.plan_options
     with SweepPool(scheduler or opts.get("scheduler", "synchronous"), opts.get("workers"),
                    allow_remote=allow_remote or scheduler is not None) as pool:
