@@ -1,6 +1,6 @@
 """The long fuzz search over every reader: the CI fuzz tests with a far larger, random budget.
 
-CI runs ``tests/test_fuzz.py`` with a small derandomised budget (15 damaged files per reader).
+CI runs ``tests/test_fuzz.py`` with a small derandomised budget (10 damaged files per reader).
 This script runs the same tests with ``--examples`` damaged files per reader and Hypothesis's
 random search (profile ``dev``), so every run explores new files; a failure prints the file that
 broke the reader and a ``@reproduce_failure`` line. It prints the examples tried per second

@@ -51,7 +51,7 @@ from slipnet.study.options import StudyOptions, read_study_file, write_study_fil
 
 #: Damaged files per reader in one run: small and derandomised in CI; benchmarks/fuzz_readers.py
 #: raises it (``SLIPNET_FUZZ_EXAMPLES``) for a longer search.
-FUZZ_EXAMPLES = int(os.environ.get("SLIPNET_FUZZ_EXAMPLES", "15"))
+FUZZ_EXAMPLES = int(os.environ.get("SLIPNET_FUZZ_EXAMPLES", "10"))
 
 #: A read that takes longer than this on a file of a few kB hangs (seconds).
 TIME_LIMIT_S = 20
@@ -331,7 +331,7 @@ TABLES = {
 
 
 @pytest.mark.parametrize("name", sorted(TABLES))
-@settings(max_examples=40, **_FUZZ)
+@settings(max_examples=25, **_FUZZ)
 @given(data=st.data())
 def test_mutated_csv_tables_raise_only_our_errors(tmp_path, name, data):
     reader, header, rows = TABLES[name]
@@ -353,7 +353,7 @@ def _run_cli(argv: list[str]) -> tuple[int, str]:
 
 
 @pytest.mark.parametrize("command", ["map", "grains"])
-@settings(max_examples=8, **_FUZZ)
+@settings(max_examples=5, **_FUZZ)
 @given(data=st.data())
 def test_cli_on_damaged_maps_explains_and_leaves_nothing(seeds, tmp_path, command, data):
     suffix = data.draw(st.sampled_from([".txt", ".npz", ".h5"]))
