@@ -391,5 +391,5 @@ def test_notch_study_file_says_how_to_read_its_map(tmp_path):
     assert st.map_options == {"frame_rotation": "0,0,1@90", "structures": {"ferrite": "bcc"}}
     assert st.with_map(tmp_path / "other.npz").map_options == st.map_options
     study.write_text(STUDY.replace("[specimen]\n", "[specimen]\nquality_column = 'ci'\n", 1))
-    with pytest.raises(InputFileError, match="unknown key.*quality_column.*quality_prop"):
+    with pytest.raises(InputFileError, match=r"unknown key.*quality_column.*quality_prop"):
         read_study(study)
