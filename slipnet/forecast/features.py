@@ -320,6 +320,36 @@ def _youngs_ratio(mean_quats: np.ndarray, load: np.ndarray, constants, matrices=
     return e / voigt_reuss_hill(constants)["young_hill_gpa"]
 
 
+
+def _field_terms(field, labels, mq, cut, systems, amp: float, ng: int):
+    """Slip-system terms of a local stress ``field`` on its grid (the whole map or a window).
+
+    Returns ``(solid, tau, point_sys, grain_tau, feats, tau_grain_mean)``: the points with a
+    solved stress, the largest effective resolved shear (÷ amplitude) and its system per point,
+    its grain means per system, the point features ``tau`` and ``normal_stress``, and the grain
+    mean of ``tau``.
+    """
+    from slipnet.stress import local_resolved_shear
+
+    scale = amp / float(field.applied_stress)
+    solid = (labels >= 0) & ~np.asarray(field.compliant, bool) & ~cut
+    qa = _aligned_quats(field.omap, labels, mq)
+    qa = np.where(solid[..., None], qa, np.nan)
+    aligned = replace(field.omap, quats=qa, indexed=solid, phase=np.where(solid, field.omap.phase, -1))
+    tau_sys = local_resolved_shear(replace(field, omap=aligned), aligned, systems) * scale  # (ny, nx, S)
+    eff = np.nan_to_num(_effective(np.nan_to_num(tau_sys), systems)) / amp
+    eff[~solid] = 0.0
+    tau = eff.max(axis=2)
+    point_sys = np.where(solid, eff.argmax(axis=2), -1)
+    lab = labels[solid]
+    cnt = np.bincount(lab, minlength=ng).astype(float)
+    grain_tau = np.stack([np.bincount(lab, weights=eff[..., k][solid], minlength=ng) for k in
+                          range(eff.shape[2])], axis=1) / np.maximum(cnt, 1.0)[:, None]
+    sn = field.normal_stress() * scale / amp
+    feats = {"tau": tau, "normal_stress": np.where(solid, sn, 0.0)}
+    tg = _grain_mean(tau, labels, solid, ng)
+    return solid, tau, point_sys, grain_tau, feats, tg
+
 def _grain_mean(values: np.ndarray, labels: np.ndarray, mask: np.ndarray, n: int) -> np.ndarray:
     lab = labels[mask]
     cnt = np.bincount(lab, minlength=n).astype(float)
@@ -450,7 +480,7 @@ def localisation_features(
     tol
         Equilibrium tolerance of the elastic solve.
     """
-    from slipnet.stress import IRON_CONSTANTS, default_systems, local_resolved_shear, solve_cyclic
+    from slipnet.stress import IRON_CONSTANTS, default_systems, solve_cyclic
     from slipnet.stress.constants import DEFAULT_CONSTANTS
 
     mode = check_choice(mode, "mode", MODES)
@@ -497,23 +527,7 @@ def localisation_features(
             if field.shape != omap.shape:
                 raise ParameterError(f"stress_field shape {field.shape} should match the map {omap.shape}")
         edges = tuple(field.meta.get("free_edges", ())) if isinstance(field.meta, dict) else ()
-        scale = amp / float(field.applied_stress)
-        solid = (labels >= 0) & ~np.asarray(field.compliant, bool) & ~cut
-        qa = _aligned_quats(field.omap, labels, mq)
-        qa = np.where(solid[..., None], qa, np.nan)
-        aligned = replace(field.omap, quats=qa, indexed=solid, phase=np.where(solid, field.omap.phase, -1))
-        tau_sys = local_resolved_shear(replace(field, omap=aligned), aligned, systems) * scale  # (ny, nx, S)
-        eff = np.nan_to_num(_effective(np.nan_to_num(tau_sys), systems)) / amp
-        eff[~solid] = 0.0
-        tau = eff.max(axis=2)
-        point_sys = np.where(solid, eff.argmax(axis=2), -1)
-        lab = labels[solid]
-        cnt = np.bincount(lab, minlength=ng).astype(float)
-        grain_tau = np.stack([np.bincount(lab, weights=eff[..., k][solid], minlength=ng) for k in
-                              range(eff.shape[2])], axis=1) / np.maximum(cnt, 1.0)[:, None]
-        sn = field.normal_stress() * scale / amp
-        feats = {"tau": tau, "normal_stress": np.where(solid, sn, 0.0)}
-        tg = _grain_mean(tau, labels, solid, ng)
+        solid, tau, point_sys, grain_tau, feats, tg = _field_terms(field, labels, mq, cut, systems, amp, ng)
         feats["tau_grain"] = np.where(solid, np.nan_to_num(tg)[np.maximum(labels, 0)], 0.0)
         notes.append("Local stress from a full-field anisotropic elastic solve with the notch and crack cut in: "
                      + field.assumptions)
@@ -653,7 +667,7 @@ def window_features(gg, geo, win, tip, direction, load_axis, *, mode: str = "ela
     ``memo`` (a dict kept by the caller) keeps the terms that depend only on the geometry (slit,
     metal mask, boundary and notch distances) between calls with the same window, crack and field.
     """
-    from slipnet.stress import IRON_CONSTANTS, default_systems, local_resolved_shear, solve_cyclic
+    from slipnet.stress import IRON_CONSTANTS, default_systems, solve_cyclic
     from slipnet.stress.constants import DEFAULT_CONSTANTS
 
     mode = check_choice(mode, "mode", MODES)
@@ -720,23 +734,7 @@ def window_features(gg, geo, win, tip, direction, load_axis, *, mode: str = "ela
         fomap = crop_map(full.omap, box, quats=fq)
         field = replace(full, stress=full.stress[csl], strain=full.strain[csl], omap=fomap,
                         compliant=np.asarray(full.compliant)[csl])
-        scale = amp / float(field.applied_stress)
-        solid = (labels >= 0) & ~np.asarray(field.compliant, bool) & ~cut
-        qa = _aligned_quats(field.omap, labels, mq)
-        qa = np.where(solid[..., None], qa, np.nan)
-        aligned = replace(field.omap, quats=qa, indexed=solid, phase=np.where(solid, field.omap.phase, -1))
-        tau_sys = local_resolved_shear(replace(field, omap=aligned), aligned, systems) * scale  # (ny, nx, S)
-        eff = np.nan_to_num(_effective(np.nan_to_num(tau_sys), systems)) / amp
-        eff[~solid] = 0.0
-        tau = eff.max(axis=2)
-        point_sys = np.where(solid, eff.argmax(axis=2), -1)
-        lab = labels[solid]
-        cnt = np.bincount(lab, minlength=ng).astype(float)
-        grain_tau = np.stack([np.bincount(lab, weights=eff[..., k][solid], minlength=ng) for k in
-                              range(eff.shape[2])], axis=1) / np.maximum(cnt, 1.0)[:, None]
-        sn = field.normal_stress() * scale / amp
-        feats = {"tau": tau, "normal_stress": np.where(solid, sn, 0.0)}
-        tg = _grain_mean(tau, labels, solid, ng)
+        solid, tau, point_sys, grain_tau, feats, tg = _field_terms(field, labels, mq, cut, systems, amp, ng)
         feats["tau_grain"] = np.where(solid, np.nan_to_num(tg)[lab0], 0.0)
         notes.append("Local stress from a full-field anisotropic elastic solve with the notch and crack cut in: "
                      + full.assumptions)
