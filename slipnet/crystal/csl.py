@@ -20,9 +20,9 @@ from __future__ import annotations
 
 import math
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
 
 from slipnet.crystal import orientation_kernels as _k
 from slipnet.crystal.orientation import (
@@ -32,6 +32,9 @@ from slipnet.crystal.orientation import (
     quat_multiply,
     random_quats,
 )
+
+if TYPE_CHECKING:  # pandas is imported where a table is made: it costs ~0.5 s at start-up
+    import pandas as pd
 
 __all__ = [
     "BOUNDARY_CLASSES",
@@ -90,6 +93,8 @@ def csl_rotations() -> pd.DataFrame:
         Columns ``boundary_class``, ``sigma``, ``axis_h``, ``axis_k``, ``axis_l``, ``angle_deg``,
         ``brandon_limit_deg`` (15°·Σ^(−1/2)), ``qw``, ``qx``, ``qy``, ``qz``.
     """
+    import pandas as pd
+
     rows = []
     for name, sigma, axis, m, n in CSL_TABLE:
         angle = math.degrees(2.0 * math.atan(n * math.sqrt(sum(h * h for h in axis)) / m))

@@ -8,16 +8,18 @@ Private helpers of :mod:`slipnet.grains.build`; the hot loops are in
 from __future__ import annotations
 
 from collections.abc import Callable
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
-import pandas as pd
 
 from slipnet.crystal.csl import classify_boundaries
 from slipnet.crystal.orientation import disorientation, misorientation
 from slipnet.grains import _boundary_kernels as _bk
 from slipnet.maps.grain_graph import BoundaryPolylines
 from slipnet.maps.orientation_map import OrientationMap
+
+if TYPE_CHECKING:  # pandas is imported where a table is made, so `import slipnet.grains` stays cheap
+    import pandas as pd
 
 
 class Boundaries(NamedTuple):
@@ -174,6 +176,8 @@ def boundary_lines(bnd: Boundaries, geo: EdgeGeometry, omap: OrientationMap) -> 
 
 def junction_table(labels: np.ndarray, omap: OrientationMap, m_edges: int) -> pd.DataFrame:
     """Triple-junction table: cell vertices where three or more grains meet, one pass over the labels."""
+    import pandas as pd
+
     ny, nx_ = omap.shape
     # 2x2 cells on square grids, lattice triangles on hex grids
     jx, jy, jg, jn = _bk.triple_junctions(labels, ny, nx_, omap.grid == "hex", omap.step, omap.row_spacing,

@@ -7,11 +7,9 @@ Private helpers of :mod:`slipnet.grains.build`; the hot loops are in
 
 from __future__ import annotations
 
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
-import networkx as nx
 import numpy as np
-import pandas as pd
 
 from slipnet.crystal.orientation import disorientation_angle, euler_from_quat
 from slipnet.grains import _pair_kernels as _pk
@@ -20,6 +18,10 @@ from slipnet.grains._boundaries import Boundaries, Lines
 from slipnet.grains._steps import _compact, _grain_means, _mean_orientations, _n_chunks
 from slipnet.maps.grain_graph import EDGE_KEYS, NODE_KEYS
 from slipnet.maps.orientation_map import OrientationMap
+
+if TYPE_CHECKING:  # pandas and networkx (~1 s) are imported where a table or graph is made
+    import networkx as nx
+    import pandas as pd
 
 
 class GrainStats(NamedTuple):
@@ -62,6 +64,8 @@ def grain_stats(omap: OrientationMap, labels: np.ndarray, n: int, valid: np.ndar
 
 def grain_table(omap: OrientationMap, st: GrainStats, labels: np.ndarray, n: int, bnd: Boundaries) -> pd.DataFrame:
     """The grain table: size, shape (second moments), bounding box, mean orientation, GOS, KAM, neighbours."""
+    import pandas as pd
+
     sums, bbox, means = st.sums, st.bbox, st.means
     cnt = sums[:, 0]
     cx, cy = sums[:, 1] / cnt, sums[:, 2] / cnt
@@ -109,6 +113,8 @@ def grain_table(omap: OrientationMap, st: GrainStats, labels: np.ndarray, n: int
 def boundary_table(bnd: Boundaries, lines: Lines, edge_len: float, trace: np.ndarray, angle: np.ndarray,
                    axis: np.ndarray, bclass: np.ndarray, deviation: np.ndarray) -> pd.DataFrame:
     """The boundary table: grains, lengths, misorientation, class, trace and end points."""
+    import pandas as pd
+
     ends_xy = lines.ends_xy
     return pd.DataFrame({
         "boundary_id": np.arange(bnd.n, dtype=np.int64),
@@ -131,6 +137,8 @@ def boundary_table(bnd: Boundaries, lines: Lines, edge_len: float, trace: np.nda
 def subgrains(omap: OrientationMap, labels: np.ndarray, valid: np.ndarray, a: np.ndarray, b: np.ndarray,
               ang: np.ndarray, sub: float, edge_len: float, log) -> tuple[np.ndarray, pd.DataFrame]:
     """Sub-grains joined below ``sub`` inside each grain: their label image and boundary table."""
+    import pandas as pd
+
     ny, nx_ = omap.shape
     npts = ny * nx_
     qflat = omap.quats.reshape(-1, 4)
@@ -163,6 +171,8 @@ def subgrains(omap: OrientationMap, labels: np.ndarray, valid: np.ndarray, a: np
 
 def grain_networkx(omap: OrientationMap, thr: float, grains: pd.DataFrame, boundaries: pd.DataFrame) -> nx.Graph:
     """The networkx graph: one node per grain, one edge per boundary, plain-number attributes."""
+    import networkx as nx
+
     n, nbd = len(grains), len(boundaries)
     graph = nx.Graph(threshold_deg=thr, step_um=float(omap.step), grid=omap.grid, name=str(omap.name))
     ncols = {k: grains[k].tolist() for k in NODE_KEYS}

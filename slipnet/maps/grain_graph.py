@@ -10,14 +10,17 @@ from __future__ import annotations
 import math
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
-import networkx as nx
 import numpy as np
-import pandas as pd
 
 from slipnet._checks import check_positive
 from slipnet.errors import ParameterError
 from slipnet.maps.orientation_map import OrientationMap
+
+if TYPE_CHECKING:  # only the field types: networkx and pandas cost ~1 s at start-up
+    import networkx as nx
+    import pandas as pd
 
 __all__ = ["EDGE_KEYS", "NODE_KEYS", "BoundaryPolylines", "GrainGraph"]
 

@@ -23,7 +23,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import ndimage
 
 from slipnet._checks import check_choice, check_positive
 from slipnet.errors import ParameterError
@@ -206,6 +205,8 @@ def _gradient_plane(f: np.ndarray, step: float, window: int, min_points: int) ->
     is vectorised: with centred moments Cxx, Cxy, Cyy, Cxf, Cyf the slopes solve
     [[Cxx, Cxy], [Cxy, Cyy]] · (b, c) = (Cxf, Cyf).
     """
+    from scipy import ndimage  # here, not at the top: scipy.ndimage costs ~0.5 s at start-up
+
     ok = np.isfinite(f)
     w = ok.astype(np.float64)
     f0 = np.where(ok, f, 0.0)
