@@ -41,11 +41,12 @@ import pandas as pd
 
 from slipnet.crystal.orientation import quat_conjugate, quat_multiply
 from slipnet.crystal.perturb import perturb_sample
-from slipnet.forecast._core import _start_grain
-from slipnet.forecast._run import run_forecast_pass
+from slipnet.forecast._core import _start_grain, _trace_all
+from slipnet.forecast._geometry import _Crystal
+from slipnet.forecast._mc_arrays import BarrierPlan, rank_pairs
 from slipnet.forecast._window import forecast_window
 from slipnet.forecast.features import MapFieldPlan, field_peaks, window_features
-from slipnet.forecast.localise import _coords, _GridShim, barrier_features, predict_field, site_probability
+from slipnet.forecast.localise import _coords, _GridShim, predict_field, site_probability
 
 __all__ = ["monte_carlo"]
 
@@ -145,6 +146,13 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         # the geometry of the window once; each sample then costs its grain terms and one kernel pass
         plan = MapFieldPlan(gg, geo, win, tip, opts.d_ref, load, systems)
         field_model = weights.model(mode, "field")
+    # the nominal grain pairs, sorted by code, for a look-up of each sample's ranking in array passes
+    code_base = int(geo.n_grains) + 1
+    nom_code = np.array([a * code_base + c for a, c in uniq], np.int64)
+    nom_order = np.argsort(nom_code, kind="stable")
+    nom_code_sorted = nom_code[nom_order]
+    class_memo: dict = {}
+    bar_plan = BarrierPlan(fc.barriers, fc.crossings, geo, drop_r) if (nb and weights is not None) else None
     site_ij = np.asarray(gg.omap.index_of(sxy[:, 0], sxy[:, 1])) if (ns and gg is not None) else None
 
     def one(s: int, dr: dict) -> dict:
@@ -154,17 +162,21 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         w = win
         if w is not None and not _holds(geo, w, t, opts.horizon + drop_r):
             w = forecast_window(gg, geo, np.stack([tip, t]), opts.horizon + drop_r)
-        res = run_forecast_pass(geo, planes, q, ld, schmid, t, g0, o, amplitude=amplitude, decay=decay, bw=dr["bw"],
-                                cf=cf, want_field=False, sigma_um=1.0, site_radius=site_radius,
-                                rows=None if w is None else w.reach, want_sites=False)
-        b = res["barriers"]
+        cry = _Crystal(q, ld, planes, schmid, rows=None if w is None else w.reach)
+        states, alt_cross = _trace_all(geo, cry, planes, float(t[0]), float(t[1]), g0, o)
+        main = states[0]
+        # the ranking as arrays: no crossing or barrier table per sample
+        b = rank_pairs(main.crossings + alt_cross, dr["bw"], decay_length_um=decay, class_factors=cf,
+                       class_memo=class_memo)
         out = {"on_path": np.zeros(nk), "top": np.zeros(nk), "p_hit": np.zeros(ns), "present": np.zeros(ns),
                "site_top": np.zeros(ns), "p_drop": np.zeros(nb)}
-        for a_, c_, onp, rk in zip(b["grain_a"], b["grain_b"], b["on_path"], b["rank"], strict=True):
-            i = bar_index.get(_pair(a_, c_))
-            if i is not None:
-                out["on_path"][i] += bool(onp)
-                out["top"][i] += bool(rk <= top_k)
+        if nk and b["lo"].size:
+            code = b["lo"] * code_base + b["hi"]
+            at = np.clip(np.searchsorted(nom_code_sorted, code), 0, nk - 1)
+            hit = nom_code_sorted[at] == code
+            i = nom_order[at[hit]]
+            np.add.at(out["on_path"], i, b["on_path"][hit].astype(float))
+            np.add.at(out["top"], i, (np.arange(1, code.size + 1)[hit] <= top_k).astype(float))
         if weights is not None and inputs is not None:
             crack_s = None
             if crack is not None:
@@ -197,16 +209,17 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                     out["present"] = near.any(axis=1).astype(float)
                     out["site_top"] = near[:, :top_k].any(axis=1).astype(float)
             if nb:
-                xb = barrier_features(fc.barriers, fc.crossings, inp, fld, geo, res["crystal"], weights, opts.horizon)
+                r0, r1, c0, c1 = inp.window
+                xb = bar_plan.features(fld, inp.tau, geo.labels[r0:r1, c0:c1], inp.solid, x, y, cry)
                 out["p_drop"] = weights.model(mode, "barriers").probability(xb, dr["rep"])
-        path = res["path_summary"]
-        end = path["end"] if path["end"] is not None else (t[0], t[1])
+        seg = main.segments
+        end = (seg[-1]["x1_um"], seg[-1]["y1_um"]) if seg else (t[0], t[1])
         out["row"] = {
             "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": dr["reset"],
             "load_x": float(ld[0]), "load_y": float(ld[1]), "load_z": float(ld[2]),
-            "path_length_um": path["length_um"], "n_crossings": int(path["n_main_crossings"]),
-            "stop_reason": res["stop"],
-            "top_barrier_id": int(b["boundary_id"].iloc[0]) if len(b) else -1,
+            "path_length_um": float(sum(sg["length_um"] for sg in seg)), "n_crossings": len(main.crossings),
+            "stop_reason": main.stop,
+            "top_barrier_id": int(b["boundary_id"][0]) if b["boundary_id"].size else -1,
             "end_x_um": float(end[0]), "end_y_um": float(end[1]),
         }
         return out

@@ -1,0 +1,90 @@
+"""The Monte Carlo's array-only per-sample steps give the numbers of the table-building code they replace."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from slipnet.crystal import slip_systems
+from slipnet.forecast import BarrierWeights, forecast_crack, load_weights, rank_barriers
+from slipnet.grains import build_grain_graph
+
+
+@pytest.fixture(scope="module")
+def poly_gg():
+    from slipnet.synthetic import make_specimen
+
+    spec = make_specimen((140, 140), 1.0, grain_size_um=22.0, seed=11)
+    return build_grain_graph(spec.omap)
+
+
+def _rows(crossings: pd.DataFrame) -> list[dict]:
+    return crossings.to_dict("records")
+
+
+def _check_rank(crossings: pd.DataFrame, bw, decay, cf=None) -> None:
+    from slipnet.forecast._mc_arrays import rank_pairs
+
+    want = rank_barriers(crossings, bw, decay_length_um=decay, class_factors=cf)
+    got = rank_pairs(_rows(crossings), bw, decay_length_um=decay, class_factors=cf)
+    lo = np.minimum(want["grain_a"], want["grain_b"]).to_numpy()
+    hi = np.maximum(want["grain_a"], want["grain_b"]).to_numpy()
+    np.testing.assert_array_equal(got["lo"], lo)
+    np.testing.assert_array_equal(got["hi"], hi)
+    np.testing.assert_array_equal(got["on_path"], want["on_path"].to_numpy(bool))
+    np.testing.assert_array_equal(got["boundary_id"], want["boundary_id"].to_numpy())
+    np.testing.assert_array_equal(got["barrier_score"], want["barrier_score"].to_numpy(float))
+
+
+def test_rank_pairs_equals_rank_barriers_on_forecast_crossings(poly_gg):
+    for tip, d, branches in (((3.0, 70.0), (1.0, 0.0), 6), ((70.0, 3.0), (0.1, 1.0), 0), ((60.0, 60.0), (1.0, 0.3), 3)):
+        fc = forecast_crack(poly_gg, tip, d, (0.0, 1.0, 0.0), 90.0, mode="map", max_branches=branches)
+        assert len(fc.crossings) >= 2
+        for bw, decay in ((BarrierWeights(), np.inf), (BarrierWeights(twist=0.3, schmid_drop=2.0), 40.0)):
+            _check_rank(fc.crossings, bw, decay, cf={"high_angle": 0.9, "csl": 0.5})
+            _check_rank(fc.crossings, bw, decay)
+
+
+def test_rank_pairs_keeps_the_table_order_on_ties_and_repeats():
+    # equal scores and equal distances: the stable order of the table's sort must be kept
+    rng = np.random.default_rng(3)
+    n = 40
+    ga = rng.integers(0, 8, n)
+    gb = (ga + rng.integers(1, 4, n)) % 9
+    tab = pd.DataFrame({
+        "boundary_id": rng.integers(0, 30, n), "grain_a": ga, "grain_b": gb,
+        "branch": rng.integers(0, 4, n), "distance_um": rng.choice([5.0, 10.0, 10.0, 20.0], n),
+        "twist_deg": rng.choice([0.0, 30.0, 45.0], n), "tilt_deg": 0.0, "m_prime": rng.choice([0.5, 1.0], n),
+        "schmid_in": rng.choice([0.4, 0.45], n), "schmid_out": rng.choice([0.4, 0.45], n),
+        "boundary_class": rng.choice(["high_angle", "low_angle", "sigma3", "subgrain"], n),
+        "misorientation_deg": 40.0, "x_um": rng.random(n), "y_um": rng.random(n),
+    })
+    for decay in (np.inf, 15.0):
+        _check_rank(tab, BarrierWeights(), decay)
+    _check_rank(tab.assign(branch=0), BarrierWeights(), np.inf)
+
+
+def test_barrier_plan_equals_barrier_features(poly_gg):
+    from slipnet.forecast._geometry import _Crystal, _Planes, geometry_of
+    from slipnet.forecast._mc_arrays import BarrierPlan
+    from slipnet.forecast._window import forecast_window
+    from slipnet.forecast.features import window_features
+    from slipnet.forecast.localise import _coords, barrier_features, predict_field
+
+    systems, wts = slip_systems("bcc"), load_weights()
+    geo = geometry_of(poly_gg)
+    tip, d, load = np.array([3.0, 70.0]), np.array([1.0, 0.0]), np.array([0.0, 1.0, 0.0])
+    fc = forecast_crack(poly_gg, tip, d, load, 90.0, mode="map", systems=systems, max_branches=4)
+    assert len(fc.barriers) >= 3
+    win = forecast_window(poly_gg, geo, tip, 90.0 + wts.drop_radius_um)
+    inp = window_features(poly_gg, geo, win, tip, d, load, mode="map", systems=systems)
+    fld = predict_field(inp, wts)
+    cry = _Crystal(np.asarray(poly_gg.mean_quats, float), load, _Planes(systems))
+    want = barrier_features(fc.barriers, fc.crossings, inp, fld, geo, cry, wts, 90.0)
+    r0, r1, c0, c1 = inp.window
+    x, y = _coords(geo, inp.window)
+    plan = BarrierPlan(fc.barriers, fc.crossings, geo, wts.drop_radius_um)
+    got = plan.features(fld, inp.tau, geo.labels[r0:r1, c0:c1], inp.solid, x, y, cry)
+    assert np.any(got != 0.0, axis=0).sum() >= 5  # the drops are defined somewhere: the test compares numbers
+    np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-14)
