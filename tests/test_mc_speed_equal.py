@@ -88,3 +88,33 @@ def test_barrier_plan_equals_barrier_features(poly_gg):
     got = plan.features(fld, inp.tau, geo.labels[r0:r1, c0:c1], inp.solid, x, y, cry)
     assert np.any(got != 0.0, axis=0).sum() >= 5  # the drops are defined somewhere: the test compares numbers
     np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-14)
+
+
+def test_field_plan_equals_map_field_plan(poly_gg):
+    # the Monte Carlo's array pass gives MapFieldPlan's field and τ, and the points of the peak search
+    from slipnet.crystal import perturb_sample
+    from slipnet.forecast._geometry import geometry_of
+    from slipnet.forecast._mc_arrays import FieldPlan
+    from slipnet.forecast._window import forecast_window
+    from slipnet.forecast.features import MapFieldPlan
+    from slipnet.forecast.localise import _coords
+
+    geo, systems, wts = geometry_of(poly_gg), slip_systems("bcc"), load_weights()
+    tip, horizon = np.array([4.0, 70.0]), 60.0
+    win = forecast_window(poly_gg, geo, tip, horizon + wts.drop_radius_um + 7.0)
+    plan = MapFieldPlan(poly_gg, geo, win, tip, (1.0, 0.0), (0.0, 1.0, 0.0), systems)
+    fast = FieldPlan(plan)
+    model = wts.model("map", "field")
+    rng = np.random.default_rng(2)
+    for rep in (None, 1, 5):
+        q, ld, dt = perturb_sample(rng, np.asarray(poly_gg.mean_quats), 2.0, (0.0, 1.0, 0.0), 3.0, tip, 1.5)
+        want_inp, want = plan.sample(q, ld, tip + dt, (1.0, 0.0), model, rep)
+        tau, got, pv, px, py = fast.sample(q, ld, tip + dt, (1.0, 0.0), model, rep, horizon)
+        np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-14)
+        np.testing.assert_allclose(tau, want_inp.tau, rtol=1e-12, atol=1e-15)
+        x, y = _coords(geo, plan.window)
+        region = want_inp.solid & (np.hypot(x - tip[0] - dt[0], y - tip[1] - dt[1]) <= horizon)
+        assert 100 < pv.size == region.sum()
+        np.testing.assert_array_equal(px, x[region])
+        np.testing.assert_array_equal(py, y[region])
+        np.testing.assert_allclose(pv, want[region], rtol=1e-12, atol=1e-14)

@@ -191,3 +191,158 @@ def _drops(field, tau, lab, solid, x, y, y0, x0, rs, st, xs, ys, ga, gb, radius,
         va, vb = ta / na, tb / nb_
         if abs(va) + abs(vb) > 0:
             td[i] = (va - vb) / (abs(va) + abs(vb))
+
+
+class FieldPlan:
+    """A :class:`slipnet.forecast.features.MapFieldPlan` with the per-sample work cut to arrays.
+
+    The pair look-up of |m′| (which directed pairs the window's points read, the grains they
+    involve) is prepared once, the per-grain terms of the logit are summed per grain instead of
+    per point, and one kernel pass gives the field, τ and the points within the horizon of the
+    sample's tip (for the peak search) together. The field equals ``MapFieldPlan.sample`` to
+    round-off (tested).
+    """
+
+    def __init__(self, plan) -> None:
+        from slipnet.stress.constants import voigt_reuss_hill
+
+        self.plan = plan
+        p = plan
+        self.normals = np.ascontiguousarray(np.asarray(p.systems.normals, float))
+        self.directions = np.ascontiguousarray(np.asarray(p.systems.directions, float))
+        self.crss = np.asarray(p.systems.crss, float)
+        self.crss_rev = np.asarray(p.systems.crss_reverse, float)
+        c = p.constants
+        s = np.linalg.inv(np.array([[c.c11, c.c12, c.c12], [c.c12, c.c11, c.c12], [c.c12, c.c12, c.c11]]))
+        self.s11, self.s12, self.s44 = s[0, 0], s[0, 1], 1.0 / c.c44
+        self.e_hill = voigt_reuss_hill(c)["young_hill_gpa"]
+        # the directed pairs whose |m′| the points read, in the plan's sorted order
+        pairs = np.stack([p.ea, p.eb], axis=1).astype(np.int64).reshape(-1, 2)
+        if pairs.size and p.keys.size:
+            both = np.concatenate([pairs, pairs[:, ::-1]])
+            code = both[:, 0] * (p.ng + 1) + both[:, 1]
+            _, last = np.unique(code[::-1], return_index=True)
+            keep = np.sort(code.size - 1 - last)
+            sel = keep[p.order]
+            self.pa, self.pb = both[sel, 0], both[sel, 1]
+        else:
+            self.pa = self.pb = np.zeros(0, np.int64)
+        self.grains = np.unique(np.concatenate([p.used, self.pa, self.pb]))  # every grain a sample reads
+        pos = np.full(p.ng, -1, np.int64)
+        pos[self.grains] = np.arange(self.grains.size)
+        self.at_used, self.at_a, self.at_b = pos[p.used], pos[self.pa], pos[self.pb]
+        self.cnt = np.bincount(p.lab_solid, minlength=p.ng).astype(float)
+
+    def sample(self, mean_quats, load_axis, tip, direction, model, replicate, horizon: float):
+        """``(tau, field, peak_values, peak_x, peak_y)`` of one sample on the plan's window.
+
+        ``tau`` and ``field`` are the window's ``(ny, nx)`` arrays; the ``peak_*`` arrays hold the
+        metal points within ``horizon`` (µm) of ``tip``, in row-major order.
+        """
+        from slipnet.forecast._geometry import _matrices
+        from slipnet.forecast.features import FEATURES, _neighbour_mean_edges
+
+        p = self.plan
+        load = np.asarray(load_axis, float)
+        load = load / np.linalg.norm(load)
+        mq = np.asarray(mean_quats, float)[self.grains]
+        q = np.where(np.all(np.isfinite(mq), axis=1)[:, None], mq, [1.0, 0.0, 0.0, 0.0])
+        g = _matrices(q)
+        n_s = np.matmul(self.normals[None], g)
+        d_s = np.matmul(self.directions[None], g)
+        u = self.at_used
+        tau_s = (n_s[u] @ load) * (d_s[u] @ load)
+        lc = g[u] @ load
+        jj = lc[:, 0] ** 2 * lc[:, 1] ** 2 + lc[:, 1] ** 2 * lc[:, 2] ** 2 + lc[:, 2] ** 2 * lc[:, 0] ** 2
+        eratio = np.zeros(p.ng)
+        eratio[p.used] = 1.0 / (self.s11 - 2.0 * (self.s11 - self.s12 - 0.5 * self.s44) * jj) / self.e_hill
+        grain_tau = np.zeros((p.ng, tau_s.shape[1]))
+        grain_tau[p.used] = np.abs(tau_s) / np.where(tau_s >= 0, self.crss, self.crss_rev) * eratio[p.used, None]
+        tau_g = grain_tau.max(axis=1)
+        tg = np.where(self.cnt > 0, tau_g, np.nan)
+        excess = np.nan_to_num(tg - _neighbour_mean_edges(p.ea, p.eb, p.ew, tg))
+        if self.pa.size:
+            sa = np.argmax(grain_tau, axis=1)[self.pa]
+            na = n_s[self.at_a, sa]
+            da = d_s[self.at_a, sa]
+            mp_sorted = np.abs(np.matmul(n_s[self.at_b], na[:, :, None])[..., 0]
+                               * np.matmul(d_s[self.at_b], da[:, :, None])[..., 0]).max(axis=1)
+        else:
+            mp_sorted = np.ones(1)
+        c, b = model.coef, model.intercept
+        if replicate is not None and model.bootstrap_coef.shape[0]:
+            r = int(replicate) % model.bootstrap_coef.shape[0]
+            c, b = model.bootstrap_coef[r], float(model.bootstrap_intercept[r])
+        names = FEATURES["map"]
+        mean7, scale7, coef7 = np.zeros(len(names)), np.ones(len(names)), np.zeros(len(names))
+        for k, name in enumerate(model.features):
+            i = names.index(name)
+            mean7[i], scale7[i], coef7[i] = model.mean[k], model.scale[k], c[k]
+        grain_z = np.full(p.ng, float(b))
+        for i, v in enumerate((tau_g, eratio, excess)):  # the per-grain features, in the kernel's form
+            grain_z += (np.where(np.isfinite(v), v, 0.0) - mean7[i]) / scale7[i] * coef7[i]
+        d = np.asarray(direction, float) / np.linalg.norm(direction)
+        n = p.lab.size
+        fld, tau = np.empty(n), np.empty(n)
+        pv, px, py = np.empty(n), np.empty(n), np.empty(n)
+        m = _mc_map_field(p.lab, p.solid, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z,
+                          np.where(np.isfinite(tau_g), tau_g, 0.0), mp_sorted, float(tip[0]), float(tip[1]),
+                          float(d[0]), float(d[1]), p.step, mean7, scale7, coef7, float(horizon), fld, tau, pv, px, py)
+        return tau.reshape(p.shape), fld.reshape(p.shape), pv[:m], px[:m], py[:m]
+
+
+@nb.njit(cache=True, nogil=True)
+def _mc_map_field(lab, solid, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorted, tx, ty, d0, d1, step, mean,
+                  scale, coef, horizon, fld, tau_out, pv, px, py):
+    """:func:`slipnet.forecast._kernels.map_field` with the grain terms summed beforehand (``grain_z``).
+
+    Also writes the metal points within ``horizon`` of the tip (as ``np.hypot(...) <= horizon``
+    decides) into ``pv, px, py`` in row-major order and returns their number. Releases the GIL.
+    """
+    h2 = horizon * horizon
+    m = 0
+    for p in range(lab.shape[0]):
+        if not solid[p]:
+            fld[p] = 0.0
+            tau_out[p] = 0.0
+            continue
+        g = lab[p]
+        mp = mp_sorted[pair_pos[p]] if pair_pos[p] >= 0 else 1.0
+        dx = x[p] - tx
+        dy = y[p] - ty
+        r2 = dx * dx + dy * dy
+        r = math.sqrt(r2)
+        u = dx * d0 + dy * d1
+        v = dx * d1 * -1.0 + dy * d0
+        if r == 0.0:
+            ch2, s2 = 1.0, 0.0
+        elif u >= 0.0:
+            ch2 = (r + u) / (2.0 * r)
+            s2 = v * v / (2.0 * r * (r + u))
+        else:
+            ch2 = v * v / (2.0 * r * (r - u))
+            s2 = (r - u) / (2.0 * r)
+        f3 = (1.0 - mp) * e_block[p]
+        f4 = math.sqrt(ch2 * (1.0 + 3.0 * s2) * (step / (r + step)))
+        f5 = math.log1p(r / step)
+        f6 = lnd[p]
+        if not math.isfinite(f3):
+            f3 = 0.0
+        if not math.isfinite(f6):
+            f6 = 0.0
+        z = (grain_z[g] + (f3 - mean[3]) / scale[3] * coef[3] + (f4 - mean[4]) / scale[4] * coef[4]
+             + (f5 - mean[5]) / scale[5] * coef[5] + (f6 - mean[6]) / scale[6] * coef[6])
+        z = min(max(z, -40.0), 40.0)
+        val = 1.0 / (1.0 + math.exp(-z))
+        fld[p] = val
+        tau_out[p] = tau_g[g]
+        # the region of the peak search: the same test as np.hypot(...) <= horizon, hypot only near the edge
+        inside = r2 < h2 * (1.0 - 1e-12)
+        if not inside and r2 <= h2 * (1.0 + 1e-12):
+            inside = math.hypot(dx, dy) <= horizon
+        if inside:
+            pv[m] = val
+            px[m] = x[p]
+            py[m] = y[p]
+            m += 1
+    return m

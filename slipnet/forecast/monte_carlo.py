@@ -43,7 +43,8 @@ from slipnet.crystal.orientation import quat_conjugate, quat_multiply
 from slipnet.crystal.perturb import perturb_sample
 from slipnet.forecast._core import _start_grain, _trace_all
 from slipnet.forecast._geometry import _Crystal
-from slipnet.forecast._mc_arrays import BarrierPlan, rank_pairs
+from slipnet.forecast._kernels import greedy_peaks
+from slipnet.forecast._mc_arrays import BarrierPlan, FieldPlan, rank_pairs
 from slipnet.forecast._window import forecast_window
 from slipnet.forecast.features import MapFieldPlan, field_peaks, window_features
 from slipnet.forecast.localise import _coords, _GridShim, predict_field, site_probability
@@ -141,11 +142,13 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     win = forecast_window(gg, geo, tip, opts.horizon + drop_r + spread) if gg is not None else None
     memo: dict = {}
     keep = stress_given or not noise.resolve_stress
-    plan = None
+    plan = fplan = None
     if win is not None and weights is not None and inputs is not None and mode == "map" and crack is None:
         # the geometry of the window once; each sample then costs its grain terms and one kernel pass
         plan = MapFieldPlan(gg, geo, win, tip, opts.d_ref, load, systems)
         field_model = weights.model(mode, "field")
+        fplan = FieldPlan(plan)
+        plan_solid = plan.solid.reshape(plan.shape)
     # the nominal grain pairs, sorted by code, for a look-up of each sample's ranking in array passes
     code_base = int(geo.n_grains) + 1
     nom_code = np.array([a * code_base + c for a, c in uniq], np.int64)
@@ -185,8 +188,13 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             kw = dict(mode=mode, stress_amplitude=amplitude, crack=crack_s, systems=systems, free_edges=free_edges,
                       stress_ratio=ratio, cyclic_field=inputs.cyclic_field if mode == "cyclic" else cyclic_field,
                       memo=memo if w is win else None)
-            if plan is not None and w is win:
-                inp, fld = plan.sample(q, load if keep else ld, t, opts.d_ref, field_model, dr["rep"])
+            peaks = None
+            if fplan is not None and w is win:
+                tau_w, fld, pv, px, py = fplan.sample(q, load if keep else ld, t, opts.d_ref, field_model, dr["rep"],
+                                                     opts.horizon)
+                solid_w, window = plan_solid, plan.window
+                if ns:
+                    peaks = _peaks(pv, px, py, max(ns, top_k), weights.site_separation_um)
             else:
                 with solve_lock:  # parallel kernels of the stress steps: one thread at a time if they must be
                     if keep:
@@ -195,22 +203,23 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                                               mean_quats=q, point_rotation=rot, **kw)
                     else:  # a solve per sample on the rotated map (MonteCarloNoise.resolve_stress)
                         inp = window_features(_rotated_graph(gg, q), geo, w, t, opts.d_ref, ld, **kw)
-            if plan is None or w is not win:
                 fld = predict_field(inp, weights, dr["rep"])
-            r0, _r1, c0, _c1 = inp.window
-            x, y = _coords(geo, inp.window)
+                tau_w, solid_w, window = inp.tau, inp.solid, inp.window
+            r0, r1, c0, c1 = window
+            x, y = _coords(geo, window)
             if ns:
                 out["p_hit"] = site_probability(fld[site_ij[0] - r0, site_ij[1] - c0], weights, mode, dr["rep"])
-                region = inp.solid & (np.hypot(x - t[0], y - t[1]) <= opts.horizon)
-                pk = field_peaks(fld, region, _GridShim(x, y), max(ns, top_k), weights.site_separation_um)
+                if peaks is None:
+                    region = solid_w & (np.hypot(x - t[0], y - t[1]) <= opts.horizon)
+                    peaks = field_peaks(fld, region, _GridShim(x, y), max(ns, top_k), weights.site_separation_um)
+                pk = peaks
                 if len(pk):
                     d2 = (sxy[:, 0, None] - pk[None, :, 0]) ** 2 + (sxy[:, 1, None] - pk[None, :, 1]) ** 2
                     near = d2 <= hit_r ** 2
                     out["present"] = near.any(axis=1).astype(float)
                     out["site_top"] = near[:, :top_k].any(axis=1).astype(float)
             if nb:
-                r0, r1, c0, c1 = inp.window
-                xb = bar_plan.features(fld, inp.tau, geo.labels[r0:r1, c0:c1], inp.solid, x, y, cry)
+                xb = bar_plan.features(fld, tau_w, geo.labels[r0:r1, c0:c1], solid_w, x, y, cry)
                 out["p_drop"] = weights.model(mode, "barriers").probability(xb, dr["rep"])
         seg = main.segments
         end = (seg[-1]["x1_um"], seg[-1]["y1_um"]) if seg else (t[0], t[1])
@@ -282,6 +291,15 @@ def _rotation(q_old: np.ndarray, q_new: np.ndarray) -> np.ndarray:
     if ok.any():
         dq[ok] = quat_multiply(q_new[ok], quat_conjugate(q_old[ok]))
     return dq
+
+
+def _peaks(values: np.ndarray, x: np.ndarray, y: np.ndarray, k: int, separation_um: float) -> np.ndarray:
+    """:func:`slipnet.forecast.features.field_peaks` of points already cut to the region, ``(≤k, 2)`` µm."""
+    if values.size == 0 or k <= 0:
+        return np.zeros((0, 2))
+    out = np.zeros((int(k), 2))
+    n = greedy_peaks(values, np.ones(values.size, np.bool_), x, y, int(k), float(separation_um) ** 2, out)
+    return out[:n].copy()
 
 
 def _holds(geo, win, t, radius: float) -> bool:
