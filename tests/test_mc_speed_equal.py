@@ -118,3 +118,12 @@ def test_field_plan_equals_map_field_plan(poly_gg):
         np.testing.assert_array_equal(px, x[region])
         np.testing.assert_array_equal(py, y[region])
         np.testing.assert_allclose(pv, want[region], rtol=1e-12, atol=1e-14)
+        # with a mask of needed points: the same numbers there and within the horizon, 0 elsewhere
+        need = rng.random(plan.lab.size) < 0.2
+        tau_n, got_n, pv_n, _px, _py = fast.sample(q, ld, tip + dt, (1.0, 0.0), model, rep, horizon, need)
+        keep = need.reshape(plan.shape) | region
+        assert (~keep & want_inp.solid).sum() > 100
+        np.testing.assert_array_equal(got_n[keep], got[keep])
+        np.testing.assert_array_equal(tau_n[keep], tau[keep])
+        assert np.all(got_n[~keep] == 0.0) and np.all(tau_n[~keep] == 0.0)
+        np.testing.assert_array_equal(pv_n, pv)

@@ -233,11 +233,13 @@ class FieldPlan:
         self.at_used, self.at_a, self.at_b = pos[p.used], pos[self.pa], pos[self.pb]
         self.cnt = np.bincount(p.lab_solid, minlength=p.ng).astype(float)
 
-    def sample(self, mean_quats, load_axis, tip, direction, model, replicate, horizon: float):
+    def sample(self, mean_quats, load_axis, tip, direction, model, replicate, horizon: float, need=None):
         """``(tau, field, peak_values, peak_x, peak_y)`` of one sample on the plan's window.
 
         ``tau`` and ``field`` are the window's ``(ny, nx)`` arrays; the ``peak_*`` arrays hold the
-        metal points within ``horizon`` (µm) of ``tip``, in row-major order.
+        metal points within ``horizon`` (µm) of ``tip``, in row-major order. With ``need`` (a flat
+        bool mask of the window) the field and τ are computed only there and within the horizon
+        (0 elsewhere): the points a sample reads.
         """
         from slipnet.forecast._geometry import _matrices
         from slipnet.forecast.features import FEATURES, _neighbour_mean_edges
@@ -285,19 +287,22 @@ class FieldPlan:
         n = p.lab.size
         fld, tau = np.empty(n), np.empty(n)
         pv, px, py = np.empty(n), np.empty(n), np.empty(n)
-        m = _mc_map_field(p.lab, p.solid, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z,
+        if need is None:
+            need = p.solid
+        m = _mc_map_field(p.lab, p.solid, need, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z,
                           np.where(np.isfinite(tau_g), tau_g, 0.0), mp_sorted, float(tip[0]), float(tip[1]),
                           float(d[0]), float(d[1]), p.step, mean7, scale7, coef7, float(horizon), fld, tau, pv, px, py)
         return tau.reshape(p.shape), fld.reshape(p.shape), pv[:m], px[:m], py[:m]
 
 
 @nb.njit(cache=True, nogil=True)
-def _mc_map_field(lab, solid, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorted, tx, ty, d0, d1, step, mean,
+def _mc_map_field(lab, solid, need, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorted, tx, ty, d0, d1, step, mean,
                   scale, coef, horizon, fld, tau_out, pv, px, py):
     """:func:`slipnet.forecast._kernels.map_field` with the grain terms summed beforehand (``grain_z``).
 
     Also writes the metal points within ``horizon`` of the tip (as ``np.hypot(...) <= horizon``
-    decides) into ``pv, px, py`` in row-major order and returns their number. Releases the GIL.
+    decides) into ``pv, px, py`` in row-major order and returns their number. Points beyond the
+    horizon are computed only where ``need`` is set (0 elsewhere). Releases the GIL.
     """
     h2 = horizon * horizon
     # (f − mean)/scale·coef as (f − mean)·a: multiplications, the divisions taken out of the loop
@@ -309,11 +314,19 @@ def _mc_map_field(lab, solid, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_s
             fld[p] = 0.0
             tau_out[p] = 0.0
             continue
-        g = lab[p]
-        mp = mp_sorted[pair_pos[p]] if pair_pos[p] >= 0 else 1.0
         dx = x[p] - tx
         dy = y[p] - ty
         r2 = dx * dx + dy * dy
+        # the region of the peak search: the same test as np.hypot(...) <= horizon, hypot only near the edge
+        inside = r2 < h2 * (1.0 - 1e-12)
+        if not inside and r2 <= h2 * (1.0 + 1e-12):
+            inside = math.hypot(dx, dy) <= horizon
+        if not inside and not need[p]:
+            fld[p] = 0.0
+            tau_out[p] = 0.0
+            continue
+        g = lab[p]
+        mp = mp_sorted[pair_pos[p]] if pair_pos[p] >= 0 else 1.0
         r = math.sqrt(r2)
         u = dx * d0 + dy * d1
         v = dx * d1 * -1.0 + dy * d0
@@ -338,10 +351,6 @@ def _mc_map_field(lab, solid, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_s
         val = 1.0 / (1.0 + math.exp(-z))
         fld[p] = val
         tau_out[p] = tau_g[g]
-        # the region of the peak search: the same test as np.hypot(...) <= horizon, hypot only near the edge
-        inside = r2 < h2 * (1.0 - 1e-12)
-        if not inside and r2 <= h2 * (1.0 + 1e-12):
-            inside = math.hypot(dx, dy) <= horizon
         if inside:
             pv[m] = val
             px[m] = x[p]

@@ -149,6 +149,7 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         field_model = weights.model(mode, "field")
         fplan = FieldPlan(plan)
         plan_solid = plan.solid.reshape(plan.shape)
+        need = None  # set below, once the sites are known
     # the nominal grain pairs, sorted by code, for a look-up of each sample's ranking in array passes
     code_base = int(geo.n_grains) + 1
     nom_code = np.array([a * code_base + c for a, c in uniq], np.int64)
@@ -157,6 +158,9 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     class_memo: dict = {}
     bar_plan = BarrierPlan(fc.barriers, fc.crossings, geo, drop_r) if (nb and weights is not None) else None
     site_ij = np.asarray(gg.omap.index_of(sxy[:, 0], sxy[:, 1])) if (ns and gg is not None) else None
+    if fplan is not None:
+        # beyond a sample's horizon only the nominal sites and the barriers' surroundings are read
+        need = _needed_points(plan, geo, fc.barriers, site_ij, drop_r)
 
     def one(s: int, dr: dict) -> dict:
         q, ld, t = dr["q"], dr["ld"], dr["t"]
@@ -191,7 +195,7 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             peaks = None
             if fplan is not None and w is win:
                 tau_w, fld, pv, px, py = fplan.sample(q, load if keep else ld, t, opts.d_ref, field_model, dr["rep"],
-                                                     opts.horizon)
+                                                     opts.horizon, need)
                 solid_w, window = plan_solid, plan.window
                 if ns:
                     peaks = _peaks(pv, px, py, max(ns, top_k), weights.site_separation_um)
@@ -291,6 +295,19 @@ def _rotation(q_old: np.ndarray, q_new: np.ndarray) -> np.ndarray:
     if ok.any():
         dq[ok] = quat_multiply(q_new[ok], quat_conjugate(q_old[ok]))
     return dq
+
+
+def _needed_points(plan, geo, barriers, site_ij, drop_r: float) -> np.ndarray:
+    """Flat mask of the plan's window: the metal points within the drop radius (and two steps) of a
+    nominal barrier's crossing point, and the nominal sites' points."""
+    r0, _r1, c0, _c1 = plan.window
+    need = np.zeros(plan.lab.size, bool)
+    reach2 = (drop_r + 2.0 * max(geo.step, geo.rs)) ** 2
+    for bx, by in zip(barriers["x_um"].to_numpy(float), barriers["y_um"].to_numpy(float), strict=True):  # tens
+        need |= (plan.x - bx) ** 2 + (plan.y - by) ** 2 <= reach2
+    if site_ij is not None and len(site_ij[0]):
+        need[(np.asarray(site_ij[0]) - r0) * plan.shape[1] + (np.asarray(site_ij[1]) - c0)] = True
+    return need & plan.solid
 
 
 def _peaks(values: np.ndarray, x: np.ndarray, y: np.ndarray, k: int, separation_um: float) -> np.ndarray:
