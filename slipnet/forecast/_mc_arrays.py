@@ -258,13 +258,16 @@ class FieldPlan:
         jj = lc[:, 0] ** 2 * lc[:, 1] ** 2 + lc[:, 1] ** 2 * lc[:, 2] ** 2 + lc[:, 2] ** 2 * lc[:, 0] ** 2
         eratio = np.zeros(p.ng)
         eratio[p.used] = 1.0 / (self.s11 - 2.0 * (self.s11 - self.s12 - 0.5 * self.s44) * jj) / self.e_hill
-        grain_tau = np.zeros((p.ng, tau_s.shape[1]))
-        grain_tau[p.used] = np.abs(tau_s) / np.where(tau_s >= 0, self.crss, self.crss_rev) * eratio[p.used, None]
-        tau_g = grain_tau.max(axis=1)
+        # the grain terms of the grains on the window only (the others are 0, their best system 0)
+        tau_u = np.abs(tau_s) / np.where(tau_s >= 0, self.crss, self.crss_rev) * eratio[p.used, None]
+        tau_g = np.zeros(p.ng)
+        tau_g[p.used] = tau_u.max(axis=1)
         tg = np.where(self.cnt > 0, tau_g, np.nan)
         excess = np.nan_to_num(tg - _neighbour_mean_edges(p.ea, p.eb, p.ew, tg))
         if self.pa.size:
-            sa = np.argmax(grain_tau, axis=1)[self.pa]
+            best = np.zeros(p.ng, np.int64)
+            best[p.used] = np.argmax(tau_u, axis=1)
+            sa = best[self.pa]
             na = n_s[self.at_a, sa]
             da = d_s[self.at_a, sa]
             mp_sorted = np.abs(np.matmul(n_s[self.at_b], na[:, :, None])[..., 0]
