@@ -25,11 +25,16 @@ score: :mod:`slipnet.validation`).
 How it is computed: the draws are made in batches of :data:`BATCH` samples, each sample's in the
 order above, so the stream (and every number) is that of a plain sample-by-sample loop whatever the
 batch or the number of worker threads. Each sample works on the forecast's window (the horizon of
-its tip) and reads per-grain data only for the grains in it. In map mode without a crack the
-window's geometry is prepared once and each sample's features and field are one kernel pass
-(:class:`slipnet.forecast.features.MapFieldPlan`); in the other modes each sample runs the windowed
-feature builder. The path passes (a Python loop over segments and crossings, the barrier table in
-pandas) are the larger part of a sample's cost.
+its tip) and reads per-grain data only for the grains in it. A sample keeps its results as arrays
+until the final tables: its barriers are ranked from the tracer's crossing rows in array passes
+(:func:`slipnet.forecast._mc_arrays.rank_pairs`, the numbers of
+:func:`slipnet.forecast.barriers.rank_barriers`) and the barrier features read the nominal tables
+once (``BarrierPlan``). In map mode without a crack the window's geometry is prepared once
+(:class:`slipnet.forecast.features.MapFieldPlan`, ``FieldPlan``) and each sample's field, τ and
+peak-search points are one kernel pass, beyond the horizon only where the sample reads them; in the
+other modes each sample runs the windowed feature builder. The path tracer (a Python loop over
+segments and crossings) is now the larger part of a sample's cost, and it holds the GIL: threads
+give little on it.
 """
 
 from __future__ import annotations
