@@ -167,7 +167,14 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         # beyond a sample's horizon only the nominal sites and the barriers' surroundings are read
         need = _needed_points(plan, geo, fc.barriers, site_ij, drop_r)
 
-    def one(s: int, dr: dict) -> dict:
+    def field_part(dr: dict):
+        """The map-mode field, τ and peaks of one sample (kernels that release the GIL, mostly)."""
+        tau_w, fld, pv, px, py = fplan.sample(dr["q"], load if keep else dr["ld"], dr["t"], opts.d_ref, field_model,
+                                              dr["rep"], opts.horizon, need)
+        peaks = _peaks(pv, px, py, max(ns, top_k), weights.site_separation_um) if ns else None
+        return tau_w, fld, peaks
+
+    def one(s: int, dr: dict, field=None) -> dict:
         q, ld, t = dr["q"], dr["ld"], dr["t"]
         g0 = _start_grain(geo, t, opts.d_ref)
         o = replace(opts, pw=dr["pw"])
@@ -199,11 +206,8 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                       memo=memo if w is win else None)
             peaks = None
             if fplan is not None and w is win:
-                tau_w, fld, pv, px, py = fplan.sample(q, load if keep else ld, t, opts.d_ref, field_model, dr["rep"],
-                                                     opts.horizon, need)
+                tau_w, fld, peaks = field_part(dr) if field is None else field.result()
                 solid_w, window = plan_solid, plan.window
-                if ns:
-                    peaks = _peaks(pv, px, py, max(ns, top_k), weights.site_separation_um)
             else:
                 with solve_lock:  # parallel kernels of the stress steps: one thread at a time if they must be
                     if keep:
@@ -247,13 +251,23 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     rows = []
     n_workers = max(1, int(workers))
     solve_lock = _parallel_guard(n_workers)
-    pool = ThreadPoolExecutor(max_workers=n_workers) if n_workers > 1 else None
+    # in map mode this thread is one of the workers (the tracer), the pool computes the fields
+    pool = ThreadPoolExecutor(max_workers=n_workers - 1 if fplan is not None else n_workers) if n_workers > 1 else None
     try:
         for start in range(0, samples, BATCH):
             idx = range(start, min(samples, start + BATCH))
             draws = [_draw(rng, quats, load, tip, opts, bw, noise, n_rep, schmid, stress_given, geo) for _ in idx]
-            outs = list(pool.map(one, idx, draws)) if pool is not None else [one(s, d) for s, d in zip(idx, draws,
-                                                                                                       strict=True)]
+            if pool is not None and fplan is not None:
+                # map mode: the workers compute the fields (GIL released in the kernels) while this thread
+                # runs the path tracer, which holds the GIL; threads each running whole samples would
+                # spend their time waiting for it
+                fields_ = [pool.submit(field_part, d) if _holds(geo, win, d["t"], opts.horizon + drop_r) else None
+                           for d in draws]
+                outs = [one(s, d, f) for s, d, f in zip(idx, draws, fields_, strict=True)]
+            elif pool is not None:
+                outs = list(pool.map(one, idx, draws))
+            else:
+                outs = [one(s, d) for s, d in zip(idx, draws, strict=True)]
             for o in outs:  # summed in sample order: the same numbers for any number of workers
                 for k in tot:
                     tot[k] += o[k]
