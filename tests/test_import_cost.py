@@ -30,6 +30,8 @@ def _loaded_after(statement: str) -> list[str]:
     "from slipnet.grains import build_grain_graph",
     "from slipnet.maps import GrainGraph, OrientationMap, StrainSeries",
     "import slipnet.crystal",
+    # every command's parser is built before any argument is read (``slipnet --help`` included)
+    "import slipnet.cli",
 ])
 def test_import_leaves_heavy_libraries_out(statement):
     assert _loaded_after(statement) == []
@@ -43,3 +45,11 @@ def test_heavy_libraries_arrive_when_used():
                  "build_grain_graph(OrientationMap(q, np.zeros((3, 4), np.int32), np.ones((3, 4)),"
                  " np.ones((3, 4), bool), 1.0))")
     assert _loaded_after(statement) == ["pandas", "networkx"]
+
+
+def test_cli_demo_folder_is_the_demo_default():
+    # the demo command names its default folder itself so as not to import the whole study at start-up
+    from slipnet.cli.demo import DEFAULT_FOLDER
+    from slipnet.demo import DEMO_FOLDER
+
+    assert DEFAULT_FOLDER == DEMO_FOLDER

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from slipnet.demo import DEMO_FOLDER
-
-DEFAULT_FOLDER = DEMO_FOLDER
+# The same folder as slipnet.demo.DEMO_FOLDER (a test holds them equal): importing slipnet.demo here would load
+# the whole study (scipy.signal, matplotlib, pandas) on every command, about 4 s before any argument is read.
+DEFAULT_FOLDER = "slipnet-demo"
 
 
 def add(sub, parents) -> None:
