@@ -17,7 +17,7 @@ import math
 import numba as nb
 import numpy as np
 
-from slipnet.forecast.barriers import _MAX_SCHMID, _check_decay, _class_factor
+from slipnet.forecast.barriers import _MAX_SCHMID, _boundary_rows, _check_decay, _class_factor
 from slipnet.forecast.predictor import BARRIER_FEATURES
 from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights
 
@@ -56,15 +56,7 @@ def rank_pairs(rows: list[dict], weights: BarrierWeights | None = None, *, decay
     num = np.array([[r[k] for k in _RANK_KEYS] for r in rows], float)
     ga, gb, branch = num[:, 0].astype(np.int64), num[:, 1].astype(np.int64), num[:, 2].astype(np.int64)
     dist = num[:, 3]
-    lo, hi = np.minimum(ga, gb), np.maximum(ga, gb)
-    _, key = np.unique((lo - lo.min()) * (hi.max() - hi.min() + 1) + (hi - hi.min()), return_inverse=True)
-    key = key.reshape(-1)
-    n_keys = int(key.max()) + 1
-    order = np.lexsort((dist, branch))
-    _, first_pos = np.unique(key[order], return_index=True)
-    idx = order[np.sort(first_pos)]
-    on_path = np.zeros(n_keys, dtype=bool)
-    on_path[key[branch == 0]] = True
+    lo, hi, key, _, idx, on_path = _boundary_rows(ga, gb, branch, dist)
     memo = {} if class_memo is None else class_memo
     cls = np.empty(idx.size)
     for m, i in enumerate(idx):  # per barrier: tens

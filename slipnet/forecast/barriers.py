@@ -61,17 +61,7 @@ def rank_barriers(
     branch = np.asarray(col["branch"], dtype=np.int64) if "branch" in col else np.zeros(n, np.int64)
     ga, gb = col["grain_a"].astype(int), col["grain_b"].astype(int)
     # one id per boundary (unordered grain pair), numbered in array passes
-    lo, hi = np.minimum(ga, gb).astype(np.int64), np.maximum(ga, gb).astype(np.int64)
-    _, key = np.unique((lo - lo.min()) * (hi.max() - hi.min() + 1) + (hi - hi.min()), return_inverse=True)
-    key = key.reshape(-1)
-    n_keys = int(key.max()) + 1
-    # one row per boundary: its main-path crossing if any, else the first alternative crossing
-    # (main path first, then by distance; boundaries in the order their chosen rows come)
-    order = np.lexsort((col["distance_um"], branch))
-    _, first_pos = np.unique(key[order], return_index=True)
-    idx = order[np.sort(first_pos)]
-    on_path = np.zeros(n_keys, dtype=bool)
-    on_path[key[branch == 0]] = True
+    _, _, key, n_keys, idx, on_path = _boundary_rows(ga, gb, branch, col["distance_um"])
     mis = col.get("misorientation_deg", np.full(n, np.nan))
     out = pd.DataFrame({
         "boundary_id": col["boundary_id"][idx].astype(int),
@@ -106,6 +96,26 @@ def rank_barriers(
     out = out.reset_index(drop=True)
     out["rank"] = np.arange(1, len(out) + 1)
     return out[cols]
+
+
+def _boundary_rows(ga: np.ndarray, gb: np.ndarray, branch: np.ndarray, dist: np.ndarray):
+    """One id per boundary (unordered grain pair) and the crossing row that stands for it.
+
+    The row is the boundary's main-path crossing if any, else its first alternative crossing (main
+    path first, then by distance); boundaries come in the order their chosen rows come. Returns
+    ``lo, hi, key, n_keys, idx, on_path``: the ordered pair and boundary id of every crossing, the
+    number of boundaries, the chosen rows and whether each boundary lies on the main path.
+    """
+    lo, hi = np.minimum(ga, gb).astype(np.int64), np.maximum(ga, gb).astype(np.int64)
+    _, key = np.unique((lo - lo.min()) * (hi.max() - hi.min() + 1) + (hi - hi.min()), return_inverse=True)
+    key = key.reshape(-1)
+    n_keys = int(key.max()) + 1
+    order = np.lexsort((dist, branch))
+    _, first_pos = np.unique(key[order], return_index=True)
+    idx = order[np.sort(first_pos)]
+    on_path = np.zeros(n_keys, dtype=bool)
+    on_path[key[branch == 0]] = True
+    return lo, hi, key, n_keys, idx, on_path
 
 
 _MAX_SCHMID = 0.5  # largest possible Schmid factor: normalises the Schmid terms to [0, 1]
