@@ -127,3 +127,32 @@ def test_field_plan_equals_map_field_plan(poly_gg):
         np.testing.assert_array_equal(tau_n[keep], tau[keep])
         assert np.all(got_n[~keep] == 0.0) and np.all(tau_n[~keep] == 0.0)
         np.testing.assert_array_equal(pv_n, pv)
+
+
+def test_rank_pairs_and_rank_barriers_refuse_weights_without_a_positive_sum(poly_gg):
+    # one score formula (barriers.barrier_scores) behind both: the same error, not a division by zero
+    from slipnet.errors import ParameterError
+    from slipnet.forecast._mc_arrays import rank_pairs
+
+    fc = forecast_crack(poly_gg, (3.0, 70.0), (1.0, 0.0), (0.0, 1.0, 0.0), 90.0, mode="map")
+    bad = BarrierWeights(twist=0.0, transmission=0.0, boundary_class=0.0, schmid_drop=0.0)
+    with pytest.raises(ParameterError, match="positive sum"):
+        rank_barriers(fc.crossings, bad)
+    with pytest.raises(ParameterError, match="positive sum"):
+        rank_pairs(_rows(fc.crossings), bad)
+
+
+def test_rank_arrays_equals_rank_pairs(poly_gg):
+    # the column form a tracer kernel can call gives the ranking of the dict rows
+    from slipnet.forecast._mc_arrays import _RANK_KEYS, rank_arrays, rank_pairs
+    from slipnet.forecast.barriers import _class_factor
+    from slipnet.forecast.types import CLASS_FACTORS
+
+    fc = forecast_crack(poly_gg, (3.0, 70.0), (1.0, 0.0), (0.0, 1.0, 0.0), 90.0, mode="map", max_branches=6)
+    cx = fc.crossings
+    cls = np.array([_class_factor(str(c), CLASS_FACTORS) for c in cx["boundary_class"]])
+    got = rank_arrays(*(cx[k].to_numpy() for k in _RANK_KEYS), cls, BarrierWeights(), decay_length_um=50.0)
+    want = rank_pairs(_rows(cx), BarrierWeights(), decay_length_um=50.0)
+    assert got["lo"].size >= 3
+    for k in want:
+        np.testing.assert_array_equal(got[k], want[k])

@@ -17,7 +17,7 @@ import math
 import numba as nb
 import numpy as np
 
-from slipnet.forecast.barriers import _MAX_SCHMID, _boundary_rows, _check_decay, _class_factor
+from slipnet.forecast.barriers import _boundary_rows, _check_decay, _class_factor, barrier_scores
 from slipnet.forecast.predictor import BARRIER_FEATURES
 from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights
 
@@ -46,36 +46,57 @@ def rank_pairs(rows: list[dict], weights: BarrierWeights | None = None, *, decay
         ``lo``, ``hi`` (the unordered grain pair, int64), ``on_path`` (bool), ``boundary_id``
         (int64) and ``barrier_score`` of each barrier, sorted as the rows of ``rank_barriers``.
     """
-    w = weights or BarrierWeights()
     cf = CLASS_FACTORS if class_factors is None else class_factors
-    decay = _check_decay(decay_length_um)
-    n = len(rows)
-    if n == 0:
-        e = np.zeros(0, np.int64)
-        return {"lo": e, "hi": e, "on_path": np.zeros(0, bool), "boundary_id": e, "barrier_score": np.zeros(0)}
+    if len(rows) == 0:
+        return rank_arrays(*(np.zeros(0),) * 10, weights, decay_length_um=decay_length_um)
     num = np.array([[r[k] for k in _RANK_KEYS] for r in rows], float)
-    ga, gb, branch = num[:, 0].astype(np.int64), num[:, 1].astype(np.int64), num[:, 2].astype(np.int64)
-    dist = num[:, 3]
-    lo, hi, key, _, idx, on_path = _boundary_rows(ga, gb, branch, dist)
     memo = {} if class_memo is None else class_memo
-    cls = np.empty(idx.size)
-    for m, i in enumerate(idx):  # per barrier: tens
-        c = rows[i]["boundary_class"]
+    cls = np.empty(len(rows))
+    for m, r in enumerate(rows):  # per crossing: tens; the class names repeat, each looked up once
+        c = r["boundary_class"]
         f = memo.get(c)
         if f is None:
             f = memo[c] = _class_factor(str(c), cf)
         cls[m] = f
+    return rank_arrays(*num.T, cls, weights, decay_length_um=decay_length_um)
+
+
+def rank_arrays(grain_a: np.ndarray, grain_b: np.ndarray, branch: np.ndarray, distance_um: np.ndarray,
+                twist_deg: np.ndarray, m_prime: np.ndarray, schmid_in: np.ndarray, schmid_out: np.ndarray,
+                boundary_id: np.ndarray, term_class: np.ndarray, weights: BarrierWeights | None = None, *,
+                decay_length_um: float = np.inf) -> dict:
+    """:func:`rank_pairs` of crossings given as one array per column (a tracer kernel's output).
+
+    Parameters
+    ----------
+    grain_a, grain_b, branch, distance_um, twist_deg, m_prime, schmid_in, schmid_out, boundary_id
+        One entry per crossing, as the columns of the crossing table (µm, degrees).
+    term_class
+        Per crossing, the class factor of its boundary class.
+    weights, decay_length_um
+        As :func:`slipnet.forecast.barriers.rank_barriers`.
+
+    Returns
+    -------
+    dict
+        As :func:`rank_pairs`.
+    """
+    w = weights or BarrierWeights()
+    decay = _check_decay(decay_length_um)
+    if np.size(grain_a) == 0:
+        e = np.zeros(0, np.int64)
+        return {"lo": e, "hi": e, "on_path": np.zeros(0, bool), "boundary_id": e, "barrier_score": np.zeros(0)}
+    ga, gb = np.asarray(grain_a).astype(np.int64), np.asarray(grain_b).astype(np.int64)
+    dist = np.asarray(distance_um, float)
+    lo, hi, key, _, idx, on_path = _boundary_rows(ga, gb, np.asarray(branch).astype(np.int64), dist)
     d = dist[idx]
-    t_twist = np.clip(num[idx, 4] / 90.0, 0.0, 1.0)
-    t_trans = np.clip(1.0 - num[idx, 5], 0.0, 1.0)
-    t_drop = np.clip((num[idx, 6] - num[idx, 7]) / _MAX_SCHMID, 0.0, 1.0)
-    wsum = w.twist + w.transmission + w.boundary_class + w.schmid_drop
-    raw = (w.twist * t_twist + w.transmission * t_trans + w.boundary_class * cls + w.schmid_drop * t_drop) / wsum
-    score = np.exp(-d / decay) * raw
+    score = barrier_scores(np.asarray(twist_deg, float)[idx], np.asarray(m_prime, float)[idx],
+                           np.asarray(schmid_in, float)[idx], np.asarray(schmid_out, float)[idx],
+                           np.asarray(term_class, float)[idx], d, w, decay)[4]
     rank = np.lexsort((d, -score))  # score descending, then distance; stable as the table's sort
     sel = idx[rank]
-    return {"lo": lo[sel], "hi": hi[sel], "on_path": on_path[key[sel]], "boundary_id": num[sel, 8].astype(np.int64),
-            "barrier_score": score[rank]}
+    return {"lo": lo[sel], "hi": hi[sel], "on_path": on_path[key[sel]],
+            "boundary_id": np.asarray(boundary_id).astype(np.int64)[sel], "barrier_score": score[rank]}
 
 
 class BarrierPlan:

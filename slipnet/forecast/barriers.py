@@ -75,27 +75,71 @@ def rank_barriers(
         "x_um": col["x_um"][idx].astype(float), "y_um": col["y_um"][idx].astype(float),
         "branches": _branch_lists(key, branch, n_keys)[key[idx]],
     })
-    out["term_twist"] = np.clip(out["twist_deg"].to_numpy() / 90.0, 0.0, 1.0)
-    out["term_transmission"] = np.clip(1.0 - out["m_prime"].to_numpy(), 0.0, 1.0)
     which, classes = pd.factorize(out["boundary_class"])  # the few distinct classes, looked up once each
-    out["term_class"] = np.array([_class_factor(str(c), cf) for c in classes], dtype=float)[which]
-    out["term_schmid_drop"] = np.clip((out["schmid_in"].to_numpy() - out["schmid_out"].to_numpy()) / _MAX_SCHMID,
-                                      0.0, 1.0)
-    out["relevance"] = np.exp(-out["distance_um"] / decay_length_um)
+    t_class = np.array([_class_factor(str(c), cf) for c in classes], dtype=float)[which]
+    t_twist, t_trans, t_drop, relevance, score = barrier_scores(
+        out["twist_deg"].to_numpy(float), out["m_prime"].to_numpy(float), out["schmid_in"].to_numpy(float),
+        out["schmid_out"].to_numpy(float), t_class, out["distance_um"].to_numpy(float), w, decay_length_um)
+    out["term_twist"] = t_twist
+    out["term_transmission"] = t_trans
+    out["term_class"] = t_class
+    out["term_schmid_drop"] = t_drop
+    out["relevance"] = relevance
     out["weight_twist"] = w.twist
     out["weight_transmission"] = w.transmission
     out["weight_class"] = w.boundary_class
     out["weight_schmid_drop"] = w.schmid_drop
-    wsum = w.twist + w.transmission + w.boundary_class + w.schmid_drop
-    if wsum <= 0:
-        raise ParameterError(f"barrier weights should have a positive sum; got {w}")
-    raw = (w.twist * out["term_twist"] + w.transmission * out["term_transmission"]
-           + w.boundary_class * out["term_class"] + w.schmid_drop * out["term_schmid_drop"]) / wsum
-    out["barrier_score"] = out["relevance"] * raw
+    out["barrier_score"] = score
     out = out.sort_values(["barrier_score", "distance_um"], ascending=[False, True], kind="stable")
     out = out.reset_index(drop=True)
     out["rank"] = np.arange(1, len(out) + 1)
     return out[cols]
+
+
+def barrier_scores(twist_deg: np.ndarray, m_prime: np.ndarray, schmid_in: np.ndarray, schmid_out: np.ndarray,
+                   term_class: np.ndarray, distance_um: np.ndarray, weights: BarrierWeights, decay_length_um: float):
+    """The terms, relevance and score of each barrier: the formula of :func:`rank_barriers` in one place.
+
+    Parameters
+    ----------
+    twist_deg, m_prime, schmid_in, schmid_out
+        Per barrier: twist angle (degrees), |m′| and the effective Schmid factors in and out.
+    term_class
+        Per barrier, the class factor (:data:`CLASS_FACTORS`).
+    distance_um
+        Per barrier, distance along the path (µm).
+    weights
+        Term weights; their sum must be positive.
+    decay_length_um
+        Relevance decay length (µm, checked by the caller; ``inf`` for no decay).
+
+    Returns
+    -------
+    term_twist, term_transmission, term_schmid_drop, relevance, barrier_score : ndarray
+        Each in [0, 1].
+
+    Raises
+    ------
+    ParameterError
+        If the weights do not sum to a positive number.
+
+    Examples
+    --------
+    >>> one = np.ones(1)
+    >>> barrier_scores(45.0 * one, 0.5 * one, 0.4 * one, 0.3 * one, one, 0 * one, BarrierWeights(), np.inf)[4]
+    array([0.53333333])
+    """
+    w = weights
+    wsum = w.twist + w.transmission + w.boundary_class + w.schmid_drop
+    if not wsum > 0:
+        raise ParameterError(f"barrier weights should have a positive sum (raise at least one weight); got {w}")
+    t_twist = np.clip(twist_deg / 90.0, 0.0, 1.0)
+    t_trans = np.clip(1.0 - m_prime, 0.0, 1.0)
+    t_drop = np.clip((schmid_in - schmid_out) / _MAX_SCHMID, 0.0, 1.0)
+    relevance = np.exp(-distance_um / decay_length_um)
+    raw = (w.twist * t_twist + w.transmission * t_trans + w.boundary_class * term_class
+           + w.schmid_drop * t_drop) / wsum
+    return t_twist, t_trans, t_drop, relevance, relevance * raw
 
 
 def _boundary_rows(ga: np.ndarray, gb: np.ndarray, branch: np.ndarray, dist: np.ndarray):
