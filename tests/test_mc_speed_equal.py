@@ -156,3 +156,89 @@ def test_rank_arrays_equals_rank_pairs(poly_gg):
     assert got["lo"].size >= 3
     for k in want:
         np.testing.assert_array_equal(got[k], want[k])
+
+
+def _peak_case(poly_gg):
+    from slipnet.forecast._geometry import geometry_of
+    from slipnet.forecast._mc_arrays import FieldPlan
+    from slipnet.forecast._window import forecast_window
+    from slipnet.forecast.features import MapFieldPlan
+
+    geo, systems, wts = geometry_of(poly_gg), slip_systems("bcc"), load_weights()
+    tip = np.array([4.0, 70.0])
+    win = forecast_window(poly_gg, geo, tip, 60.0 + wts.drop_radius_um + 7.0)
+    plan = MapFieldPlan(poly_gg, geo, win, tip, (1.0, 0.0), (0.0, 1.0, 0.0), systems)
+    return plan, FieldPlan(plan), wts.model("map", "field"), tip
+
+
+def test_sample_peaks_equals_the_full_field_and_greedy_search(poly_gg):
+    # the lazy tile search gives the peaks of greedy_peaks over every point of the horizon, and the
+    # field and τ of the full pass where the caller reads them
+    from dataclasses import replace
+
+    from slipnet.crystal import perturb_sample
+    from slipnet.forecast.monte_carlo import _peaks
+
+    plan, fast, model, tip = _peak_case(poly_gg)
+    rng = np.random.default_rng(4)
+    need = (rng.random(plan.lab.size) < 0.05) & plan.solid
+    flat = replace(model, coef=np.zeros_like(model.coef), bootstrap_coef=np.zeros((0, model.coef.size)))
+    # only the grain terms: the field is constant per grain, so most points tie with others
+    steps = replace(flat, coef=np.where(np.array(model.features) == "tau", 3.0, 0.0))
+    evaluated, found = [], []
+    for i in range(6):
+        q, ld, dt = perturb_sample(rng, np.asarray(poly_gg.mean_quats), 2.0, (0.0, 1.0, 0.0), 3.0, tip, 1.5)
+        t = tip + dt if i else np.array([plan.x[0] + 20.0, plan.y[0] + 20.0])  # a tip inside a tile too
+        for mdl, rep in ((model, None), (model, i), (flat, None), (steps, None)):
+            tau, fld, pv, px, py = fast.sample(q, ld, t, (1.0, 0.2), mdl, rep, 60.0, need)
+            for k, sep in ((10, 12.0), (1, 12.0), (30, 4.0), (4, 0.0), (6, 200.0)):
+                want = _peaks(pv, px, py, k, sep)
+                tau2, fld2, got = fast.sample_peaks(q, ld, t, (1.0, 0.2), mdl, rep, 60.0, need, k, sep)
+                np.testing.assert_array_equal(got, want)
+                keep = need.reshape(plan.shape)
+                np.testing.assert_array_equal(fld2[keep], fld[keep])
+                np.testing.assert_array_equal(tau2[keep], tau[keep])
+                done = (fld2 != 0) & ~keep  # what the search evaluated equals the full pass there
+                np.testing.assert_array_equal(fld2[done], fld[done])
+                evaluated.append(done.sum() / pv.size)
+                found.append(len(want))
+        assert fast.sample_peaks(q, ld, t, (1.0, 0.2), model, None, 60.0, need, 0, 12.0)[2] is None
+    assert max(found) == 30 and min(found) == 1  # k reached, and a separation wider than the horizon
+    assert np.median(evaluated) < 0.6  # the search skips tiles, so the equality above is not a full pass
+
+
+def test_grain_terms_kernel_equals_the_numpy_grain_terms(poly_gg):
+    # the per-grain part of the logit, kernel against the numpy steps of MapFieldPlan.sample
+    from slipnet.crystal import perturb_sample
+    from slipnet.forecast._geometry import _matrices
+    from slipnet.forecast.features import FEATURES, _neighbour_mean_edges, _transmission_pairs, _youngs_ratio
+
+    plan, fast, model, tip = _peak_case(poly_gg)
+    rng = np.random.default_rng(9)
+    q, ld, _dt = perturb_sample(rng, np.asarray(poly_gg.mean_quats), 2.0, (0.0, 1.0, 0.0), 3.0, tip, 1.5)
+    q[plan.used[0]] = np.nan  # an undefined orientation is read as the identity
+    grain_z, tau_f, mp_sorted, *_terms = fast._grain_part(q, ld, model, 3)
+    ld = ld / np.linalg.norm(ld)
+    sy, used = plan.systems, plan.used
+    qu = np.where(np.all(np.isfinite(q[used]), axis=1)[:, None], q[used], [1.0, 0.0, 0.0, 0.0])
+    g = _matrices(qu)
+    schmid = (np.einsum("sk,gkj->gsj", sy.normals, g) @ ld) * (np.einsum("sk,gkj->gsj", sy.directions, g) @ ld)
+    er = np.zeros(plan.ng)
+    er[used] = _youngs_ratio(np.where(np.isfinite(q[used]), q[used], [1.0, 0.0, 0.0, 0.0]), ld, plan.constants,
+                             _matrices)
+    gt = np.zeros((plan.ng, schmid.shape[1]))
+    gt[used] = np.abs(schmid) / np.where(schmid >= 0, sy.crss, sy.crss_reverse) * er[used, None]
+    tau_g = gt.max(axis=1)
+    cnt = np.bincount(plan.lab_solid, minlength=plan.ng)
+    tg = np.where(cnt > 0, tau_g, np.nan)
+    excess = np.nan_to_num(tg - _neighbour_mean_edges(plan.ea, plan.eb, plan.ew, tg))
+    c, b = model.bootstrap_coef[3], model.bootstrap_intercept[3]
+    want = np.full(plan.ng, b)
+    for i, v in enumerate((tau_g, er, excess)):
+        k = list(model.features).index(FEATURES["map"][i])
+        want += (v - model.mean[k]) / model.scale[k] * c[k]
+    np.testing.assert_allclose(grain_z, want, rtol=1e-12, atol=1e-12)
+    np.testing.assert_allclose(tau_f, tau_g, rtol=1e-12, atol=1e-15)
+    q_ok = np.where(np.isfinite(q), q, [1.0, 0.0, 0.0, 0.0])
+    _keys, vals = _transmission_pairs(plan.ea, plan.eb, q_ok, np.argmax(gt, axis=1), sy)
+    np.testing.assert_allclose(mp_sorted, vals[plan.order], rtol=1e-12, atol=1e-15)

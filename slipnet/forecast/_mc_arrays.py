@@ -17,6 +17,7 @@ import math
 import numba as nb
 import numpy as np
 
+from slipnet.errors import ParameterError
 from slipnet.forecast.barriers import _boundary_rows, _check_decay, _class_factor, barrier_scores
 from slipnet.forecast.predictor import BARRIER_FEATURES
 from slipnet.forecast.types import CLASS_FACTORS, BarrierWeights
@@ -206,14 +207,21 @@ def _drops(field, tau, lab, solid, x, y, y0, x0, rs, st, xs, ys, ga, gb, radius,
             td[i] = (va - vb) / (abs(va) + abs(vb))
 
 
+#: Side of the square tiles (in points) of the lazy peak search: small enough that a tile's bound
+#: on the field is close to its largest value, large enough that bounding the tiles costs little.
+_TILE = 8
+
+
 class FieldPlan:
     """A :class:`slipnet.forecast.features.MapFieldPlan` with the per-sample work cut to arrays.
 
     The pair look-up of |m′| (which directed pairs the window's points read, the grains they
-    involve) is prepared once, the per-grain terms of the logit are summed per grain instead of
-    per point, and one kernel pass gives the field, τ and the points within the horizon of the
-    sample's tip (for the peak search) together. The field equals ``MapFieldPlan.sample`` to
-    round-off (tested).
+    involve) is prepared once, the per-grain terms of the logit are summed per grain in one kernel
+    (:func:`_grain_terms`) instead of per point, and one kernel pass gives the field, τ and the
+    points within the horizon of the sample's tip (for the peak search) together. The field equals
+    ``MapFieldPlan.sample`` to round-off (tested). :meth:`sample_peaks` computes the field where a
+    sample reads it and finds the peaks tile by tile, skipping the tiles whose bound on the field
+    lies below the peaks found (the same peaks as the full search, tested).
     """
 
     def __init__(self, plan) -> None:
@@ -223,12 +231,12 @@ class FieldPlan:
         p = plan
         self.normals = np.ascontiguousarray(np.asarray(p.systems.normals, float))
         self.directions = np.ascontiguousarray(np.asarray(p.systems.directions, float))
-        self.crss = np.asarray(p.systems.crss, float)
-        self.crss_rev = np.asarray(p.systems.crss_reverse, float)
+        self.crss = np.ascontiguousarray(np.asarray(p.systems.crss, float))
+        self.crss_rev = np.ascontiguousarray(np.asarray(p.systems.crss_reverse, float))
         c = p.constants
         s = np.linalg.inv(np.array([[c.c11, c.c12, c.c12], [c.c12, c.c11, c.c12], [c.c12, c.c12, c.c11]]))
-        self.s11, self.s12, self.s44 = s[0, 0], s[0, 1], 1.0 / c.c44
-        self.e_hill = voigt_reuss_hill(c)["young_hill_gpa"]
+        self.s11, self.s12, self.s44 = float(s[0, 0]), float(s[0, 1]), 1.0 / c.c44
+        self.e_hill = float(voigt_reuss_hill(c)["young_hill_gpa"])
         # the directed pairs whose |m′| the points read, in the plan's sorted order
         pairs = np.stack([p.ea, p.eb], axis=1).astype(np.int64).reshape(-1, 2)
         if pairs.size and p.keys.size:
@@ -240,11 +248,53 @@ class FieldPlan:
             self.pa, self.pb = both[sel, 0], both[sel, 1]
         else:
             self.pa = self.pb = np.zeros(0, np.int64)
-        self.grains = np.unique(np.concatenate([p.used, self.pa, self.pb]))  # every grain a sample reads
+        self.grains = np.unique(np.concatenate([p.used, self.pa, self.pb])).astype(np.int64)  # every grain read
         pos = np.full(p.ng, -1, np.int64)
         pos[self.grains] = np.arange(self.grains.size)
         self.at_used, self.at_a, self.at_b = pos[p.used], pos[self.pa], pos[self.pb]
+        self.used = np.asarray(p.used, np.int64)
         self.cnt = np.bincount(p.lab_solid, minlength=p.ng).astype(float)
+        self.ea = np.ascontiguousarray(p.ea, np.int64)
+        self.eb = np.ascontiguousarray(p.eb, np.int64)
+        self.ew = np.ascontiguousarray(p.ew, float)
+        self._coefs: dict = {}
+        self._need: tuple = (None, None)
+        self._tiles = _tiles(p, _TILE)
+
+    def _model_terms(self, model, replicate):
+        """``(mean, scale, coef, intercept)`` in the kernel's feature order, for the replicate's weights."""
+        from slipnet.forecast.features import FEATURES
+
+        key = (id(model), replicate)
+        got = self._coefs.get(key)
+        if got is not None and got[0] is model:
+            return got[1]
+        c, b = model.coef, model.intercept
+        if replicate is not None and model.bootstrap_coef.shape[0]:
+            r = int(replicate) % model.bootstrap_coef.shape[0]
+            c, b = model.bootstrap_coef[r], float(model.bootstrap_intercept[r])
+        names = FEATURES["map"]
+        mean7, scale7, coef7 = np.zeros(len(names)), np.ones(len(names)), np.zeros(len(names))
+        for k, name in enumerate(model.features):  # seven names
+            i = names.index(name)
+            mean7[i], scale7[i], coef7[i] = model.mean[k], model.scale[k], c[k]
+        terms = (mean7, scale7, coef7, float(b))
+        self._coefs[key] = (model, terms)  # one entry per replicate; a dict write is atomic between threads
+        return terms
+
+    def _grain_part(self, mean_quats, load_axis, model, replicate):
+        """The per-grain logit (grain terms summed), finite τ per grain, the pairs' |m′| and the model terms."""
+        p = self.plan
+        load = np.asarray(load_axis, float)
+        load = load / np.linalg.norm(load)
+        mean7, scale7, coef7, b = self._model_terms(model, replicate)
+        grain_z, tau_f = np.empty(p.ng), np.empty(p.ng)
+        mp_sorted = np.empty(max(self.pa.size, 1))
+        _grain_terms(np.ascontiguousarray(mean_quats, float), load, self.grains, self.normals, self.directions,
+                     self.crss, self.crss_rev, self.at_used, self.used, self.s11, self.s12, self.s44, self.e_hill,
+                     self.cnt, self.ea, self.eb, self.ew, self.pa, self.at_a, self.at_b, mean7, scale7, coef7, b,
+                     grain_z, tau_f, mp_sorted)
+        return grain_z, tau_f, mp_sorted, mean7, scale7, coef7
 
     def sample(self, mean_quats, load_axis, tip, direction, model, replicate, horizon: float, need=None):
         """``(tau, field, peak_values, peak_x, peak_y)`` of one sample on the plan's window.
@@ -254,61 +304,262 @@ class FieldPlan:
         bool mask of the window) the field and τ are computed only there and within the horizon
         (0 elsewhere): the points a sample reads.
         """
-        from slipnet.forecast._geometry import _matrices
-        from slipnet.forecast.features import FEATURES, _neighbour_mean_edges
-
         p = self.plan
-        load = np.asarray(load_axis, float)
-        load = load / np.linalg.norm(load)
-        mq = np.asarray(mean_quats, float)[self.grains]
-        q = np.where(np.all(np.isfinite(mq), axis=1)[:, None], mq, [1.0, 0.0, 0.0, 0.0])
-        g = _matrices(q)
-        n_s = np.matmul(self.normals[None], g)
-        d_s = np.matmul(self.directions[None], g)
-        u = self.at_used
-        tau_s = (n_s[u] @ load) * (d_s[u] @ load)
-        lc = g[u] @ load
-        jj = lc[:, 0] ** 2 * lc[:, 1] ** 2 + lc[:, 1] ** 2 * lc[:, 2] ** 2 + lc[:, 2] ** 2 * lc[:, 0] ** 2
-        eratio = np.zeros(p.ng)
-        eratio[p.used] = 1.0 / (self.s11 - 2.0 * (self.s11 - self.s12 - 0.5 * self.s44) * jj) / self.e_hill
-        # the grain terms of the grains on the window only (the others are 0, their best system 0)
-        tau_u = np.abs(tau_s) / np.where(tau_s >= 0, self.crss, self.crss_rev) * eratio[p.used, None]
-        tau_g = np.zeros(p.ng)
-        tau_g[p.used] = tau_u.max(axis=1)
-        tg = np.where(self.cnt > 0, tau_g, np.nan)
-        excess = np.nan_to_num(tg - _neighbour_mean_edges(p.ea, p.eb, p.ew, tg))
-        if self.pa.size:
-            best = np.zeros(p.ng, np.int64)
-            best[p.used] = np.argmax(tau_u, axis=1)
-            sa = best[self.pa]
-            na = n_s[self.at_a, sa]
-            da = d_s[self.at_a, sa]
-            mp_sorted = np.abs(np.matmul(n_s[self.at_b], na[:, :, None])[..., 0]
-                               * np.matmul(d_s[self.at_b], da[:, :, None])[..., 0]).max(axis=1)
-        else:
-            mp_sorted = np.ones(1)
-        c, b = model.coef, model.intercept
-        if replicate is not None and model.bootstrap_coef.shape[0]:
-            r = int(replicate) % model.bootstrap_coef.shape[0]
-            c, b = model.bootstrap_coef[r], float(model.bootstrap_intercept[r])
-        names = FEATURES["map"]
-        mean7, scale7, coef7 = np.zeros(len(names)), np.ones(len(names)), np.zeros(len(names))
-        for k, name in enumerate(model.features):
-            i = names.index(name)
-            mean7[i], scale7[i], coef7[i] = model.mean[k], model.scale[k], c[k]
-        grain_z = np.full(p.ng, float(b))
-        for i, v in enumerate((tau_g, eratio, excess)):  # the per-grain features, in the kernel's form
-            grain_z += (np.where(np.isfinite(v), v, 0.0) - mean7[i]) / scale7[i] * coef7[i]
+        grain_z, tau_f, mp_sorted, mean7, scale7, coef7 = self._grain_part(mean_quats, load_axis, model, replicate)
         d = np.asarray(direction, float) / np.linalg.norm(direction)
         n = p.lab.size
         fld, tau = np.empty(n), np.empty(n)
         pv, px, py = np.empty(n), np.empty(n), np.empty(n)
         if need is None:
             need = p.solid
-        m = _mc_map_field(p.lab, p.solid, need, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z,
-                          np.where(np.isfinite(tau_g), tau_g, 0.0), mp_sorted, float(tip[0]), float(tip[1]),
-                          float(d[0]), float(d[1]), p.step, mean7, scale7, coef7, float(horizon), fld, tau, pv, px, py)
+        m = _mc_map_field(p.lab, p.solid, need, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z, tau_f, mp_sorted,
+                          float(tip[0]), float(tip[1]), float(d[0]), float(d[1]), p.step, mean7, scale7, coef7,
+                          float(horizon), fld, tau, pv, px, py)
         return tau.reshape(p.shape), fld.reshape(p.shape), pv[:m], px[:m], py[:m]
+
+    def sample_peaks(self, mean_quats, load_axis, tip, direction, model, replicate, horizon: float, need, k: int,
+                     separation_um: float):
+        """``(tau, field, peaks)`` of one sample: the field where it is read and the peaks of the horizon.
+
+        Parameters
+        ----------
+        mean_quats, load_axis, tip, direction, model, replicate, horizon
+            As :meth:`sample` (tip in µm, horizon in µm).
+        need : ndarray of bool or None
+            Flat mask of the window's points whose field and τ the caller reads (None: every metal
+            point).
+        k
+            Most peaks to find; 0 returns ``None`` for the peaks.
+        separation_um
+            Least distance between two peaks, µm.
+
+        Returns
+        -------
+        tau, field : (ny, nx) ndarray
+            τ and the field at the ``need`` points and at the points the peak search evaluated
+            (0 elsewhere).
+        peaks : (≤k, 2) ndarray or None
+            The peaks (x, y) in µm: those of ``greedy_peaks`` over :meth:`sample`'s ``peak_*``
+            points (``monte_carlo._peaks``), the highest first. A tile of the horizon is evaluated
+            only while its upper bound on the field is not below the best point still allowed.
+        """
+        p = self.plan
+        if not int(k) >= 0:
+            raise ParameterError(f"k (the number of peaks) should be 0 or more; got {k}")
+        grain_z, tau_f, mp_sorted, mean7, scale7, coef7 = self._grain_part(mean_quats, load_axis, model, replicate)
+        d = np.asarray(direction, float) / np.linalg.norm(direction)
+        n = p.lab.size
+        fld, tau = np.zeros(n), np.zeros(n)
+        obj, idx = self._need
+        if obj is not need:
+            idx = np.flatnonzero(p.solid if need is None else (np.asarray(need, bool) & p.solid)).astype(np.int64)
+            self._need = (need, idx)
+        out = np.zeros((max(int(k), 1), 2))
+        t = self._tiles
+        c = _field_and_peaks(p.lab, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z, tau_f, mp_sorted,
+                             float(tip[0]), float(tip[1]), float(d[0]), float(d[1]), p.step, mean7, scale7, coef7,
+                             float(horizon), idx, t["ptr"], t["pts"], t["box"], t["f6"], t["eb"], t["g_ptr"],
+                             t["g_ids"], t["p_ptr"], t["p_ids"], int(k), float(separation_um) ** 2, fld, tau, out)
+        peaks = out[:c].copy() if k > 0 else None
+        return tau.reshape(p.shape), fld.reshape(p.shape), peaks
+
+
+def _tiles(p, size: int) -> dict:
+    """The window's metal points in square tiles of ``size`` points, with what bounds the field on each.
+
+    Per tile: its points (flat, row-major), the box of their positions (µm), the range of the
+    notch-distance feature and of the boundary-distance factor, its grains and its |m′| pair slots
+    (CSR arrays ``*_ptr``/``*_ids``). Array passes over the points, once per plan.
+    """
+    nx = p.shape[1]
+    flat = np.flatnonzero(p.solid).astype(np.int64)
+    rows, cols = flat // nx, flat % nx
+    ntc = -(-nx // size)
+    tile = (rows // size) * ntc + cols // size
+    order = np.argsort(tile, kind="stable")  # by tile, row-major within a tile
+    pts, tl = flat[order], tile[order]
+    ids, start = np.unique(tl, return_index=True)
+    nt = ids.size
+    ptr = np.append(start, pts.size).astype(np.int64)
+
+    def span(v):
+        if nt == 0:
+            return np.zeros((0, 2))
+        return np.stack([np.minimum.reduceat(v, start), np.maximum.reduceat(v, start)], axis=1)
+
+    f6 = p.lnd[pts]
+    f6 = np.where(np.isfinite(f6), f6, 0.0)  # as the kernel takes a non-finite feature
+    box = np.concatenate([span(p.x[pts]), span(p.y[pts])], axis=1) if nt else np.zeros((0, 4))
+    slot = np.repeat(np.arange(nt), np.diff(ptr))
+
+    def csr(vals, base):
+        code = np.unique(slot * base + vals)
+        t_of = code // base
+        return np.searchsorted(t_of, np.arange(nt + 1)).astype(np.int64), (code % base).astype(np.int64)
+
+    g_ptr, g_ids = csr(p.lab[pts], int(p.ng) + 1)
+    pp = p.pair_pos[pts]
+    big = int(pp.max()) + 2 if pp.size else 1
+    p_ptr, p_ids = csr(pp + 1, big)  # slot 0 stands for 'no pair' (|m′| = 1)
+    return {"ptr": ptr, "pts": pts, "box": np.ascontiguousarray(box), "f6": np.ascontiguousarray(span(f6)),
+            "eb": np.ascontiguousarray(span(p.e_block[pts])), "g_ptr": g_ptr, "g_ids": g_ids, "p_ptr": p_ptr,
+            "p_ids": p_ids - 1}
+
+
+@nb.njit(cache=True, nogil=True)
+def _grain_terms(mean_quats, load, grains, normals, directions, crss, crss_rev, at_used, used, s11, s12, s44, e_hill,
+                 cnt, ea, eb, ew, pa, at_a, at_b, mean, scale, coef, b, grain_z, tau_f, mp_sorted):
+    """The grain part of a sample's map-mode logit, in one pass over the grains it reads. Releases the GIL.
+
+    For the grains of the window (``used``): the resolved shear over the CRSS of each system
+    scaled by the directional Young's modulus ratio, its maximum τ_g and the best system; the
+    excess of τ_g over the edge-weighted mean of the neighbours; the |m′| of each read pair (best
+    system of the first grain against every system of the second). Writes ``grain_z`` =
+    ``b + Σ (f − mean)/scale·coef`` over τ_g, the modulus ratio and the excess (every grain),
+    ``tau_f`` (τ_g, 0 off the window) and ``mp_sorted``: the arithmetic of ``FieldPlan``'s numpy
+    version, product by product.
+    """
+    ng = grain_z.shape[0]
+    ngr = grains.shape[0]
+    ns = normals.shape[0]
+    gm = np.empty((ngr, 3, 3))
+    n_s = np.empty((ngr, ns, 3))
+    d_s = np.empty((ngr, ns, 3))
+    for i in range(ngr):
+        q = mean_quats[grains[i]]
+        w, x, y, z = q[0], q[1], q[2], q[3]
+        if not (math.isfinite(w) and math.isfinite(x) and math.isfinite(y) and math.isfinite(z)):
+            w, x, y, z = 1.0, 0.0, 0.0, 0.0
+        gm[i, 0, 0] = 1 - 2 * (y * y + z * z)
+        gm[i, 0, 1] = 2 * (x * y - w * z)
+        gm[i, 0, 2] = 2 * (x * z + w * y)
+        gm[i, 1, 0] = 2 * (x * y + w * z)
+        gm[i, 1, 1] = 1 - 2 * (x * x + z * z)
+        gm[i, 1, 2] = 2 * (y * z - w * x)
+        gm[i, 2, 0] = 2 * (x * z - w * y)
+        gm[i, 2, 1] = 2 * (y * z + w * x)
+        gm[i, 2, 2] = 1 - 2 * (x * x + y * y)
+        for s in range(ns):
+            for j in range(3):
+                n_s[i, s, j] = normals[s, 0] * gm[i, 0, j] + normals[s, 1] * gm[i, 1, j] + normals[s, 2] * gm[i, 2, j]
+                d_s[i, s, j] = (directions[s, 0] * gm[i, 0, j] + directions[s, 1] * gm[i, 1, j]
+                                + directions[s, 2] * gm[i, 2, j])
+    tau_g = np.zeros(ng)
+    eratio = np.zeros(ng)
+    best = np.zeros(ng, np.int64)
+    l0, l1, l2 = load[0], load[1], load[2]
+    for u in range(used.shape[0]):
+        i = at_used[u]
+        g = used[u]
+        c0 = gm[i, 0, 0] * l0 + gm[i, 0, 1] * l1 + gm[i, 0, 2] * l2
+        c1 = gm[i, 1, 0] * l0 + gm[i, 1, 1] * l1 + gm[i, 1, 2] * l2
+        c2 = gm[i, 2, 0] * l0 + gm[i, 2, 1] * l1 + gm[i, 2, 2] * l2
+        jj = c0 ** 2 * c1 ** 2 + c1 ** 2 * c2 ** 2 + c2 ** 2 * c0 ** 2
+        er = 1.0 / (s11 - 2.0 * (s11 - s12 - 0.5 * s44) * jj) / e_hill
+        eratio[g] = er
+        top = -math.inf
+        bs = 0
+        for s in range(ns):
+            ts = ((n_s[i, s, 0] * l0 + n_s[i, s, 1] * l1 + n_s[i, s, 2] * l2)
+                  * (d_s[i, s, 0] * l0 + d_s[i, s, 1] * l1 + d_s[i, s, 2] * l2))
+            tu = abs(ts) / (crss[s] if ts >= 0 else crss_rev[s]) * er
+            if tu > top:  # the first of equal maxima, as argmax
+                top = tu
+                bs = s
+        tau_g[g] = top
+        best[g] = bs
+    # the neighbours' edge-weighted mean of τ_g over the grains with metal on the crop, summed in
+    # edge order as the two bincounts of _neighbour_mean_edges
+    tg = np.empty(ng)
+    for g in range(ng):
+        tg[g] = tau_g[g] if cnt[g] > 0 else np.nan
+    num_a = np.zeros(ng)
+    num_b = np.zeros(ng)
+    den_a = np.zeros(ng)
+    den_b = np.zeros(ng)
+    for e in range(ea.shape[0]):
+        a, c = ea[e], eb[e]
+        if a >= ng or c >= ng:
+            continue
+        va, vb = tg[c], tg[a]
+        fa, fb = math.isfinite(va), math.isfinite(vb)
+        wa = ew[e] * (1.0 if fa else 0.0)
+        wb = ew[e] * (1.0 if fb else 0.0)
+        num_a[a] += wa * (va if fa else 0.0)
+        den_a[a] += wa
+        num_b[c] += wb * (vb if fb else 0.0)
+        den_b[c] += wb
+    for g in range(ng):
+        ex = 0.0
+        if ea.shape[0] > 0:
+            den = den_a[g] + den_b[g]
+            if den > 0:
+                ex = tg[g] - (num_a[g] + num_b[g]) / max(den, 1e-12)
+                if math.isnan(ex):
+                    ex = 0.0
+                elif math.isinf(ex):
+                    ex = 1.7976931348623157e308 if ex > 0 else -1.7976931348623157e308
+        z = b
+        for k in range(3):
+            v = tau_g[g] if k == 0 else (eratio[g] if k == 1 else ex)
+            if not math.isfinite(v):
+                v = 0.0
+            z += (v - mean[k]) / scale[k] * coef[k]
+        grain_z[g] = z
+        tau_f[g] = tau_g[g] if math.isfinite(tau_g[g]) else 0.0
+    if pa.shape[0] == 0:
+        mp_sorted[0] = 1.0
+    for m in range(pa.shape[0]):
+        ia, ib = at_a[m], at_b[m]
+        sa = best[pa[m]]
+        n0, n1, n2 = n_s[ia, sa, 0], n_s[ia, sa, 1], n_s[ia, sa, 2]
+        e0, e1, e2 = d_s[ia, sa, 0], d_s[ia, sa, 1], d_s[ia, sa, 2]
+        top = -math.inf
+        for s in range(ns):
+            v = abs((n_s[ib, s, 0] * n0 + n_s[ib, s, 1] * n1 + n_s[ib, s, 2] * n2)
+                    * (d_s[ib, s, 0] * e0 + d_s[ib, s, 1] * e1 + d_s[ib, s, 2] * e2))
+            if v > top:
+                top = v
+        mp_sorted[m] = top
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def _inside(r2, dx, dy, h2, horizon):
+    # the region of the peak search: the same test as np.hypot(...) <= horizon, hypot only near the edge
+    inside = r2 < h2 * (1.0 - 1e-12)
+    if not inside and r2 <= h2 * (1.0 + 1e-12):
+        inside = math.hypot(dx, dy) <= horizon
+    return inside
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def _value(p, dx, dy, r2, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step, inv_step, mean, a3, a4, a5,
+           a6):
+    """The field at point ``p`` (offset ``dx, dy`` from the tip, µm): the one formula of both kernels."""
+    g = lab[p]
+    mp = mp_sorted[pair_pos[p]] if pair_pos[p] >= 0 else 1.0
+    r = math.sqrt(r2)
+    u = dx * d0 + dy * d1
+    v = dx * d1 * -1.0 + dy * d0
+    # cos²(θ/2)·(1 + 3 sin²(θ/2)) = cos²(θ/2) + ¾ sin²θ, cos²(θ/2) in the form that keeps its
+    # digits on either side of the tip (r + u computed as v²/(r − u) where it cancels)
+    if r == 0.0:
+        shape = 1.0
+    else:
+        inv_r = 1.0 / r
+        ch2 = 0.5 * (r + u) * inv_r if u >= 0.0 else 0.5 * v * v * inv_r / (r - u)
+        shape = ch2 + 0.75 * v * v * inv_r * inv_r
+    f3 = (1.0 - mp) * e_block[p]
+    f4 = math.sqrt(shape * step / (r + step))
+    f5 = math.log1p(r * inv_step)
+    f6 = lnd[p]
+    if not math.isfinite(f3):
+        f3 = 0.0
+    if not math.isfinite(f6):
+        f6 = 0.0
+    z = grain_z[g] + (f3 - mean[3]) * a3 + (f4 - mean[4]) * a4 + (f5 - mean[5]) * a5 + (f6 - mean[6]) * a6
+    z = min(max(z, -40.0), 40.0)
+    return 1.0 / (1.0 + math.exp(-z))
 
 
 @nb.njit(cache=True, nogil=True)
@@ -333,43 +584,185 @@ def _mc_map_field(lab, solid, need, e_block, pair_pos, lnd, x, y, grain_z, tau_g
         dx = x[p] - tx
         dy = y[p] - ty
         r2 = dx * dx + dy * dy
-        # the region of the peak search: the same test as np.hypot(...) <= horizon, hypot only near the edge
-        inside = r2 < h2 * (1.0 - 1e-12)
-        if not inside and r2 <= h2 * (1.0 + 1e-12):
-            inside = math.hypot(dx, dy) <= horizon
+        inside = _inside(r2, dx, dy, h2, horizon)
         if not inside and not need[p]:
             fld[p] = 0.0
             tau_out[p] = 0.0
             continue
-        g = lab[p]
-        mp = mp_sorted[pair_pos[p]] if pair_pos[p] >= 0 else 1.0
-        r = math.sqrt(r2)
-        u = dx * d0 + dy * d1
-        v = dx * d1 * -1.0 + dy * d0
-        # cos²(θ/2)·(1 + 3 sin²(θ/2)) = cos²(θ/2) + ¾ sin²θ, cos²(θ/2) in the form that keeps its
-        # digits on either side of the tip (r + u computed as v²/(r − u) where it cancels)
-        if r == 0.0:
-            shape = 1.0
-        else:
-            inv_r = 1.0 / r
-            ch2 = 0.5 * (r + u) * inv_r if u >= 0.0 else 0.5 * v * v * inv_r / (r - u)
-            shape = ch2 + 0.75 * v * v * inv_r * inv_r
-        f3 = (1.0 - mp) * e_block[p]
-        f4 = math.sqrt(shape * step / (r + step))
-        f5 = math.log1p(r * inv_step)
-        f6 = lnd[p]
-        if not math.isfinite(f3):
-            f3 = 0.0
-        if not math.isfinite(f6):
-            f6 = 0.0
-        z = grain_z[g] + (f3 - mean[3]) * a3 + (f4 - mean[4]) * a4 + (f5 - mean[5]) * a5 + (f6 - mean[6]) * a6
-        z = min(max(z, -40.0), 40.0)
-        val = 1.0 / (1.0 + math.exp(-z))
+        val = _value(p, dx, dy, r2, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step, inv_step, mean,
+                     a3, a4, a5, a6)
         fld[p] = val
-        tau_out[p] = tau_g[g]
+        tau_out[p] = tau_g[lab[p]]
         if inside:
             pv[m] = val
             px[m] = x[p]
             py[m] = y[p]
             m += 1
     return m
+
+
+@nb.njit(cache=True, nogil=True)
+def _shape_bound(box, tx, ty, d0, d1, rmin):
+    """An upper bound of the tip-shape factor cos²(θ/2) + ¾ sin²θ over a box seen from the tip.
+
+    As a function of c = cos θ the factor (1 + c)/2 + ¾(1 − c²) is concave with its maximum 4/3 at
+    c = 1/3; the box spans an angle below π from a tip outside it, so the range of c follows from
+    its corners' angles (and whether the span holds θ = 0 or π). A small margin covers round-off.
+    """
+    if not rmin > 0.0:
+        return 4.0 / 3.0 + 1e-9
+    ref = 0.0
+    lo = math.inf
+    hi = -math.inf
+    for m in range(4):
+        dx = (box[0] if m % 2 == 0 else box[1]) - tx
+        dy = (box[2] if m < 2 else box[3]) - ty
+        a = math.atan2(-dx * d1 + dy * d0, dx * d0 + dy * d1)
+        if m == 0:
+            ref = a
+        o = a - ref
+        if o > math.pi:
+            o -= 2.0 * math.pi
+        elif o <= -math.pi:
+            o += 2.0 * math.pi
+        lo = min(lo, o)
+        hi = max(hi, o)
+    lo = ref + lo - 1e-9
+    hi = ref + hi + 1e-9
+    c_lo = min(math.cos(lo), math.cos(hi))
+    c_hi = max(math.cos(lo), math.cos(hi))
+    two_pi = 2.0 * math.pi
+    if math.floor(hi / two_pi) * two_pi >= lo:  # the span holds θ = 0 (mod 2π)
+        c_hi = 1.0
+    if math.floor((hi - math.pi) / two_pi) * two_pi + math.pi >= lo:  # … or θ = π
+        c_lo = -1.0
+    c = min(max(1.0 / 3.0, c_lo), c_hi)
+    return 0.5 * (1.0 + c) + 0.75 * (1.0 - c * c) + 1e-9
+
+
+@nb.njit(cache=True, nogil=True)
+def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorted, tx, ty, d0, d1, step, mean, scale,
+                     coef, horizon, need_idx, t_ptr, t_pts, t_box, t_f6, t_eb, g_ptr, g_ids, p_ptr, p_ids, k, sep2,
+                     fld, tau_out, out):
+    """The field and τ at ``need_idx``, and the greedy peaks of the horizon evaluated tile by tile.
+
+    The peaks are those of :func:`slipnet.forecast._kernels.greedy_peaks` over every metal point
+    within ``horizon`` of the tip: each round takes the highest point at least √sep2 from the peaks
+    before it (the first in row-major order among equal values). A tile's field is bounded above
+    from its grains' logit, its pairs' |m′|, its range of distances to the tip and of the notch
+    feature (with a margin far above round-off), and tiles are evaluated in decreasing bound only
+    while the bound is not below the best allowed point so far: a tile never evaluated holds no
+    point that could have been chosen. Writes ``out[:n]`` = (x, y); returns n. Releases the GIL.
+    """
+    h2 = horizon * horizon
+    a3, a4, a5, a6 = coef[3] / scale[3], coef[4] / scale[4], coef[5] / scale[5], coef[6] / scale[6]
+    inv_step = 1.0 / step
+    for q in range(need_idx.shape[0]):
+        p = need_idx[q]
+        dx = x[p] - tx
+        dy = y[p] - ty
+        fld[p] = _value(p, dx, dy, dx * dx + dy * dy, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step,
+                        inv_step, mean, a3, a4, a5, a6)
+        tau_out[p] = tau_g[lab[p]]
+    if k <= 0:
+        return 0
+    nt = t_box.shape[0]
+    ub = np.empty(nt)
+    live = np.empty(nt, np.int64)
+    nl = 0
+    reach = horizon * (1.0 + 1e-9) + 1e-9
+    for t in range(nt):
+        ddx = max(t_box[t, 0] - tx, 0.0, tx - t_box[t, 1])
+        ddy = max(t_box[t, 2] - ty, 0.0, ty - t_box[t, 3])
+        rmin = math.sqrt(ddx * ddx + ddy * ddy)
+        if rmin > reach:
+            continue  # no point of the tile within the horizon
+        fx = max(abs(t_box[t, 0] - tx), abs(t_box[t, 1] - tx))
+        fy = max(abs(t_box[t, 2] - ty), abs(t_box[t, 3] - ty))
+        rmax = math.sqrt(fx * fx + fy * fy)
+        zg = -math.inf
+        for j in range(g_ptr[t], g_ptr[t + 1]):
+            zg = max(zg, grain_z[g_ids[j]])
+        lo3 = math.inf
+        hi3 = -math.inf
+        for j in range(p_ptr[t], p_ptr[t + 1]):
+            cm = 1.0 - mp_sorted[p_ids[j]] if p_ids[j] >= 0 else 0.0  # no pair: |m′| = 1, the term is 0
+            for e in (t_eb[t, 0], t_eb[t, 1]):
+                v = cm * e
+                if not math.isfinite(v):
+                    v = 0.0  # as the point formula takes a non-finite term
+                lo3 = min(lo3, v)
+                hi3 = max(hi3, v)
+        f4 = math.sqrt(_shape_bound(t_box[t], tx, ty, d0, d1, rmin) * step / (rmin + step))
+        z = (zg + max((lo3 - mean[3]) * a3, (hi3 - mean[3]) * a3)
+             + max((0.0 - mean[4]) * a4, (f4 - mean[4]) * a4)
+             + max((math.log1p(rmin * inv_step) - mean[5]) * a5, (math.log1p(rmax * inv_step) - mean[5]) * a5)
+             + max((t_f6[t, 0] - mean[6]) * a6, (t_f6[t, 1] - mean[6]) * a6))
+        z += 1e-9 * (1.0 + abs(z))  # far above the round-off of the point formula
+        z = min(max(z, -40.0), 40.0)
+        ub[nl] = 1.0 / (1.0 + math.exp(-z)) * (1.0 + 1e-12)
+        live[nl] = t
+        nl += 1
+    order = np.argsort(-ub[:nl])
+    n_pts = 0
+    for j in range(nl):
+        n_pts += t_ptr[live[j] + 1] - t_ptr[live[j]]
+    ev_v = np.empty(n_pts)
+    ev_i = np.empty(n_pts, np.int64)
+    m = 0  # evaluated points still allowed (at least √sep2 from every peak taken)
+    nxt = 0
+    count = 0
+    while count < k:
+        bi = -1
+        bv = -math.inf
+        for e in range(m):
+            v = ev_v[e]
+            if bi < 0 or v > bv or (v == bv and ev_i[e] < ev_i[bi]):
+                bi = e
+                bv = v
+        while nxt < nl and (bi < 0 or ub[order[nxt]] >= bv):
+            t = live[order[nxt]]
+            nxt += 1
+            for q in range(t_ptr[t], t_ptr[t + 1]):
+                p = t_pts[q]
+                dx = x[p] - tx
+                dy = y[p] - ty
+                r2 = dx * dx + dy * dy
+                if not _inside(r2, dx, dy, h2, horizon):
+                    continue
+                val = _value(p, dx, dy, r2, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step, inv_step,
+                             mean, a3, a4, a5, a6)
+                fld[p] = val
+                tau_out[p] = tau_g[lab[p]]
+                ok = True
+                for c in range(count):
+                    ex = x[p] - out[c, 0]
+                    ey = y[p] - out[c, 1]
+                    if not ex * ex + ey * ey >= sep2:
+                        ok = False
+                        break
+                if not ok:
+                    continue
+                ev_v[m] = val
+                ev_i[m] = p
+                if bi < 0 or val > bv or (val == bv and p < ev_i[bi]):
+                    bi = m
+                    bv = val
+                m += 1
+        if bi < 0:
+            break
+        pk = ev_i[bi]
+        out[count, 0] = x[pk]
+        out[count, 1] = y[pk]
+        count += 1
+        # keep only the evaluated points the new peak still allows
+        w = 0
+        for e in range(m):
+            ex = x[ev_i[e]] - x[pk]
+            ey = y[ev_i[e]] - y[pk]
+            if ex * ex + ey * ey >= sep2:
+                ev_v[w] = ev_v[e]
+                ev_i[w] = ev_i[e]
+                w += 1
+        m = w
+    return count
