@@ -7,6 +7,7 @@ Private helpers of :mod:`slipnet.grains.build`; the hot loops are in
 
 from __future__ import annotations
 
+from itertools import repeat
 from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
@@ -170,14 +171,52 @@ def subgrains(omap: OrientationMap, labels: np.ndarray, valid: np.ndarray, a: np
 
 
 def grain_networkx(omap: OrientationMap, thr: float, grains: pd.DataFrame, boundaries: pd.DataFrame) -> nx.Graph:
-    """The networkx graph: one node per grain, one edge per boundary, plain-number attributes."""
+    """The networkx graph: one node per grain, one edge per boundary, plain-number attributes.
+
+    Parameters
+    ----------
+    omap
+        The map (its step in µm, grid and name become graph attributes).
+    thr
+        Grain threshold, degrees (a graph attribute).
+    grains, boundaries
+        The grain and boundary tables; nodes take :data:`NODE_KEYS`, edges :data:`EDGE_KEYS`.
+
+    Returns
+    -------
+    networkx.Graph
+        Nodes 0..n−1 in grain order, edges in boundary order.
+
+    Notes
+    -----
+    The attribute dicts are made from the table columns in one pass each and put straight into
+    the graph's node and adjacency dicts, the layout ``add_nodes_from`` / ``add_edges_from``
+    produce (one attribute dict shared by both directions of an edge). Through those two calls
+    each dict was copied into a fresh one, row by row, which was most of this step on large maps
+    (``tests/test_grains.py`` holds the two graphs equal). The cyclic garbage collector is held
+    off while the dicts are made: none of them can form a cycle, yet each collection it starts
+    on the way walks every dict made so far.
+    """
+    import gc
+
     import networkx as nx
 
-    n, nbd = len(grains), len(boundaries)
     graph = nx.Graph(threshold_deg=thr, step_um=float(omap.step), grid=omap.grid, name=str(omap.name))
-    ncols = {k: grains[k].tolist() for k in NODE_KEYS}
-    graph.add_nodes_from((g, {k: ncols[k][g] for k in NODE_KEYS}) for g in range(n))
-    ecols = {k: boundaries[k].tolist() for k in EDGE_KEYS}
-    ga_l, gb_l = boundaries["grain_a"].tolist(), boundaries["grain_b"].tolist()
-    graph.add_edges_from((ga_l[i], gb_l[i], {k: ecols[k][i] for k in EDGE_KEYS}) for i in range(nbd))
+    n = len(grains)
+    node_rows = zip(*(grains[k].tolist() for k in NODE_KEYS), strict=True)
+    edge_rows = zip(*(boundaries[k].tolist() for k in EDGE_KEYS), strict=True)
+    ends = zip(boundaries["grain_a"].tolist(), boundaries["grain_b"].tolist(), strict=True)
+    was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        node_attrs = graph._node  # the dicts networkx's own add_* methods fill
+        node_attrs.update(zip(range(n), map(dict, map(zip, repeat(NODE_KEYS), node_rows)), strict=True))
+        adj = graph._adj
+        adj.update(zip(range(n), map(dict, repeat((), n)), strict=True))
+        for (u, v), attrs in zip(ends, map(dict, map(zip, repeat(EDGE_KEYS), edge_rows)), strict=True):
+            adj[u][v] = attrs
+            adj[v][u] = attrs
+    finally:
+        if was_enabled:
+            gc.enable()
     return graph
