@@ -242,3 +242,23 @@ def test_grain_terms_kernel_equals_the_numpy_grain_terms(poly_gg):
     q_ok = np.where(np.isfinite(q), q, [1.0, 0.0, 0.0, 0.0])
     _keys, vals = _transmission_pairs(plan.ea, plan.eb, q_ok, np.argmax(gt, axis=1), sy)
     np.testing.assert_allclose(mp_sorted, vals[plan.order], rtol=1e-12, atol=1e-15)
+
+
+def test_perturb_orientations_kernel_equals_the_numpy_products():
+    # the kernel's products in the order of quat_from_axis_angle and _qmul: the same bits
+    from slipnet.crystal.orientation import quat_from_axis_angle
+    from slipnet.crystal.perturb import _qmul, perturb_orientations
+
+    rng = np.random.default_rng(1)
+    q = rng.normal(size=(3000, 4))
+    q /= np.linalg.norm(q, axis=1, keepdims=True)
+    q[:5] = [1.0, 0.0, 0.0, 0.0]
+    for sigma in (0.5, 1.5, 40.0, 200.0):
+        state = rng.bit_generator.state
+        got = perturb_orientations(q, sigma, rng)
+        rng.bit_generator.state = state
+        axes = rng.normal(size=(q.shape[0], 3))
+        angles = rng.normal(0.0, sigma, size=q.shape[0])
+        want = _qmul(quat_from_axis_angle(axes, angles), q)
+        want = np.where(want[:, :1] < 0, -want, want)
+        np.testing.assert_array_equal(got, want)

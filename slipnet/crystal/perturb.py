@@ -8,9 +8,12 @@ shift the draws of the others.
 
 from __future__ import annotations
 
+import math
+
+import numba as nb
 import numpy as np
 
-from slipnet.crystal.orientation import quat_from_axis_angle
+from slipnet.errors import ParameterError
 
 __all__ = ["perturb_axis", "perturb_orientations", "perturb_sample"]
 
@@ -46,8 +49,39 @@ def perturb_orientations(quats: np.ndarray, sigma_deg: float, rng: np.random.Gen
     angles = rng.normal(0.0, sigma_deg, size=n) if sigma_deg > 0 else rng.normal(size=n) * 0.0
     if sigma_deg <= 0 or n == 0:
         return quats.copy()
-    q = _qmul(quat_from_axis_angle(axes, angles), quats)
-    return np.where(q[:, :1] < 0, -q, q)
+    out = np.empty((n, 4))
+    if not _rotate(np.ascontiguousarray(quats), axes, angles, out):
+        raise ParameterError("axis should be a non-zero vector")  # a normal draw of three exact zeros
+    return out
+
+
+@nb.njit(cache=True, nogil=True)
+def _rotate(quats, axes, angles_deg, out):
+    """``out[i]`` = rotation by ``angles_deg[i]`` about ``axes[i]``, times ``quats[i]``, with w ≥ 0.
+
+    The products of :func:`slipnet.crystal.orientation.quat_from_axis_angle` and :func:`_qmul` in
+    their order, per orientation (one pass instead of a dozen numpy calls on (n, 4) arrays).
+    Returns False if an axis is shorter than 1e-12.
+    """
+    for i in range(quats.shape[0]):
+        a0, a1, a2 = axes[i, 0], axes[i, 1], axes[i, 2]
+        norm = math.sqrt(a0 * a0 + a1 * a1 + a2 * a2)
+        if norm < 1e-12:
+            return False
+        half = 0.5 * (angles_deg[i] * (math.pi / 180.0))
+        sh = math.sin(half)
+        aw, ax, ay, az = math.cos(half), sh * a0 / norm, sh * a1 / norm, sh * a2 / norm
+        if aw < 0:
+            aw, ax, ay, az = -aw, -ax, -ay, -az
+        bw, bx, by, bz = quats[i, 0], quats[i, 1], quats[i, 2], quats[i, 3]
+        w = aw * bw - ax * bx - ay * by - az * bz
+        x = aw * bx + ax * bw + ay * bz - az * by
+        y = aw * by - ax * bz + ay * bw + az * bx
+        z = aw * bz + ax * by - ay * bx + az * bw
+        if w < 0:
+            w, x, y, z = -w, -x, -y, -z
+        out[i, 0], out[i, 1], out[i, 2], out[i, 3] = w, x, y, z
+    return True
 
 
 def perturb_axis(axis, sigma_deg: float, rng: np.random.Generator) -> np.ndarray:
