@@ -55,3 +55,81 @@ def test_graph_equals_the_one_built_through_networkx_calls(grid):
     assert g.edges[v, u]["extra"] == 1.0
     assert len(g) == gg.n_grains and g.number_of_edges() == len(gg.boundaries)
     assert all(isinstance(val, (int, float, str, bool)) for _, d in g.nodes(data=True) for val in d.values())
+
+
+def reference_lines(bnd, geo, omap, k):
+    """The array code the polyline kernel replaced: chains laid out, smoothed by one cumulative sum,
+    lengths by bincount (kept here as the reference, bit for bit)."""
+    from slipnet.grains import _boundary_kernels as bk
+
+    m_edges = bnd.ea.size
+    eorder = np.empty(m_edges, dtype=np.int64)
+    first = np.zeros(m_edges, dtype=np.bool_)
+    start_v = np.zeros(m_edges, dtype=np.int64)
+    end_v = np.zeros(m_edges, dtype=np.int64)
+    bk.chain_edges(bnd.bstart, geo.v0, geo.v1, eorder, first, start_v, end_v)
+    width, off, ys, half_step = geo.lattice
+
+    def vxy(v):
+        r, c = np.divmod(v, width)
+        return (c - 2) * half_step, (r - off) / ys
+
+    chain_id = np.cumsum(first) - 1
+    n_chains = int(first.sum())
+    cstart = np.flatnonzero(first)
+    cend = np.append(cstart[1:], m_edges) - 1
+    xy = np.empty((m_edges + 2 * n_chains, 2))
+    pos_mid = np.arange(m_edges) + 2 * chain_id + 1
+    xy[pos_mid, 0], xy[pos_mid, 1] = geo.mx[eorder], geo.my[eorder]
+    sxv, syv = vxy(start_v[cstart])
+    exv, eyv = vxy(end_v[cstart])
+    ps = cstart + 2 * np.arange(n_chains)
+    pe = cend + 2 * np.arange(n_chains) + 2
+    xy[ps, 0], xy[ps, 1] = sxv, syv
+    xy[pe, 0], xy[pe, 1] = exv, eyv
+    xy += np.asarray(omap.origin)
+    chain_off = np.append(ps, xy.shape[0]).astype(np.int64)
+    chain_b = bnd.bid[eorder[cstart]]
+    boundary_chains = np.searchsorted(chain_b, np.arange(bnd.n + 1)).astype(np.int64)
+    clen = cend - cstart + 1
+    ordc = np.lexsort((-clen, chain_b))
+    firstc = ordc[np.concatenate(([True], chain_b[ordc][1:] != chain_b[ordc][:-1]))]
+    ends = np.column_stack((sxv[firstc], syv[firstc], exv[firstc], eyv[firstc])) + np.tile(omap.origin, 2)
+    idx = np.arange(xy.shape[0])
+    chain = np.searchsorted(chain_off, idx, side="right") - 1
+    h = np.minimum(np.minimum(idx - chain_off[chain], chain_off[chain + 1] - 1 - idx), k)
+    cs = np.vstack((np.zeros((1, 2)), np.cumsum(xy, axis=0)))
+    sm = (cs[idx + h + 1] - cs[idx - h]) / (2 * h + 1)[:, None] if k > 0 else xy
+    seg = np.hypot(*np.diff(sm, axis=0).T)
+    seg_ok = np.ones(seg.size, dtype=bool)
+    seg_ok[ps[1:] - 1] = False
+    seg_chain = np.repeat(np.arange(n_chains), np.diff(chain_off))[:-1]
+    chain_len = np.bincount(seg_chain[seg_ok], seg[seg_ok], n_chains)
+    return xy, chain_off, boundary_chains, ends, np.bincount(chain_b, chain_len, bnd.n)
+
+
+@pytest.mark.parametrize(("grid", "k"), [("square", 4), ("hex", 4), ("square", 0), ("hex", 2)])
+def test_polyline_kernel_equals_the_array_code(grid, k):
+    from slipnet.grains import _boundaries as bo
+    from slipnet.grains._steps import _edge_geometry, _neighbour_pairs
+
+    om = voronoi(70, 80, 30, grid, seed=5)
+    om = OrientationMap(om.quats, om.phase, om.quality, om.indexed, 0.7, grid=grid, origin=(-3.25, 11.5))
+    gg = build_grain_graph(om)
+    a, b = _neighbour_pairs(om.shape, grid)
+    bnd = bo.group_boundaries(a, b, gg.labels.ravel().astype(np.int32), gg.n_grains)
+    geo = bo.EdgeGeometry(*_edge_geometry(bnd.ea, bnd.eb, om))
+    ref = reference_lines(bnd, geo, om, k)
+    saved = bo.TRACE_SMOOTHING
+    try:
+        bo.TRACE_SMOOTHING = k
+        got = bo.boundary_lines(bnd, geo, om)
+    finally:
+        bo.TRACE_SMOOTHING = saved
+    xy, off, bc = got.polylines.arrays
+    for r, g in zip(ref, (xy, off, bc, got.ends_xy, got.trace_length), strict=True):
+        assert r.shape == g.shape and r.dtype == g.dtype
+        assert np.array_equal(r, g)
+    assert got.n_chains == off.size - 1 and np.array_equal(got.n_lines, np.diff(bc))
+    if k == 4:  # the build used the same lines
+        assert np.array_equal(gg.boundaries["trace_length_um"].to_numpy(), got.trace_length)

@@ -7,7 +7,6 @@ Private helpers of :mod:`slipnet.grains.build`; the hot loops are in
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
@@ -48,7 +47,9 @@ class EdgeGeometry(NamedTuple):
     ty: np.ndarray
     v0: np.ndarray
     v1: np.ndarray
-    vxy: Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]]
+    #: vertex lattice ``(width, off, ys, half_step)``: id ``v`` sits at x = (v % width − 2) · half_step,
+    #: y = (v // width − off) / ys, µm from point 0
+    lattice: tuple[int, int, float, float]
     edge_len: float
 
 
@@ -109,25 +110,14 @@ def boundary_misorientations(bnd: Boundaries, means: np.ndarray, gphase: np.ndar
 TRACE_SMOOTHING = 4
 
 
-def _smoothed_chains(xy: np.ndarray, chain_off: np.ndarray, k: int) -> np.ndarray:
-    """Centred moving average of each chain's points over up to ``2k + 1`` points, end points kept.
-
-    The window shrinks symmetrically near a chain's ends, so no chain reads another's points.
-    """
-    n = xy.shape[0]
-    if n == 0 or k <= 0:
-        return xy
-    idx = np.arange(n)
-    chain = np.searchsorted(chain_off, idx, side="right") - 1
-    start, end = chain_off[chain], chain_off[chain + 1] - 1
-    h = np.minimum(np.minimum(idx - start, end - idx), k)
-    cs = np.vstack((np.zeros((1, 2)), np.cumsum(xy, axis=0)))
-    return (cs[idx + h + 1] - cs[idx - h]) / (2 * h + 1)[:, None]
-
-
 def boundary_lines(bnd: Boundaries, geo: EdgeGeometry, omap: OrientationMap) -> Lines:
-    """Chain each boundary's cell edges through shared vertices into polylines (µm, map origin added)."""
-    bid, nbd, mx, my, vxy = bnd.bid, bnd.n, geo.mx, geo.my, geo.vxy
+    """Chain each boundary's cell edges through shared vertices into polylines (µm, map origin added).
+
+    The trace length is measured along the chained midpoint polylines, each first smoothed by a
+    moving average over up to 2 * TRACE_SMOOTHING + 1 points (ends fixed): the raw midpoints
+    zigzag on the grid, which overstates a straight boundary by up to 8 % on square and 15 % on
+    hex grids; smoothed, every angle measures within about 1 % (tests/test_grains.py).
+    """
     m_edges = bnd.ea.size
     eorder = np.empty(m_edges, dtype=np.int64)
     first_of_chain = np.zeros(m_edges, dtype=np.bool_)
@@ -135,43 +125,13 @@ def boundary_lines(bnd: Boundaries, geo: EdgeGeometry, omap: OrientationMap) -> 
     end_v = np.zeros(m_edges, dtype=np.int64)
     if m_edges:
         _bk.chain_edges(bnd.bstart, geo.v0, geo.v1, eorder, first_of_chain, start_v, end_v)
-    chain_id = np.cumsum(first_of_chain) - 1
-    n_chains = int(first_of_chain.sum())
-    cstart = np.flatnonzero(first_of_chain)
-    cend = np.append(cstart[1:], m_edges) - 1
-    xy = np.empty((m_edges + 2 * n_chains, 2))
-    pos_mid = np.arange(m_edges) + 2 * chain_id + 1
-    xy[pos_mid, 0] = mx[eorder]
-    xy[pos_mid, 1] = my[eorder]
-    sxv, syv = vxy(start_v[cstart])
-    exv, eyv = vxy(end_v[cstart])
-    ps = cstart + 2 * np.arange(n_chains)
-    pe = cend + 2 * np.arange(n_chains) + 2
-    xy[ps, 0], xy[ps, 1] = sxv, syv
-    xy[pe, 0], xy[pe, 1] = exv, eyv
-    xy += np.asarray(omap.origin)
-    chain_off = np.append(ps, xy.shape[0]).astype(np.int64)
-    chain_b = bid[eorder[cstart]] if n_chains else np.zeros(0, dtype=np.int64)
-    boundary_chains = np.searchsorted(chain_b, np.arange(nbd + 1)).astype(np.int64)
+    width, off, ys, half_step = geo.lattice
+    ox, oy = (float(v) for v in omap.origin)
+    xy, chain_off, boundary_chains, ends_xy, trace_length = _bk.chain_polylines(
+        bnd.bstart, eorder, first_of_chain, start_v, end_v, geo.mx, geo.my, width, off, ys, half_step, ox, oy,
+        TRACE_SMOOTHING)
     polylines = BoundaryPolylines(xy, chain_off, boundary_chains)
-    # end points: those of the longest chain of each boundary
-    clen = cend - cstart + 1
-    ordc = np.lexsort((-clen, chain_b))
-    firstc = ordc[np.concatenate(([True], chain_b[ordc][1:] != chain_b[ordc][:-1]))] if n_chains else ordc
-    ends_xy = np.column_stack((sxv[firstc], syv[firstc], exv[firstc], eyv[firstc])) + np.tile(omap.origin, 2)
-    n_chain_per_b = np.diff(boundary_chains)
-    # length along the chained midpoint polylines, each first smoothed by a moving average over up
-    # to 2 * TRACE_SMOOTHING + 1 points (ends fixed): the raw midpoints zigzag on the grid, which
-    # overstates a straight boundary by up to 8 % on square and 15 % on hex grids; smoothed, every
-    # angle measures within about 1 % (tests/test_grains.py)
-    sm = _smoothed_chains(xy, chain_off, TRACE_SMOOTHING)
-    seg = np.hypot(*np.diff(sm, axis=0).T) if xy.shape[0] > 1 else np.zeros(0)
-    seg_ok = np.ones(seg.size, dtype=bool)
-    seg_ok[ps[1:] - 1] = False
-    seg_chain = np.repeat(np.arange(n_chains), np.diff(chain_off))[:-1] if n_chains else np.zeros(0, np.int64)
-    chain_len = np.bincount(seg_chain[seg_ok], seg[seg_ok], n_chains)
-    trace_length = np.bincount(chain_b, chain_len, nbd) if n_chains else np.zeros(nbd)
-    return Lines(polylines, ends_xy, n_chain_per_b, trace_length, n_chains)
+    return Lines(polylines, ends_xy, np.diff(boundary_chains), trace_length, int(chain_off.size - 1))
 
 
 def junction_table(labels: np.ndarray, omap: OrientationMap, m_edges: int) -> pd.DataFrame:

@@ -135,7 +135,8 @@ def _merge_small(labels: np.ndarray, a: np.ndarray, b: np.ndarray, phase_flat: n
 
 
 def _edge_geometry(ea: np.ndarray, eb: np.ndarray, omap: OrientationMap):
-    """Midpoints, unit directions and integer vertex ids of the cell edges shared by point pairs."""
+    """Midpoints, unit directions and integer vertex ids of the cell edges shared by point pairs, the
+    vertex lattice ``(width, off, ys, half_step)`` the ids are on, and the edge length (µm)."""
     nx_ = omap.shape[1]
     step, rs = omap.step, omap.row_spacing
     hexg = omap.grid == "hex"
@@ -148,12 +149,7 @@ def _edge_geometry(ea: np.ndarray, eb: np.ndarray, omap: OrientationMap):
     ys, off = (3.0 / rs, 3) if hexg else (2.0 / step, 2)
     width = 2 * nx_ + 8
     _bk.edge_geometry(ea, eb, nx_, step, hexg, half, ys, off, width, mx, my, tx, ty, v0, v1)
-
-    def vxy(v):
-        r, c = np.divmod(v, width)
-        return (c - 2) * (0.5 * step), (r - off) / ys
-
-    return mx, my, tx, ty, v0, v1, vxy, 2.0 * half
+    return mx, my, tx, ty, v0, v1, (width, off, ys, 0.5 * step), 2.0 * half
 
 
 def _n_chunks(n_items: int, limit: int | None = None) -> int:
