@@ -107,6 +107,13 @@ class _Geometry:
             self.neigh.setdefault(int(b), []).append(int(a))
         self.ds = 0.25 * min(self.step, self.rs)
         self.anchors: dict[int, tuple[float, float]] = {}
+        self._edge_arrays: _EdgeArrays | None = None
+
+    def edge_arrays(self) -> _EdgeArrays:
+        """The boundary look-up :attr:`edges` as sorted arrays, for the path-tracer kernel (built once)."""
+        if self._edge_arrays is None:
+            self._edge_arrays = _EdgeArrays(self.edges, self.n_grains)
+        return self._edge_arrays
 
     def label_at(self, x: float, y: float) -> int:
         return int(_k.label_at(self.labels, self.hexgrid, self.ox, self.oy, self.step, self.rs, x, y))
@@ -116,6 +123,30 @@ class _Geometry:
                                   float(x), float(y), float(d[0]), float(d[1]), int(grain), self.ds,
                                   float(max_len), float(max_gap))
         return float(t), int(lab), int(st)
+
+
+class _EdgeArrays:
+    """``_Geometry.edges`` as arrays sorted by the pair code ``min·base + max`` (``base`` = grains + 1).
+
+    ``cls`` indexes ``names`` (``names[cls_high]`` is ``"high_angle"``, the class of a pair the graph
+    does not hold); ``mis`` in degrees, ``ang`` the trace angle in degrees (NaN where unknown).
+    """
+
+    def __init__(self, edges: dict, n_grains: int) -> None:
+        self.base = int(n_grains) + 1
+        keys = list(edges)
+        names = list(dict.fromkeys(["high_angle", *(v[2] for v in edges.values())]))
+        self.names = names
+        self.cls_high = 0
+        code = np.array([a * self.base + b for a, b in keys], np.int64)
+        order = np.argsort(code, kind="stable")
+        vals = [edges[k] for k in keys]
+        self.code = np.ascontiguousarray(code[order])
+        self.bid = np.array([v[0] for v in vals], np.int64)[order] if vals else np.zeros(0, np.int64)
+        self.mis = np.array([v[1] for v in vals], float)[order] if vals else np.zeros(0)
+        idx = {c: i for i, c in enumerate(names)}
+        self.cls = np.array([idx[v[2]] for v in vals], np.int64)[order] if vals else np.zeros(0, np.int64)
+        self.ang = np.array([v[3] for v in vals], float)[order] if vals else np.zeros(0)
 
 
 _GEOMETRY_CACHE_SIZE = 4
