@@ -136,29 +136,76 @@ class BarrierPlan:
             "log_distance": np.log1p(barriers["distance_um"].to_numpy(float) / geo.step),
         }
 
+        # the columns that do not change between samples, in BARRIER_FEATURES order, NaN-free once
+        self.base = np.zeros((self.n, len(BARRIER_FEATURES)))
+        for j, c in enumerate(BARRIER_FEATURES):
+            if c in self.fixed:
+                self.base[:, j] = np.nan_to_num(self.fixed[c])
+        self.cols = np.array([BARRIER_FEATURES.index(c) for c in ("field_drop", "tau_drop", "residual_burgers")],
+                             np.int64)
+
     def features(self, field: np.ndarray, tau: np.ndarray, labels: np.ndarray, solid: np.ndarray, x: np.ndarray,
                  y: np.ndarray, cry) -> np.ndarray:
-        """The ``(n, k)`` barrier features of one sample (window arrays ``field``, ``tau``, ``labels``, …)."""
+        """The ``(n, k)`` barrier features of one sample.
+
+        Parameters
+        ----------
+        field, tau, labels, solid, x, y : (ny, nx) ndarray
+            The sample's window: field, τ, grain labels, metal mask and point positions (µm).
+        cry
+            The sample's crystal data (``_Crystal``: sample-frame slip directions, best systems).
+
+        Returns
+        -------
+        (n, k) ndarray
+            The columns of :data:`BARRIER_FEATURES`, NaN-free.
+        """
         if self.n == 0:
             return np.zeros((0, len(BARRIER_FEATURES)))
         cry.ensure(np.concatenate([self.ga, self.gb]))
         ny, nx = labels.shape
         rs = float(y[1, 0] - y[0, 0]) if ny > 1 else 1.0
         st = float(x[0, 1] - x[0, 0]) if nx > 1 else 1.0
-        fd = np.empty(self.n)
-        td = np.empty(self.n)
-        _drops(np.ascontiguousarray(field, float), np.ascontiguousarray(tau, float),
-               np.ascontiguousarray(labels, np.int64), np.ascontiguousarray(solid, np.bool_),
-               np.ascontiguousarray(x, float), np.ascontiguousarray(y, float), float(y[0, 0]), float(x[0, 0]), rs, st,
-               self.xs, self.ys, self.ga, self.gb, self.radius, 3, fd, td)
-        rb = np.zeros(self.n)
-        if self.have_sys:
-            si = np.where(self.si >= 0, self.si, cry.best_sys[self.ga])
-            so = np.where(self.so >= 0, self.so, cry.best_sys[self.gb])
-            da, db = cry.d_s[self.ga, si], cry.d_s[self.gb, so]
-            rb = np.minimum(np.sqrt(np.sum((da - db) ** 2, axis=1)), np.sqrt(np.sum((da + db) ** 2, axis=1)))
-        cols = {"field_drop": np.nan_to_num(fd), "tau_drop": np.nan_to_num(td), "residual_burgers": rb, **self.fixed}
-        return np.nan_to_num(np.stack([cols[c] for c in BARRIER_FEATURES], axis=1))
+        out = self.base.copy()
+        _barrier_columns(field, tau, labels, solid, x, y, float(y[0, 0]), float(x[0, 0]), rs, st, self.xs, self.ys,
+                         self.ga, self.gb, self.radius, 3, self.have_sys, self.si, self.so, cry.best_sys, cry.d_s,
+                         self.cols, out)
+        return out
+
+
+@nb.njit(cache=True, nogil=True)
+def _barrier_columns(field, tau, lab, solid, x, y, y0, x0, rs, st, xs, ys, ga, gb, radius, min_points, have_sys, si, so,
+                     best_sys, d_s, cols, out):
+    """The per-sample columns of the barrier features: both drops and the residual Burgers vector.
+
+    Writes ``out[:, cols]`` = (field drop, τ drop, residual Burgers) with ``np.nan_to_num``'s
+    values for non-finite numbers; the residual is min(|d_a − d_b|, |d_a + d_b|) of the systems in
+    and out (each grain's best system where the crossing gave none), 0 without systems. Any array
+    layout (window views are read in place). Releases the GIL.
+    """
+    n = xs.shape[0]
+    fd = np.empty(n)
+    td = np.empty(n)
+    _drops(field, tau, lab, solid, x, y, y0, x0, rs, st, xs, ys, ga, gb, radius, min_points, fd, td)
+    big = 1.7976931348623157e308
+    for i in range(n):
+        rb = 0.0
+        if have_sys:
+            a, b = ga[i], gb[i]
+            s_in = si[i] if si[i] >= 0 else best_sys[a]
+            s_out = so[i] if so[i] >= 0 else best_sys[b]
+            m2 = (d_s[a, s_in, 0] - d_s[b, s_out, 0]) ** 2 + (d_s[a, s_in, 1] - d_s[b, s_out, 1]) ** 2 \
+                + (d_s[a, s_in, 2] - d_s[b, s_out, 2]) ** 2
+            p2 = (d_s[a, s_in, 0] + d_s[b, s_out, 0]) ** 2 + (d_s[a, s_in, 1] + d_s[b, s_out, 1]) ** 2 \
+                + (d_s[a, s_in, 2] + d_s[b, s_out, 2]) ** 2
+            ra, rc = math.sqrt(m2), math.sqrt(p2)
+            rb = math.nan if (math.isnan(ra) or math.isnan(rc)) else min(ra, rc)  # as np.minimum
+        for j, v in enumerate((fd[i], td[i], rb)):
+            if math.isnan(v):
+                v = 0.0
+            elif math.isinf(v):
+                v = big if v > 0 else -big
+            out[i, cols[j]] = v
 
 
 @nb.njit(cache=True, nogil=True)
