@@ -384,7 +384,7 @@ class FieldPlan:
         -------
         tau, field : (ny, nx) ndarray
             τ and the field at the ``need`` points and at the points the peak search evaluated
-            (0 elsewhere).
+            (0 elsewhere: only the ``need`` points are to be read).
         peaks : (≤k, 2) ndarray or None
             The peaks (x, y) in µm: those of ``greedy_peaks`` over :meth:`sample`'s ``peak_*``
             points (``monte_carlo._peaks``), the highest first. A tile of the horizon is evaluated
@@ -653,38 +653,58 @@ def _shape_bound(box, tx, ty, d0, d1, rmin):
     """An upper bound of the tip-shape factor cos²(θ/2) + ¾ sin²θ over a box seen from the tip.
 
     As a function of c = cos θ the factor (1 + c)/2 + ¾(1 − c²) is concave with its maximum 4/3 at
-    c = 1/3; the box spans an angle below π from a tip outside it, so the range of c follows from
-    its corners' angles (and whether the span holds θ = 0 or π). A small margin covers round-off.
+    c = 1/3. From a tip outside the box the box spans an arc below π: c there lies between its
+    corners' values, or reaches 1 (−1) if the ray θ = 0 (θ = π) from the tip meets the box. Small
+    margins cover round-off.
     """
     if not rmin > 0.0:
         return 4.0 / 3.0 + 1e-9
-    ref = 0.0
-    lo = math.inf
-    hi = -math.inf
+    c_lo = math.inf
+    c_hi = -math.inf
     for m in range(4):
         dx = (box[0] if m % 2 == 0 else box[1]) - tx
         dy = (box[2] if m < 2 else box[3]) - ty
-        a = math.atan2(-dx * d1 + dy * d0, dx * d0 + dy * d1)
-        if m == 0:
-            ref = a
-        o = a - ref
-        if o > math.pi:
-            o -= 2.0 * math.pi
-        elif o <= -math.pi:
-            o += 2.0 * math.pi
-        lo = min(lo, o)
-        hi = max(hi, o)
-    lo = ref + lo - 1e-9
-    hi = ref + hi + 1e-9
-    c_lo = min(math.cos(lo), math.cos(hi))
-    c_hi = max(math.cos(lo), math.cos(hi))
-    two_pi = 2.0 * math.pi
-    if math.floor(hi / two_pi) * two_pi >= lo:  # the span holds θ = 0 (mod 2π)
+        c = (dx * d0 + dy * d1) / math.sqrt(dx * dx + dy * dy)
+        c_lo = min(c_lo, c)
+        c_hi = max(c_hi, c)
+    if _ray_meets(box, tx, ty, d0, d1):
         c_hi = 1.0
-    if math.floor((hi - math.pi) / two_pi) * two_pi + math.pi >= lo:  # … or θ = π
+    if _ray_meets(box, tx, ty, -d0, -d1):
         c_lo = -1.0
-    c = min(max(1.0 / 3.0, c_lo), c_hi)
+    c = min(max(1.0 / 3.0, c_lo - 1e-9), c_hi + 1e-9)
     return 0.5 * (1.0 + c) + 0.75 * (1.0 - c * c) + 1e-9
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def _ray_meets(box, tx, ty, ux, uy):
+    # slab test of the ray tip + t·u (t ≥ 0) against the box widened by a hair
+    t0 = 0.0
+    t1 = math.inf
+    for lo, hi, o, u in ((box[0] - 1e-9, box[1] + 1e-9, tx, ux), (box[2] - 1e-9, box[3] + 1e-9, ty, uy)):
+        if u == 0.0:
+            if o < lo or o > hi:
+                return False
+        else:
+            a = (lo - o) / u
+            b = (hi - o) / u
+            t0 = max(t0, min(a, b))
+            t1 = min(t1, max(a, b))
+    return t0 <= t1
+
+
+@nb.njit(cache=True, nogil=True, inline="always")
+def _sift(heap, key, i, n):
+    # restore the max-heap below position i (heap holds indices into key)
+    while True:
+        c = 2 * i + 1
+        if c >= n:
+            return
+        if c + 1 < n and key[heap[c + 1]] > key[heap[c]]:
+            c += 1
+        if not key[heap[c]] > key[heap[i]]:
+            return
+        heap[i], heap[c] = heap[c], heap[i]
+        i = c
 
 
 @nb.njit(cache=True, nogil=True)
@@ -750,14 +770,16 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
         ub[nl] = 1.0 / (1.0 + math.exp(-z)) * (1.0 + 1e-12)
         live[nl] = t
         nl += 1
-    order = np.argsort(-ub[:nl])
+    heap = np.arange(nl)  # the tiles by decreasing bound, popped one at a time (few are)
+    for i in range(nl // 2 - 1, -1, -1):
+        _sift(heap, ub, i, nl)
+    nh = nl
     n_pts = 0
     for j in range(nl):
         n_pts += t_ptr[live[j] + 1] - t_ptr[live[j]]
     ev_v = np.empty(n_pts)
     ev_i = np.empty(n_pts, np.int64)
     m = 0  # evaluated points still allowed (at least √sep2 from every peak taken)
-    nxt = 0
     count = 0
     while count < k:
         bi = -1
@@ -767,9 +789,11 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
             if bi < 0 or v > bv or (v == bv and ev_i[e] < ev_i[bi]):
                 bi = e
                 bv = v
-        while nxt < nl and (bi < 0 or ub[order[nxt]] >= bv):
-            t = live[order[nxt]]
-            nxt += 1
+        while nh > 0 and (bi < 0 or ub[heap[0]] >= bv):
+            t = live[heap[0]]
+            nh -= 1
+            heap[0] = heap[nh]
+            _sift(heap, ub, 0, nh)
             for q in range(t_ptr[t], t_ptr[t + 1]):
                 p = t_pts[q]
                 dx = x[p] - tx
@@ -777,10 +801,6 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
                 r2 = dx * dx + dy * dy
                 if not _inside(r2, dx, dy, h2, horizon):
                     continue
-                val = _value(p, dx, dy, r2, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step, inv_step,
-                             mean, a3, a4, a5, a6)
-                fld[p] = val
-                tau_out[p] = tau_g[lab[p]]
                 ok = True
                 for c in range(count):
                     ex = x[p] - out[c, 0]
@@ -789,7 +809,11 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
                         ok = False
                         break
                 if not ok:
-                    continue
+                    continue  # a peak taken already excludes it: its value is not needed
+                val = _value(p, dx, dy, r2, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step, inv_step,
+                             mean, a3, a4, a5, a6)
+                fld[p] = val
+                tau_out[p] = tau_g[lab[p]]
                 ev_v[m] = val
                 ev_i[m] = p
                 if bi < 0 or val > bv or (val == bv and p < ev_i[bi]):
