@@ -1,13 +1,17 @@
 """Array-only versions of the per-sample steps of the Monte Carlo (private to :mod:`slipnet.forecast`).
 
 A Monte Carlo sample needs, of the barrier table, only which grain pairs the paths cross, which of
-them lie on the main path, their rank and the top barrier: :func:`rank_pairs` gives those from the
-tracer's crossing rows with the arithmetic of :func:`slipnet.forecast.barriers.rank_barriers` (the
-same numbers, tested equal) but without building a DataFrame per sample. :class:`BarrierPlan`
-holds what the barrier features of the nominal barriers need that does not change between samples
-(positions, grains, the nominal terms, the systems in and out), so a sample computes only the two
-drops and the residual Burgers vectors. :class:`FieldPlan` does the same for the map-mode field:
-the pair look-up of |m′| and the window's per-point constants are prepared once.
+them lie on the main path, their rank and the top barrier: :func:`rank_pairs` (dict rows) and
+:func:`rank_arrays` (one array per column) give those with the score of
+:func:`slipnet.forecast.barriers.barrier_scores`, the formula :func:`~slipnet.forecast.barriers.rank_barriers`
+uses, but without building a DataFrame per sample. :class:`BarrierPlan` holds what the barrier
+features of the nominal barriers need that does not change between samples (positions, grains,
+the nominal terms, the systems in and out), so a sample computes only the two drops and the
+residual Burgers vectors, in one kernel. :class:`FieldPlan` does the same for the map-mode field:
+the pair look-up of |m′| and the window's per-point constants are prepared once, the grain terms
+of a sample are one kernel, and :meth:`FieldPlan.sample_peaks` computes the field only where the
+sample reads it and finds the peaks tile by tile, skipping tiles whose bound lies below the peaks.
+Every kernel here releases the GIL, so a sample's field runs whole on a worker thread.
 """
 
 from __future__ import annotations
