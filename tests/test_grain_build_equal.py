@@ -133,3 +133,44 @@ def test_polyline_kernel_equals_the_array_code(grid, k):
     assert got.n_chains == off.size - 1 and np.array_equal(got.n_lines, np.diff(bc))
     if k == 4:  # the build used the same lines
         assert np.array_equal(gg.boundaries["trace_length_um"].to_numpy(), got.trace_length)
+
+
+@pytest.mark.parametrize("grid", ["square", "hex"])
+@pytest.mark.parametrize("n_bands", [1, 2, 3, 7, 1000])
+def test_union_find_in_bands_equals_the_serial_one(grid, n_bands):
+    from slipnet.grains import _pair_kernels as pk
+    from slipnet.grains._steps import _neighbour_pairs
+
+    om = voronoi(45, 38, 12, grid, seed=n_bands)
+    q, ok = om.quats.reshape(-1, 4), om.indexed.ravel()
+    a, b, ang = _neighbour_pairs(om.shape, grid, q, ok, om.phase.ravel())
+    # long winding sets that cross many bands, and thresholds that join nearly nothing or everything
+    for thr in (0.3, 2.0, 15.0, 62.0):
+        ref = np.arange(ok.size, dtype=np.int32)
+        pk.union_below(ref, a, b, ang, np.float32(thr))
+        row_start = np.zeros(om.shape[0] + 1, dtype=np.int64)
+        np.cumsum(pk.row_pair_counts(*om.shape, pk.FORWARD_OFFSETS[grid]), out=row_start[1:])
+        got = np.arange(ok.size, dtype=np.int32)
+        pk.union_below_bands(got, a, b, ang, np.float32(thr), row_start, om.shape[1], n_bands)
+        assert np.array_equal(got, ref), thr
+
+
+@pytest.mark.parametrize("grid", ["square", "hex"])
+def test_second_mean_pass_over_the_grains_rows_equals_the_whole_map_pass(grid):
+    from slipnet.grains._steps import _mean_orientations
+
+    gg = build_grain_graph(voronoi(50, 60, 20, grid, seed=11))
+    om, n = gg.omap, gg.n_grains
+    q, ok = om.quats.reshape(-1, 4), om.indexed.ravel()
+    labels = gg.labels.ravel().astype(np.int32)
+    rows_of = np.indices(om.shape)[0].ravel()
+    first_row = np.array([rows_of[labels == g].min() for g in range(n)])
+    last_row = np.array([rows_of[labels == g].max() for g in range(n)])
+    only = np.random.default_rng(1).random(n) < 0.3
+    # references far from the means, so the 24-operator search runs too
+    ref = np.asarray(quat_multiply(gg.mean_quats, quat_from_axis_angle(np.tile([1.0, 2.0, 3.0], (n, 1)),
+                                                                       np.full(n, 40.0))))
+    whole = _mean_orientations(q, ok, labels, n, ref, only=only)
+    some = _mean_orientations(q, ok, labels, n, ref, only=only, rows=(om.shape[1], first_row, last_row))
+    assert np.array_equal(whole, some)
+    assert np.array_equal(some[~only], np.where(ref[~only, :1] < 0, -ref[~only], ref[~only]))

@@ -164,6 +164,71 @@ def union_below(parent, a, b, angle, threshold):
 
 
 @nb.njit(cache=True)
+def _compress_path(parent, p):
+    """Point every node on the path from ``p`` straight at the root; return the root."""
+    r = p
+    while parent[r] != r:
+        r = parent[r]
+    while parent[p] != r:
+        nxt = parent[p]
+        parent[p] = r
+        p = nxt
+    return r
+
+
+@nb.njit(cache=True)
+def _union_band(parent, a, b, angle, threshold, k0, k1, lo_pt, hi_pt):
+    """Join the pairs ``k0..k1-1`` below ``threshold`` whose points both lie in ``lo_pt..hi_pt-1``,
+    then flatten those points in one rising sweep."""
+    for k in range(k0, k1):
+        if angle[k] < threshold and b[k] < hi_pt:
+            _union(parent, a[k], b[k])
+    for i in range(lo_pt, hi_pt):
+        parent[i] = parent[parent[i]]
+
+
+@nb.njit(cache=True, parallel=True)
+def union_below_bands(parent, a, b, angle, threshold, row_start, nx, n_bands):
+    """:func:`union_below` in bands of rows in parallel, then the pairs across bands; the same result.
+
+    Pairs are listed row by row (``row_start`` (ny+1,) the pair range of each row) and every pair
+    points forward (``b > a``), so a band's pairs join only its own points and its sets are rooted
+    in it: the bands run in parallel, each flattened in one rising sweep (``parent[i] <= i``, so
+    ``parent[parent[i]]`` is already a root when ``i`` is reached). The pairs from a band's last row
+    into the next band are then joined one by one through the band roots, the paths from their
+    points compressed to the final roots, and a last parallel sweep points every point at its root.
+    A set's root is its smallest index, so the flattened ``parent`` equals :func:`union_below`'s.
+    """
+    ny = row_start.shape[0] - 1
+    nbands = max(1, min(n_bands, ny))
+    for c in nb.prange(nbands):
+        r0 = c * ny // nbands
+        r1 = (c + 1) * ny // nbands
+        _union_band(parent, a, b, angle, threshold, row_start[r0], row_start[r1], r0 * nx, r1 * nx)
+    # across the bands, one after the other: only band roots change here
+    for c in range(1, nbands):
+        r1 = c * ny // nbands
+        hi_pt = r1 * nx
+        for k in range(row_start[r1 - 1], row_start[r1]):
+            if angle[k] < threshold and b[k] >= hi_pt:
+                _union(parent, parent[a[k]], parent[b[k]])
+    for c in range(1, nbands):
+        r1 = c * ny // nbands
+        hi_pt = r1 * nx
+        for k in range(row_start[r1 - 1], row_start[r1]):
+            if angle[k] < threshold and b[k] >= hi_pt:
+                _compress_path(parent, a[k])
+                _compress_path(parent, b[k])
+    for c in nb.prange(nbands):
+        r0 = c * ny // nbands
+        r1 = (c + 1) * ny // nbands
+        for i in range(r0 * nx, r1 * nx):
+            r = parent[parent[i]]
+            if r != parent[i]:  # roots are left unwritten: other bands read them
+                parent[i] = r
+
+
+@nb.njit(cache=True)
 def compact_labels(roots, keep, out):
     """Consecutive ids 0..n-1 in raster order of each set's first point; -1 where not ``keep``.
 

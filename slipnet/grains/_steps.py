@@ -41,6 +41,22 @@ def _neighbour_pairs(shape: tuple[int, int], grid: str, quats=None, valid=None, 
     return a, b, ang
 
 
+def _row_starts(shape: tuple[int, int], grid: str) -> np.ndarray:
+    """(ny + 1,) int64: where each row's forward pairs begin in the arrays of :func:`_neighbour_pairs`."""
+    ny, nx_ = shape
+    start = np.zeros(ny + 1, dtype=np.int64)
+    np.cumsum(_pk.row_pair_counts(ny, nx_, _pk.FORWARD_OFFSETS[grid]), out=start[1:])
+    return start
+
+
+def _union_below(parent: np.ndarray, a: np.ndarray, b: np.ndarray, ang: np.ndarray, thr: float,
+                 shape: tuple[int, int], grid: str) -> None:
+    """Union–find of the pairs below ``thr`` degrees into ``parent`` (flattened, roots = smallest index),
+    in row bands on the numba threads (four bands a thread, so a slow thread holds up less)."""
+    _pk.union_below_bands(parent, a, b, ang, np.float32(thr), _row_starts(shape, grid), shape[1],
+                          4 * _n_chunks(parent.size))
+
+
 def _compact(labels: np.ndarray) -> tuple[np.ndarray, int]:
     """Root labels (−1 for none) renumbered 0..n−1 in raster order of each grain's first point; and n."""
     out = np.empty(labels.shape[0], dtype=np.int32)
@@ -49,32 +65,56 @@ def _compact(labels: np.ndarray) -> tuple[np.ndarray, int]:
 
 
 def _mean_orientations(qflat: np.ndarray, valid: np.ndarray, labels: np.ndarray, n: int,
-                       ref: np.ndarray, only: np.ndarray | None = None) -> np.ndarray:
+                       ref: np.ndarray, only: np.ndarray | None = None,
+                       rows: tuple[int, np.ndarray, np.ndarray] | None = None) -> np.ndarray:
     """Symmetry-aware mean quaternion per label (Markley et al. 2007).
 
     Each point is replaced by its cubic equivalent nearest ``ref[label]`` and the ten distinct
     terms of Σ q qᵀ are accumulated, in one kernel pass over the points (no temporary copy of
     the quaternions); the eigenvector of the largest eigenvalue of each 4×4 matrix (batched
     ``eigh``) is the mean. ``only`` (n,) bool restricts the work to some labels (the others
-    come back as ``ref``).
+    come back as ``ref``); with ``rows = (nx, first_row, last_row)``, (n,) rows holding each
+    label's valid points, only those rows of the selected labels are read, not the whole map.
     """
-    sel = np.ones(n, dtype=np.bool_) if only is None else only
+    n_chunks = _n_chunks(labels.size)
+    ref = np.ascontiguousarray(ref)
     acc = np.zeros((n, 10))
-    _sk.quat_moment_sums_parallel(qflat, valid, labels, np.ascontiguousarray(ref), sel, CUBIC_OPERATORS, acc,
-                                 _n_chunks(labels.size))
+    if only is None:
+        _sk.quat_moment_sums_parallel(qflat, valid, labels, ref, np.ones(n, dtype=np.bool_), CUBIC_OPERATORS, acc,
+                                     n_chunks)
+        pick = slice(None)
+    else:
+        pick = np.flatnonzero(only)
+        if rows is None:
+            _sk.quat_moment_sums_parallel(qflat, valid, labels, ref, only, CUBIC_OPERATORS, acc, n_chunks)
+        else:
+            nx_, first_row, last_row = rows
+            _sk.quat_moment_sums_some(qflat, valid, labels, ref, pick, first_row[pick], last_row[pick], nx_,
+                                      CUBIC_OPERATORS, acc, n_chunks)
+    # each 4x4 matrix is solved on its own (batched eigh), so solving only the selected ones
+    # changes none of their means
+    acc = acc[pick]
     iu = np.triu_indices(4)
-    mat = np.zeros((n, 4, 4))
+    mat = np.zeros((acc.shape[0], 4, 4))
     mat[:, iu[0], iu[1]] = acc
     mat[:, iu[1], iu[0]] = acc
     _, vec = np.linalg.eigh(mat)
-    mean = vec[:, :, -1]
-    mean /= np.linalg.norm(mean, axis=1, keepdims=True)
-    mean[~sel] = ref[~sel]
+    sub = vec[:, :, -1]
+    sub /= np.linalg.norm(sub, axis=1, keepdims=True)
+    if only is None:
+        mean = sub
+    else:
+        mean = ref.astype(np.float64, copy=True)
+        mean[pick] = sub
     return np.where(mean[:, :1] < 0, -mean, mean)
 
 
-def _grain_means(qflat, valid, labels, n, first):
-    """Mean orientation per grain, referenced to its first point, redone from the mean where that lay far."""
+def _grain_means(qflat, valid, labels, n, first, nx_: int, last_row: np.ndarray):
+    """Mean orientation per grain, referenced to its first point, redone from the mean where that lay far.
+
+    ``first`` (n,) is each grain's first valid point and ``last_row`` (n,) the last row it reaches:
+    the second pass reads only those rows of the grains it redoes.
+    """
     ref = qflat[np.maximum(first, 0)]
     mean = _mean_orientations(qflat, valid, labels, n, ref)
     # second pass, with the first mean as reference, for grains whose first point lay far from
@@ -83,7 +123,8 @@ def _grain_means(qflat, valid, labels, n, first):
     # so δ ≤ 15° is safe for any point within 30° of its grain mean
     redo = disorientation_angle(ref, mean) > 15.0
     if redo.any():
-        mean = _mean_orientations(qflat, valid, labels, n, mean, only=redo)
+        first_row = np.maximum(first, 0) // nx_
+        mean = _mean_orientations(qflat, valid, labels, n, mean, only=redo, rows=(nx_, first_row, last_row))
     return mean
 
 

@@ -93,6 +93,51 @@ def quat_moment_sums_parallel(quats, valid, labels, refs, only, ops, acc, n_chun
         acc += part[c]
 
 
+@nb.njit(cache=True, parallel=True)
+def quat_moment_sums_some(quats, valid, labels, refs, grains, row_lo, row_hi, nx, ops, acc, n_chunks):
+    """:func:`quat_moment_sums_parallel` for the few ``grains`` only, each read over its own rows.
+
+    Grain ``grains[t]`` has its valid points in rows ``row_lo[t]..row_hi[t]``; its sums are
+    accumulated over the same ``n_chunks`` point ranges, in the same order, and added up in chunk
+    order as the whole-map kernel does, so its ``acc`` row is the same bit for bit; the other rows
+    are left as they are. Grains run in parallel (each writes only its own row).
+    """
+    n = labels.shape[0]
+    for t in nb.prange(grains.shape[0]):
+        g = grains[t]
+        p0 = row_lo[t] * nx
+        p1 = (row_hi[t] + 1) * nx
+        r0, r1, r2, r3 = refs[g, 0], refs[g, 1], refs[g, 2], refs[g, 3]
+        total = np.zeros(10)
+        part = np.zeros(10)
+        for c in range(n_chunks):
+            part[:] = 0.0
+            for p in range(max(c * n // n_chunks, p0), min((c + 1) * n // n_chunks, p1)):
+                if labels[p] != g or not valid[p]:
+                    continue
+                w, x, y, z = quats[p, 0], quats[p, 1], quats[p, 2], quats[p, 3]
+                # as in quat_moment_sums
+                dot = w * r0 + x * r1 + y * r2 + z * r3
+                if abs(dot) < COS_22_5:
+                    w, x, y, z, _ = nearest_cubic_single(w, x, y, z, r0, r1, r2, r3, ops)
+                elif dot < 0.0:
+                    w, x, y, z = -w, -x, -y, -z
+                part[0] += w * w
+                part[1] += w * x
+                part[2] += w * y
+                part[3] += w * z
+                part[4] += x * x
+                part[5] += x * y
+                part[6] += x * z
+                part[7] += y * y
+                part[8] += y * z
+                part[9] += z * z
+            for u in range(10):
+                total[u] += part[u]
+        for u in range(10):
+            acc[g, u] = total[u]
+
+
 # ----------------------------------------------------------------------------- per-grain sums
 @nb.njit(cache=True)
 def grain_point_sums(labels, valid, phase, ny, nx, step, row_spacing, hex_grid, n, sums, bbox, first, ph, edge,

@@ -16,7 +16,7 @@ from slipnet.crystal.orientation import disorientation_angle, euler_from_quat
 from slipnet.grains import _pair_kernels as _pk
 from slipnet.grains import _sum_kernels as _sk
 from slipnet.grains._boundaries import Boundaries, Lines
-from slipnet.grains._steps import _compact, _grain_means, _mean_orientations, _n_chunks
+from slipnet.grains._steps import _compact, _grain_means, _mean_orientations, _n_chunks, _union_below
 from slipnet.maps.grain_graph import EDGE_KEYS, NODE_KEYS
 from slipnet.maps.orientation_map import OrientationMap
 
@@ -52,7 +52,10 @@ def grain_stats(omap: OrientationMap, labels: np.ndarray, n: int, valid: np.ndar
     edge = np.empty(n, dtype=np.bool_)
     _sk.grain_point_sums_parallel(labels, valid, phase_flat, ny, nx_, omap.step, omap.row_spacing,
                                   omap.grid == "hex", n, sums, bbox, first, gphase, edge, _n_chunks(npts, ny))
-    means = _grain_means(qflat, valid, labels, n, first)
+    # the last row of each grain from its bounding box (y = row · row spacing), one row to spare
+    last_row = np.minimum(np.rint(np.nan_to_num(bbox[:, 3], posinf=ny, neginf=ny) / omap.row_spacing) + 1,
+                          ny - 1).astype(np.int64)
+    means = _grain_means(qflat, valid, labels, n, first, nx_, last_row)
     mis = np.empty(npts, dtype=np.float32)
     _sk.point_to_reference(qflat, valid, labels, means, mis)
     gos = _sk.grain_means_of(labels, mis, n)  # mis is NaN where a point has no orientation
@@ -144,7 +147,7 @@ def subgrains(omap: OrientationMap, labels: np.ndarray, valid: np.ndarray, a: np
     npts = ny * nx_
     qflat = omap.quats.reshape(-1, 4)
     parent = np.arange(npts, dtype=np.int32)
-    _pk.union_below(parent, a, b, ang, np.float32(sub))
+    _union_below(parent, a, b, ang, sub, omap.shape, omap.grid)
     sl, n_sub = _compact(np.where(valid & (labels >= 0), parent, -1).astype(np.int32))
     del parent
     sfirst = np.full(n_sub, npts, dtype=np.int64)

@@ -53,7 +53,7 @@ from slipnet.grains._boundaries import (
     junction_table,
     trace_angles,
 )
-from slipnet.grains._steps import _compact, _edge_geometry, _merge_small, _neighbour_pairs
+from slipnet.grains._steps import _compact, _edge_geometry, _merge_small, _neighbour_pairs, _union_below
 from slipnet.grains._tables import boundary_table, grain_networkx, grain_stats, grain_table, subgrains
 from slipnet.maps.grain_graph import GrainGraph
 from slipnet.maps.orientation_map import OrientationMap
@@ -141,7 +141,7 @@ def build_grain_graph(
     steps("pairs")
     # 3. union-find below the threshold
     cleanup = min_points > 1 or fill_unindexed
-    labels, n = _union_grains(a, b, ang, valid, thr, cleanup, log)
+    labels, n = _union_grains(a, b, ang, valid, thr, cleanup, (ny, nx_), omap.grid, log)
     steps("union-find")
     # 4. clean-up
     labels, n = _clean_up(omap, labels, n, a, b, min_points, fill_unindexed, max_sweeps, log)
@@ -264,13 +264,14 @@ def _usable_points(omap: OrientationMap, min_quality, log) -> np.ndarray:
     return valid
 
 
-def _union_grains(a, b, ang, valid, thr: float, cleanup: bool, log) -> tuple[np.ndarray, int | None]:
+def _union_grains(a, b, ang, valid, thr: float, cleanup: bool, shape: tuple[int, int], grid: str,
+                  log) -> tuple[np.ndarray, int | None]:
     """Union–find below the threshold: root labels (−1 outside ``valid``) if a clean-up follows
     (count None), else consecutive ids and their count."""
     npts = valid.size
     n = None
     parent = np.arange(npts, dtype=np.int32)
-    _pk.union_below(parent, a, b, ang, np.float32(thr))
+    _union_below(parent, a, b, ang, thr, shape, grid)
     if cleanup:
         labels = np.where(valid, parent, -1).astype(np.int32)
     else:  # nothing to clean: number the union-find roots directly
