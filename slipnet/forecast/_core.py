@@ -16,12 +16,13 @@ from slipnet._checks import check_choice, check_positive, check_range, check_vec
 from slipnet.errors import ParameterError
 from slipnet.forecast import _kernels as _k
 from slipnet.forecast._geometry import _boundary_info, _Crystal, _Geometry, _Planes
+from slipnet.forecast._trace_kernel import MAX_SEGMENTS, NO_STAGE2
 from slipnet.forecast.barriers import _MAX_SCHMID
 
 if TYPE_CHECKING:
     from slipnet.forecast.types import PathWeights
 
-_MAX_SEGMENTS = 20000  # guard against a path that never progresses
+_MAX_SEGMENTS = MAX_SEGMENTS  # guard against a path that never progresses (shared with the kernel)
 
 # ---------------------------------------------------------------------------------------------
 # geometry of crossings
@@ -155,10 +156,7 @@ def _run_state(geo: _Geometry, cry: _Crystal, planes: _Planes, st: _State, opts:
         if st.stage == "I" and (st.s >= opts.stage2_after or float(np.max(
                 np.where(cry.trace_ok[g], cry.plane_meff[g], 0.0))) < opts.stage2_min_schmid):
             if opts.d_stage2 is None:
-                raise ParameterError(
-                    "stage II needs an in-plane load component, but load_axis is (nearly) along the "
-                    "surface normal; give stage2_after_um=None and stage2_min_schmid=None, or tilt the load"
-                )
+                raise ParameterError(NO_STAGE2)
             st.stage = "II"
         if st.stage == "II":
             legs = [(-1, _sense(opts.d_stage2, opts.d_ref), np.inf, "stage2")]

@@ -9,6 +9,7 @@ import numpy as np
 
 from slipnet.crystal.slip_systems import plane_label
 from slipnet.forecast import _kernels as _k
+from slipnet.forecast._trace_kernel import crystal_rows
 
 _Z = np.array([0.0, 0.0, 1.0])
 
@@ -196,11 +197,16 @@ class _Planes:
         first_member = [int(np.flatnonzero(self.plane_of == p)[0]) for p in range(self.n_planes)]
         self.labels = [plane_label(hkl[i]) for i in first_member]
         self.members = [np.flatnonzero(self.plane_of == p) for p in range(self.n_planes)]
-        self.crss = np.asarray(systems.crss, dtype=float)
+        self.crss = np.ascontiguousarray(systems.crss, dtype=float)
         # {112} slip is sense-dependent (twinning / anti-twinning); other families are symmetric
-        self.crss_rev = np.asarray(getattr(systems, "crss_reverse", systems.crss), dtype=float)
-        self.sys_normals = normals
-        self.sys_dirs = np.asarray(systems.directions, dtype=float)
+        self.crss_rev = np.ascontiguousarray(getattr(systems, "crss_reverse", systems.crss), dtype=float)
+        self.sys_normals = np.ascontiguousarray(normals)
+        self.sys_dirs = np.ascontiguousarray(systems.directions, dtype=float)
+        # the members as a padded array, for the crystal-row kernel
+        self.n_members = np.array([m.size for m in self.members], np.int64)
+        self.member_table = np.zeros((self.n_planes, max(int(self.n_members.max(initial=1)), 1)), np.int64)
+        for p, m in enumerate(self.members):
+            self.member_table[p, :m.size] = m
 
 
 def _matrices(q: np.ndarray) -> np.ndarray:
@@ -225,7 +231,7 @@ class _Crystal:
 
     def __init__(self, quats: np.ndarray, load: np.ndarray, planes: _Planes, schmid=None, rows=None) -> None:
         self._q = np.asarray(quats, dtype=float)
-        self._load = np.asarray(load, dtype=float)
+        self._load = np.ascontiguousarray(load, dtype=float)
         self._planes = planes
         self._schmid_src = schmid
         ng = self._q.shape[0]
@@ -256,35 +262,19 @@ class _Crystal:
         if idx.size == 0:
             return
         planes = self._planes
-        g = _matrices(self._q[idx])  # (k, 3, 3); v_s = gᵀ v_c
-        # (n_s)_i = Σ_j g_ji n_j: a batched matrix product (much faster than einsum here)
-        n_s = np.matmul(planes.sys_normals[None], g)
-        d_s = np.matmul(planes.sys_dirs[None], g)
         src = self._schmid_src
         if src is None:
-            schmid = (n_s @ self._load) * (d_s @ self._load)
+            schmid = np.zeros((0, planes.sys_normals.shape[0]))
         elif callable(src):
             schmid = np.asarray(src(idx), dtype=float)
         else:
             schmid = np.asarray(src, dtype=float)[idx]
-        meff = np.abs(schmid) / np.where(schmid >= 0, planes.crss, planes.crss_rev)
-        # best system on each plane, per grain
-        plane_sys = np.zeros((idx.size, planes.n_planes), np.int64)
-        for p, members in enumerate(planes.members):  # a few dozen planes: vectorised over grains
-            plane_sys[:, p] = members[np.argmax(meff[:, members], axis=1)]
-        plane_n = np.matmul(planes.normals[None], g)
-        t = np.stack([plane_n[..., 1], -plane_n[..., 0]], axis=-1)  # n × z, in-plane part
-        tn = np.linalg.norm(t, axis=-1)
-        # planes within ~3° of the surface have no usable trace
-        ok = tn > 0.05
-        self.n_s[idx], self.d_s[idx], self.schmid[idx], self.meff[idx] = n_s, d_s, schmid, meff
-        self.plane_sys[idx] = plane_sys
-        self.plane_meff[idx] = np.take_along_axis(meff, plane_sys, axis=1)
-        self.plane_n[idx] = plane_n
-        self.trace_ok[idx] = ok
-        self.trace[idx] = t / np.where(ok, tn, 1.0)[..., None]
-        self.best_sys[idx] = np.argmax(meff, axis=1)
-        self.have[idx] = True
+        # one kernel pass over the rows (the numbers of the numpy pass this replaced, to the bit)
+        crystal_rows(np.ascontiguousarray(self._q), idx, planes.sys_normals, planes.sys_dirs, planes.normals,
+                     planes.member_table, planes.n_members, self._load, planes.crss, planes.crss_rev,
+                     np.ascontiguousarray(schmid), src is not None, self.n_s, self.d_s, self.schmid, self.meff,
+                     self.plane_sys, self.plane_meff, self.plane_n, self.trace_ok, self.trace, self.best_sys,
+                     self.have)
 
     def m_prime_row(self, ga: int, sys_a: int, gb: int) -> np.ndarray:
         """|m′| from system ``sys_a`` of grain ``ga`` to every system of grain ``gb``, (S,)."""

@@ -60,6 +60,8 @@ assert tuple(CROSS_COLUMNS[_C_CH:_C_CH + 5]) == ("choice_schmid", "choice_m_prim
 _OK, _NEED_GRAIN, _SEG_FULL, _CROSS_FULL, _NO_STAGE2 = 0, 1, 2, 3, 4
 _END_HORIZON, _END_LEG, _END_BOUNDARY, _END_UNINDEXED, _END_EDGE, _END_BLOCKED = range(6)
 
+#: Segments one path may have at most (a guard against a path that never progresses).
+MAX_SEGMENTS = 20000
 #: The message of the ParameterError raised when stage II has no in-plane load to follow.
 NO_STAGE2 = ("stage II needs an in-plane load component, but load_axis is (nearly) along the surface normal; "
              "give stage2_after_um=None and stage2_min_schmid=None, or tilt the load")
@@ -595,14 +597,12 @@ def trace_arrays(geo, cry, planes, x: float, y: float, grain: int, opts, *, seg_
     else:
         d2s = np.zeros(2)
     max_br = int(opts.max_branches)
-    from slipnet.forecast._core import _MAX_SEGMENTS
-
     prm = np.array([opts.horizon, opts.stage2_after, opts.stage2_min_schmid, opts.zigzag_tol, opts.zigzag_fraction,
-                    opts.branch_tol, max_br, opts.inclination, opts.max_gap, _MAX_SCHMID, _MAX_SEGMENTS,
+                    opts.branch_tol, max_br, opts.inclination, opts.max_gap, _MAX_SCHMID, MAX_SEGMENTS,
                     math.cos(math.radians(5.0)), wsum if wsum > 0 else 1.0], float)
     w = np.array([pw.schmid, pw.m_prime, pw.twist, pw.tilt], float)
     info = np.zeros(1, np.int64)
-    cap_seg = _MAX_SEGMENTS * (max_br + 1)
+    cap_seg = MAX_SEGMENTS * (max_br + 1)
     while True:
         seg = np.empty((seg_rows, _NSEG))
         cross = np.empty((cross_rows, _NCR))
@@ -622,3 +622,87 @@ def trace_arrays(geo, cry, planes, x: float, y: float, grain: int, opts, *, seg_
             cross_rows *= 4
         else:
             raise ParameterError(NO_STAGE2)
+
+
+@nb.njit(cache=True, nogil=True)
+def crystal_rows(q, idx, sys_normals, sys_dirs, plane_normals, members, n_members, load, crss, crss_rev, schmid_in,
+                 have_schmid, n_s, d_s, schmid, meff, plane_sys, plane_meff, plane_n, trace_ok, trace, best_sys, have):
+    """The rows ``idx`` of a :class:`slipnet.forecast._geometry._Crystal`, written in place.
+
+    The arithmetic of ``_Crystal``'s former numpy pass: the rotation matrix of each unit quaternion
+    ``q[g]`` (w, x, y, z; v_crystal = g v_sample), the sample-frame normals and directions as one
+    ``gemm`` of the catalogue with the matrices side by side (a gemm sums each length-3 product in
+    order, as numpy's stacked ``matmul`` did, so the rows agree to the bit), the Schmid factors
+    (``schmid_in[k]`` for row ``k`` when ``have_schmid``, else ``(n·l)(d·l)`` for the load axis
+    ``l``, one ``gemv`` each), the effective factors ``|m| / CRSS`` (the reverse CRSS where m < 0),
+    the best system of each plane (the first of its ``members`` at the maximum), the planes'
+    surface traces (unusable within ~3° of the surface) and the best system. Releases the GIL.
+    """
+    npl = plane_normals.shape[0]
+    ns = sys_normals.shape[0]
+    nk = idx.shape[0]
+    b = np.empty((3, 3 * nk))
+    for k in range(nk):
+        i = idx[k]
+        w, x, y, z = q[i, 0], q[i, 1], q[i, 2], q[i, 3]
+        c = 3 * k
+        # _geometry._matrices, entry by entry in its order; b[:, 3k + j] = g_k[:, j]
+        b[0, c] = 1 - 2 * (y * y + z * z)
+        b[0, c + 1] = 2 * (x * y - w * z)
+        b[0, c + 2] = 2 * (x * z + w * y)
+        b[1, c] = 2 * (x * y + w * z)
+        b[1, c + 1] = 1 - 2 * (x * x + z * z)
+        b[1, c + 2] = 2 * (y * z - w * x)
+        b[2, c] = 2 * (x * z - w * y)
+        b[2, c + 1] = 2 * (y * z + w * x)
+        b[2, c + 2] = 1 - 2 * (x * x + y * y)
+    nall = np.dot(sys_normals, b)
+    dall = np.dot(sys_dirs, b)
+    pall = np.dot(plane_normals, b)
+    nflat = np.empty((nk * ns, 3))
+    dflat = np.empty((nk * ns, 3))
+    for k in range(nk):
+        i = idx[k]
+        for s in range(ns):
+            for j in range(3):
+                nflat[k * ns + s, j] = nall[s, 3 * k + j]
+                dflat[k * ns + s, j] = dall[s, 3 * k + j]
+                n_s[i, s, j] = nall[s, 3 * k + j]
+                d_s[i, s, j] = dall[s, 3 * k + j]
+    if not have_schmid:
+        sa = np.dot(nflat, load)
+        sb = np.dot(dflat, load)
+    ok_all = np.ones(ns, np.bool_)
+    for k in range(nk):
+        i = idx[k]
+        for s in range(ns):
+            m = schmid_in[k, s] if have_schmid else sa[k * ns + s] * sb[k * ns + s]
+            schmid[i, s] = m
+            meff[i, s] = abs(m) / (crss[s] if m >= 0 else crss_rev[s])
+        best_sys[i] = _argmax_where(meff[i], ok_all)
+        for p in range(npl):
+            # np.argmax over the plane's members: the first maximum (the first NaN)
+            bm = members[p, 0]
+            bv = meff[i, bm]
+            if bv == bv:
+                for j in range(1, n_members[p]):
+                    v = meff[i, members[p, j]]
+                    if v != v:
+                        bm = members[p, j]
+                        break
+                    if v > bv:
+                        bv = v
+                        bm = members[p, j]
+            plane_sys[i, p] = bm
+            plane_meff[i, p] = meff[i, bm]
+            for j in range(3):
+                plane_n[i, p, j] = pall[p, 3 * k + j]
+            t0 = pall[p, 3 * k + 1]
+            t1 = -pall[p, 3 * k]
+            tn = math.sqrt(t0 * t0 + t1 * t1)
+            ok = tn > 0.05
+            trace_ok[i, p] = ok
+            den = tn if ok else 1.0
+            trace[i, p, 0] = t0 / den
+            trace[i, p, 1] = t1 / den
+        have[i] = True

@@ -32,9 +32,12 @@ until the final tables: its barriers are ranked from the tracer's crossing rows 
 once (``BarrierPlan``). In map mode without a crack the window's geometry is prepared once
 (:class:`slipnet.forecast.features.MapFieldPlan`, ``FieldPlan``) and each sample's field, τ and
 peak-search points are one kernel pass, beyond the horizon only where the sample reads them; in the
-other modes each sample runs the windowed feature builder. The path tracer (a Python loop over
-segments and crossings) is now the larger part of a sample's cost, and it holds the GIL: threads
-give little on it.
+other modes each sample runs the windowed feature builder. The paths are traced by one numba kernel
+(:func:`slipnet.forecast._trace_kernel.trace_arrays`, the rows of ``_core._trace_all`` to the bit)
+on the sample's crystal rows, computed for the window's grains in one vectorised pass. The tracer
+and field kernels release the GIL, so with ``workers > 1`` each thread computes whole samples;
+what still holds the GIL per sample is the numpy glue around the kernels (crystal rows, grain
+terms of the field, ranking, barrier features).
 """
 
 from __future__ import annotations
@@ -46,10 +49,11 @@ import pandas as pd
 
 from slipnet.crystal.orientation import quat_conjugate, quat_multiply
 from slipnet.crystal.perturb import perturb_sample
-from slipnet.forecast._core import _start_grain, _trace_all
+from slipnet.forecast._core import _start_grain
 from slipnet.forecast._geometry import _Crystal
 from slipnet.forecast._kernels import greedy_peaks
 from slipnet.forecast._mc_arrays import BarrierPlan, FieldPlan, rank_pairs
+from slipnet.forecast._trace_kernel import trace_arrays
 from slipnet.forecast._window import forecast_window
 from slipnet.forecast.features import MapFieldPlan, field_peaks, window_features
 from slipnet.forecast.localise import _coords, _GridShim, predict_field, site_probability
@@ -174,7 +178,7 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         peaks = _peaks(pv, px, py, max(ns, top_k), weights.site_separation_um) if ns else None
         return tau_w, fld, peaks
 
-    def one(s: int, dr: dict, field=None) -> dict:
+    def one(s: int, dr: dict) -> dict:
         q, ld, t = dr["q"], dr["ld"], dr["t"]
         g0 = _start_grain(geo, t, opts.d_ref)
         o = replace(opts, pw=dr["pw"])
@@ -182,11 +186,10 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
         if w is not None and not _holds(geo, w, t, opts.horizon + drop_r):
             w = forecast_window(gg, geo, np.stack([tip, t]), opts.horizon + drop_r)
         cry = _Crystal(q, ld, planes, schmid, rows=None if w is None else w.reach)
-        states, alt_cross = _trace_all(geo, cry, planes, float(t[0]), float(t[1]), g0, o)
-        main = states[0]
+        # the paths in one kernel call that releases the GIL (the rows of _core._trace_all)
+        tr = trace_arrays(geo, cry, planes, float(t[0]), float(t[1]), g0, o)
         # the ranking as arrays: no crossing or barrier table per sample
-        b = rank_pairs(main.crossings + alt_cross, dr["bw"], decay_length_um=decay, class_factors=cf,
-                       class_memo=class_memo)
+        b = rank_pairs(tr.rank_rows(), dr["bw"], decay_length_um=decay, class_factors=cf, class_memo=class_memo)
         out = {"on_path": np.zeros(nk), "top": np.zeros(nk), "p_hit": np.zeros(ns), "present": np.zeros(ns),
                "site_top": np.zeros(ns), "p_drop": np.zeros(nb)}
         if nk and b["lo"].size:
@@ -206,7 +209,7 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
                       memo=memo if w is win else None)
             peaks = None
             if fplan is not None and w is win:
-                tau_w, fld, peaks = field_part(dr) if field is None else field.result()
+                tau_w, fld, peaks = field_part(dr)
                 solid_w, window = plan_solid, plan.window
             else:
                 with solve_lock:  # parallel kernels of the stress steps: one thread at a time if they must be
@@ -234,13 +237,12 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
             if nb:
                 xb = bar_plan.features(fld, tau_w, geo.labels[r0:r1, c0:c1], solid_w, x, y, cry)
                 out["p_drop"] = weights.model(mode, "barriers").probability(xb, dr["rep"])
-        seg = main.segments
-        end = (seg[-1]["x1_um"], seg[-1]["y1_um"]) if seg else (t[0], t[1])
+        end = tr.main_end() or (t[0], t[1])
         out["row"] = {
             "sample": s, "tip_x_um": float(t[0]), "tip_y_um": float(t[1]), "tip_reset": dr["reset"],
             "load_x": float(ld[0]), "load_y": float(ld[1]), "load_z": float(ld[2]),
-            "path_length_um": float(sum(sg["length_um"] for sg in seg)), "n_crossings": len(main.crossings),
-            "stop_reason": main.stop,
+            "path_length_um": tr.main_length(), "n_crossings": tr.n_main_crossings,
+            "stop_reason": tr.main_stop,
             "top_barrier_id": int(b["boundary_id"][0]) if b["boundary_id"].size else -1,
             "end_x_um": float(end[0]), "end_y_um": float(end[1]),
         }
@@ -251,20 +253,13 @@ def monte_carlo(fc, geo, planes, quats, load, schmid, tip, opts, *, samples: int
     rows = []
     n_workers = max(1, int(workers))
     solve_lock = _parallel_guard(n_workers)
-    # in map mode this thread is one of the workers (the tracer), the pool computes the fields
-    pool = ThreadPoolExecutor(max_workers=n_workers - 1 if fplan is not None else n_workers) if n_workers > 1 else None
+    geo.edge_arrays()  # the tracer's boundary look-up, built here rather than raced for by the threads
+    pool = ThreadPoolExecutor(max_workers=n_workers) if n_workers > 1 else None
     try:
         for start in range(0, samples, BATCH):
             idx = range(start, min(samples, start + BATCH))
             draws = [_draw(rng, quats, load, tip, opts, bw, noise, n_rep, schmid, stress_given, geo) for _ in idx]
-            if pool is not None and fplan is not None:
-                # map mode: the workers compute the fields (GIL released in the kernels) while this thread
-                # runs the path tracer, which holds the GIL; threads each running whole samples would
-                # spend their time waiting for it
-                fields_ = [pool.submit(field_part, d) if _holds(geo, win, d["t"], opts.horizon + drop_r) else None
-                           for d in draws]
-                outs = [one(s, d, f) for s, d, f in zip(idx, draws, fields_, strict=True)]
-            elif pool is not None:
+            if pool is not None:  # whole samples per thread: the tracer and field kernels release the GIL
                 outs = list(pool.map(one, idx, draws))
             else:
                 outs = [one(s, d) for s, d in zip(idx, draws, strict=True)]
