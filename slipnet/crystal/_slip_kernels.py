@@ -14,6 +14,7 @@ import numba as nb
 import numpy as np
 
 from slipnet.crystal.orientation_kernels import quat_rotate_single, quat_to_matrix_single
+from slipnet.sized_kernels import sized_kernel
 
 
 @nb.njit(cache=True, inline="always")
@@ -28,7 +29,7 @@ def _load_in_crystal(q, load):
             load[2] + w * tz + (x * ty - y * tx))
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def schmid_rows(q, load, normals_t, directions_t, out):
     """Signed Schmid factors ``(n·l_c)(d·l_c)`` per row; ``out`` (n, n_sys), float32 or float64.
 
@@ -52,7 +53,7 @@ def schmid_rows(q, load, normals_t, directions_t, out):
 BLOCK = 1024
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def schmid_summary_rows(q, load, normals_t, directions_t, inv_crss_pos, inv_crss_neg,
                         m_max, s_max, m_second, s_second, eff_max, s_eff, sign_max):
     """Per row: largest |m| and its system, runner-up |m| and system, largest |m|/crss and system.
@@ -114,7 +115,7 @@ def schmid_summary_rows(q, load, normals_t, directions_t, inv_crss_pos, inv_crss
             sign_max[i] = -1 if neg else 1
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def resolved_shear_rows(q, stress, normals, directions, out):
     """``τ = d · (g σ gᵀ) n`` per row; ``stress`` is (1, 3, 3) (shared) or (n, 3, 3)."""
     ns = normals.shape[0]
@@ -150,7 +151,7 @@ def resolved_shear_rows(q, stress, normals, directions, out):
             out[i, s] = acc
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def trace_rows(q, normals, angle, inclination):
     """Surface trace angle (rad, [0, π), +x towards +y) and plane inclination to the surface (rad).
 
@@ -215,7 +216,9 @@ def _line_in_boundary(n, gbn, out):
 _REDUCE_MATH = {"reassoc", "nsz", "contract"}
 
 
-@nb.njit(cache=True, parallel=True, fastmath=_REDUCE_MATH)
+# serial: 10⁵ boundaries take tens of milliseconds, and the parallel build compiled twice as long (5.6 s
+# against 12 s cold)
+@nb.njit(cache=True, fastmath=_REDUCE_MATH)
 def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, normals, directions, gb_normal, burgers, eff_scale,
                           mp_in, out_sys, score, score_sys, resid, shen, mp_max):
     """Transmission summaries for every boundary and both directions.
@@ -241,7 +244,7 @@ def boundary_summary_rows(quats, grain_a, grain_b, eff, in_sys, normals, directi
     ns = normals.shape[0]
     blk_size = 64
     nblk = (nb_ + blk_size - 1) // blk_size
-    for blk in nb.prange(nblk):
+    for blk in range(nblk):
         # scratch arrays once per block of boundaries, not once per boundary
         ga = np.empty((3, 3))
         gb = np.empty((3, 3))

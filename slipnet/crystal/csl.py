@@ -32,6 +32,7 @@ from slipnet.crystal.orientation import (
     quat_multiply,
     random_quats,
 )
+from slipnet.sized_kernels import kernel_input
 
 if TYPE_CHECKING:  # pandas is imported where a table is made: it costs ~0.5 s at start-up
     import pandas as pd
@@ -144,8 +145,9 @@ def classify_boundaries(angle: np.ndarray, dq: np.ndarray, same_phase: np.ndarra
     equiv = np.ascontiguousarray(quat_multiply(cq[:, None, :], CUBIC_OPERATORS[None, :, :]))
     dev = np.empty((dq.shape[0], len(table)))
     if dq.shape[0]:
-        _k.csl_deviation(np.ascontiguousarray(dq), np.ascontiguousarray(angle, dtype=np.float64), equiv,
-                         table["angle_deg"].to_numpy(), table["brandon_limit_deg"].to_numpy(), dev)
+        _k.csl_deviation(kernel_input(dq), kernel_input(angle), kernel_input(equiv),
+                         kernel_input(table["angle_deg"].to_numpy()), kernel_input(table["brandon_limit_deg"].to_numpy()),
+                         dev)
     match = dev <= table["brandon_limit_deg"].to_numpy()[None, :]
     first = np.argmax(match, axis=1)
     anym = match.any(axis=1)

@@ -3,7 +3,9 @@
 The array wrappers live in :mod:`slipnet.crystal.orientation`.
 
 Each operation has a ``*_single`` kernel for one item and a row kernel looping over ``(n, k)``
-arrays with ``prange``. Quaternions are ``(w, x, y, z)``.
+arrays with ``prange``: serial below :data:`slipnet.sized_kernels.PARALLEL_ROWS` rows, threaded from
+there (:func:`slipnet.sized_kernels.sized_kernel`; the rows are independent, so both give the same
+numbers). Quaternions are ``(w, x, y, z)``.
 """
 
 from __future__ import annotations
@@ -12,6 +14,8 @@ import math
 
 import numba as nb
 import numpy as np
+
+from slipnet.sized_kernels import sized_kernel
 
 SQRT2_INV = 1.0 / math.sqrt(2.0)
 
@@ -46,7 +50,7 @@ def quat_multiply_single(a, b, out):
     out[3] = a[0] * b[3] + a[1] * b[2] - a[2] * b[1] + a[3] * b[0]
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def quat_multiply_rows(a, b, out):
     for i in nb.prange(a.shape[0]):
         quat_multiply_single(a[i], b[i], out[i])
@@ -71,7 +75,7 @@ def euler_to_quat_single(e, out):
     out[3] = z
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def euler_to_quat_rows(e, out):
     for i in nb.prange(e.shape[0]):
         euler_to_quat_single(e[i], out[i])
@@ -104,7 +108,7 @@ def quat_to_euler_single(q, out):
     out[2] = phi2
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def quat_to_euler_rows(q, out):
     for i in nb.prange(q.shape[0]):
         quat_to_euler_single(q[i], out[i])
@@ -125,7 +129,7 @@ def quat_to_matrix_single(q, out):
     out[2, 2] = 1.0 - 2.0 * (x * x + y * y)
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def quat_to_matrix_rows(q, out):
     for i in nb.prange(q.shape[0]):
         quat_to_matrix_single(q[i], out[i])
@@ -167,7 +171,7 @@ def matrix_to_quat_single(m, out):
     out[3] = z / n
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def matrix_to_quat_rows(m, out):
     for i in nb.prange(m.shape[0]):
         matrix_to_quat_single(m[i], out[i])
@@ -185,7 +189,7 @@ def quat_rotate_single(q, v, out):
     out[2] = v[2] + w * tz + (x * ty - y * tx)
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def quat_rotate_rows(q, v, out):
     for i in nb.prange(q.shape[0]):
         quat_rotate_single(q[i], v[i], out[i])
@@ -247,7 +251,7 @@ def closed_form_angle(a, b, c, d):
     return 2.0 * math.atan2(math.sqrt(v2), w)
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def disorientation_angle_rows(qa, qb, out):
     # dq = qb * conj(qa); only |dq| components enter, so the product is written out inline.
     for i in nb.prange(qa.shape[0]):
@@ -284,7 +288,7 @@ def nearest_cubic_single(w, x, y, z, r0, r1, r2, r3, ops):
     return bw, bx, by, bz, best
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def disorientation_rows(qa, qb, ops, angle, axis):
     """Disorientation angle (rad) and axis (crystal frame, sorted h >= k >= l >= 0)."""
     for i in nb.prange(qa.shape[0]):
@@ -304,7 +308,7 @@ def disorientation_rows(qa, qb, ops, angle, axis):
             axis[i, 0], axis[i, 1], axis[i, 2] = h, k2, l3
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def reduce_cubic_rows(q, ops, out):
     """Cubic equivalent ``S q`` with the largest scalar part, w >= 0."""
     for i in nb.prange(q.shape[0]):
@@ -312,7 +316,7 @@ def reduce_cubic_rows(q, ops, out):
             q[i, 0], q[i, 1], q[i, 2], q[i, 3], 1.0, 0.0, 0.0, 0.0, ops)
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def nearest_cubic_rows(q, ref, ops, out):
     """Cubic equivalent ``S q`` closest to ``ref`` (one reference per row), sign matched to it."""
     for i in nb.prange(q.shape[0]):
@@ -332,7 +336,7 @@ def cubic_angle(w, x, y, z):
     return closed_form_angle(a, b, c, d)
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def csl_deviation(dq, angle_deg, equivalents, csl_angle_deg, limit_deg, out):
     """Smallest angle (degrees) between each misorientation and each CSL rotation.
 

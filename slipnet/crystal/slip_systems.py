@@ -48,6 +48,7 @@ import numpy as np
 from slipnet._checks import check_choice, check_positive, check_vector
 from slipnet.crystal import _slip_kernels as _k
 from slipnet.errors import NumericalError, ParameterError
+from slipnet.sized_kernels import kernel_input
 
 __all__ = [
     "BURGERS_LENGTH",
@@ -303,11 +304,11 @@ def _chunks(n: int, chunk: int):
 
 def _components_first(systems: SlipSystems) -> tuple[np.ndarray, np.ndarray]:
     """(3, n_sys) copies of the normals and directions: contiguous along systems for the kernels."""
-    return np.ascontiguousarray(systems.normals.T), np.ascontiguousarray(systems.directions.T)
+    return kernel_input(systems.normals.T), kernel_input(systems.directions.T)
 
 
 def _contig(q: np.ndarray) -> np.ndarray:
-    return np.ascontiguousarray(q, dtype=np.float64)
+    return kernel_input(q)
 
 
 def schmid_factors(quats, load_axis, systems: SlipSystems, *, dtype=np.float64, out: np.ndarray | None = None,
@@ -492,7 +493,8 @@ def resolved_shear(quats, stress, systems: SlipSystems) -> np.ndarray:
         if s.shape[0] != q.shape[0]:
             raise ParameterError(f"stress should be one tensor or one per orientation ({q.shape[0]}); got {s.shape[0]}")
     out = np.empty((q.shape[0], len(systems)))
-    _k.resolved_shear_rows(_contig(q), np.ascontiguousarray(s), systems.normals, systems.directions, out)
+    _k.resolved_shear_rows(_contig(q), kernel_input(s), kernel_input(systems.normals),
+                           kernel_input(systems.directions), out)
     return out.reshape(*lead, len(systems))
 
 
@@ -525,7 +527,7 @@ def trace_geometry(quats, systems):
     q, lead = _quat_rows(quats)
     ang = np.empty((q.shape[0], len(systems)))
     inc = np.empty_like(ang)
-    _k.trace_rows(_contig(q), systems.normals, ang, inc)
+    _k.trace_rows(_contig(q), kernel_input(systems.normals), ang, inc)
     return np.rad2deg(ang).reshape(*lead, -1), np.rad2deg(inc).reshape(*lead, -1)
 
 

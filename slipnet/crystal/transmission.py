@@ -38,6 +38,7 @@ from slipnet.crystal import _slip_kernels as _k
 from slipnet.crystal.orientation import matrix_from_quat
 from slipnet.crystal.slip_systems import SlipSystems, check_systems, effective_schmid, schmid_factors
 from slipnet.errors import ParameterError
+from slipnet.sized_kernels import kernel_input
 
 __all__ = [
     "boundary_plane_normals",
@@ -219,7 +220,9 @@ def transmission_summaries(grain_quats, grain_a, grain_b, systems: SlipSystems, 
         "shen": np.empty((n_b, 2)), "m_prime_max": np.empty(n_b),
     }
     _k.boundary_summary_rows(
-        qk, ga, gb, eff, in_sys, systems.normals, systems.directions, gbn, burgers, 1.0 / systems.max_effective,
+        kernel_input(qk), kernel_input(ga, np.int64), kernel_input(gb, np.int64), kernel_input(eff),
+        kernel_input(in_sys, np.int64), kernel_input(systems.normals), kernel_input(systems.directions),
+        kernel_input(gbn), kernel_input(burgers), 1.0 / systems.max_effective,
         out["m_prime"], out["slip_out"], out["score"], out["score_system"], out["residual_burgers"], out["shen"],
         out["m_prime_max"],
     )

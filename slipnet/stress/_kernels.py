@@ -5,6 +5,11 @@ Tensors are stored in Mandel notation: a symmetric 3 × 3 tensor T becomes the 6
 of the 6-vectors and a fourth-order stiffness with minor symmetries becomes a symmetric 6 × 6
 matrix. Fields are laid out as ``(6, N)`` (component first) so each component is one contiguous
 array for the FFTs; stiffnesses as ``(N, 6, 6)`` so one point's matrix is contiguous.
+
+Kernels whose points are independent are :func:`slipnet.sized_kernels.sized_kernel` (serial on the
+grids of a first look, threaded on large ones, the same numbers); the three that sum over the
+points (``direction_stiffness``, ``dot``, ``cg_update``) stay ``parallel=True`` at every size, since
+a serial sum would add in another order than the threaded one.
 """
 
 from __future__ import annotations
@@ -15,6 +20,7 @@ import numba as nb
 import numpy as np
 
 from slipnet.crystal.orientation_kernels import quat_to_matrix_single
+from slipnet.sized_kernels import sized_kernel
 
 SQRT2 = math.sqrt(2.0)
 INV_SQRT2 = 1.0 / math.sqrt(2.0)
@@ -37,7 +43,7 @@ def mandel_rotation_single(g, pairs, out):
             out[a, b] = 0.5 * ca * cb * (g[i, k] * g[j, m] + g[i, m] * g[j, k])
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel()
 def stiffness_field(quats, phase_index, crystal_c, soft_c, pairs, out):
     """Per-point sample-frame stiffness ``Qᵀ C_crystal Q`` (Mandel, GPa or any unit).
 
@@ -73,7 +79,7 @@ def stiffness_field(quats, phase_index, crystal_c, soft_c, pairs, out):
                 out[p, a, b] = s
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel(rows=lambda c, eps, out: eps.shape[1])
 def apply_stiffness(c, eps, out):
     """``out[:, p] = C[p] · eps[:, p]`` for every point p (fields ``(6, N)``)."""
     n = eps.shape[1]
@@ -121,7 +127,7 @@ def direction_stiffness(c, p, r, beta, out):
     return s
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel(rows=lambda c, eps, eig, out: eps.shape[1])
 def apply_stiffness_eigen(c, eps, eig, out):
     """``out[:, p] = C[p] · (eps[:, p] − eig[:, p])`` (stress with an eigenstrain)."""
     n = eps.shape[1]
@@ -133,7 +139,7 @@ def apply_stiffness_eigen(c, eps, eig, out):
             out[a, p] = s
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel(rows=lambda spec, kvec, kind: spec.shape[1] * spec.shape[2])
 def project(spec, kvec, kind):
     """Project a spectrum of symmetric tensors onto compatible strains, in place.
 
@@ -207,7 +213,7 @@ def cg_update(x, r, p, ap, alpha):
     return s
 
 
-@nb.njit(cache=True, parallel=True)
+@sized_kernel(rows=lambda quats, soft, sig, *rest: sig.shape[1])
 def slip_rates(quats, soft, sig, schmid_c, crss, reverse, rate0, exponent, out_rate, out_eps_rate):
     """Power-law slip rates and the plastic strain rate they give, per point.
 

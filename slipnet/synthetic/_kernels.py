@@ -1,4 +1,8 @@
-"""numba kernels of the synthetic specimen generator (one pass over map points, parallel)."""
+"""numba kernels of the synthetic specimen generator (one pass over map points).
+
+Both are :func:`slipnet.sized_kernels.sized_kernel`: serial on a demo coupon, threaded on large maps,
+the same numbers (every point is computed on its own).
+"""
 
 from __future__ import annotations
 
@@ -6,6 +10,8 @@ import math
 
 import numpy as np
 from numba import njit, prange
+
+from slipnet.sized_kernels import sized_kernel
 
 
 @njit(cache=True, inline="always")
@@ -31,7 +37,7 @@ def _mul(aw, ax, ay, az, bw, bx, by, bz) -> tuple[float, float, float, float]:
     )
 
 
-@njit(cache=True, parallel=True)
+@sized_kernel()
 def compose_point_orientations(
     labels: np.ndarray,
     x: np.ndarray,
@@ -90,7 +96,7 @@ def compose_point_orientations(
         out[p, 3] = rz / norm
 
 
-@njit(cache=True, parallel=True)
+@sized_kernel(rows=lambda r0, r1, nx, *rest: (r1 - r0) * nx)
 def power_cell_labels(
     r0: int,
     r1: int,
