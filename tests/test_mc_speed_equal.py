@@ -262,3 +262,32 @@ def test_perturb_orientations_kernel_equals_the_numpy_products():
         want = _qmul(quat_from_axis_angle(axes, angles), q)
         want = np.where(want[:, :1] < 0, -want, want)
         np.testing.assert_array_equal(got, want)
+
+
+def test_sample_peaks_buffers_are_recycled_only_when_let_go(poly_gg):
+    # the outputs are views of a recycled buffer: a held result never changes, a dropped one is reused clean
+    from slipnet.crystal import perturb_sample
+
+    plan, fast, model, tip = _peak_case(poly_gg)
+    rng = np.random.default_rng(5)
+    need = (rng.random(plan.lab.size) < 0.05) & plan.solid
+    args = []
+    for _ in range(3):
+        q, ld, dt = perturb_sample(rng, np.asarray(poly_gg.mean_quats), 2.0, (0.0, 1.0, 0.0), 3.0, tip, 1.5)
+        args.append((q, ld, tip + dt, (1.0, 0.0), model, None, 60.0, need, 8, 10.0))
+    first = fast.sample_peaks(*args[0])
+    kept = [a.copy() for a in first[:2]]
+    sub = first[1][2:9, 3:]  # a view of a view keeps the buffer too
+    second = fast.sample_peaks(*args[1])
+    assert second[1].base is not first[1].base
+    np.testing.assert_array_equal(first[0], kept[0])
+    del first
+    np.testing.assert_array_equal(sub, kept[1][2:9, 3:])
+    del sub
+    assert len(fast._free) == 1
+    third = fast.sample_peaks(*args[2])  # takes the buffer of `first` back: cleared of the first sample's points
+    fresh = type(fast)(plan).sample_peaks(*args[2])
+    for a, b in zip(third, fresh, strict=True):
+        np.testing.assert_array_equal(a, b)
+    assert (first_points := (kept[1] != 0).sum()) > 100 and (third[1] != 0).sum() > 100, first_points
+    assert third[2].shape[0] == 8 and len(fast._free) == 0

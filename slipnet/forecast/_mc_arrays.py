@@ -17,6 +17,7 @@ Every kernel here releases the GIL, so a sample's field runs whole on a worker t
 from __future__ import annotations
 
 import math
+import weakref
 
 import numba as nb
 import numpy as np
@@ -310,6 +311,7 @@ class FieldPlan:
         self.ew = np.ascontiguousarray(p.ew, float)
         self._coefs: dict = {}
         self._need: tuple = (None, None)
+        self._free: list = []  # output buffers no caller holds: (bytes, written points, their count)
         self._tiles = _tiles(p, _TILE)
 
     def _model_terms(self, model, replicate):
@@ -388,7 +390,8 @@ class FieldPlan:
         -------
         tau, field : (ny, nx) ndarray
             τ and the field at the ``need`` points and at the points the peak search evaluated
-            (0 elsewhere: only the ``need`` points are to be read).
+            (0 elsewhere: only the ``need`` points are to be read). Both are views of a buffer the
+            plan recycles once no view of it is left, so holding them is safe.
         peaks : (≤k, 2) ndarray or None
             The peaks (x, y) in µm: those of ``greedy_peaks`` over :meth:`sample`'s ``peak_*``
             points (``monte_carlo._peaks``), the highest first. A tile of the horizon is evaluated
@@ -400,17 +403,28 @@ class FieldPlan:
         grain_z, tau_f, mp_sorted, mean7, scale7, coef7 = self._grain_part(mean_quats, load_axis, model, replicate)
         d = np.asarray(direction, float) / np.linalg.norm(direction)
         n = p.lab.size
-        fld, tau = np.zeros(n), np.zeros(n)
         obj, idx = self._need
         if obj is not need:
             idx = np.flatnonzero(p.solid if need is None else (np.asarray(need, bool) & p.solid)).astype(np.int64)
             self._need = (need, idx)
+        # the two output arrays from a recycled buffer: fresh window-sized arrays cost more in page
+        # faults than the kernel spends computing (the sample writes a few thousand scattered points)
+        try:
+            raw, written, prev = self._free.pop()
+        except IndexError:  # none free: the first call, or every buffer still held by a caller
+            raw, written, prev = bytearray(16 * n), np.empty(2 * n, np.int64), np.zeros(1, np.int64)
+        root = np.frombuffer(raw, np.float64)
+        fld, tau = root[:n], root[n:]
         out = np.zeros((max(int(k), 1), 2))
         t = self._tiles
         c = _field_and_peaks(p.lab, p.e_block, p.pair_pos, p.lnd, p.x, p.y, grain_z, tau_f, mp_sorted,
                              float(tip[0]), float(tip[1]), float(d[0]), float(d[1]), p.step, mean7, scale7, coef7,
                              float(horizon), idx, t["ptr"], t["pts"], t["box"], t["f6"], t["eb"], t["g_ptr"],
-                             t["g_ids"], t["p_ptr"], t["p_ids"], int(k), float(separation_um) ** 2, fld, tau, out)
+                             t["g_ids"], t["p_ptr"], t["p_ids"], int(k), float(separation_um) ** 2, fld, tau, out,
+                             written, prev)
+        # back to the free list once the caller holds no view of it (every view's base is ``root``;
+        # list.append and list.pop are atomic between threads)
+        weakref.finalize(root, self._free.append, (raw, written, prev))
         peaks = out[:c].copy() if k > 0 else None
         return tau.reshape(p.shape), fld.reshape(p.shape), peaks
 
@@ -714,7 +728,7 @@ def _sift(heap, key, i, n):
 @nb.njit(cache=True, nogil=True)
 def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorted, tx, ty, d0, d1, step, mean, scale,
                      coef, horizon, need_idx, t_ptr, t_pts, t_box, t_f6, t_eb, g_ptr, g_ids, p_ptr, p_ids, k, sep2,
-                     fld, tau_out, out):
+                     fld, tau_out, out, written, n_written):
     """The field and τ at ``need_idx``, and the greedy peaks of the horizon evaluated tile by tile.
 
     The peaks are those of :func:`slipnet.forecast._kernels.greedy_peaks` over every metal point
@@ -723,11 +737,17 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
     from its grains' logit, its pairs' |m′|, its range of distances to the tip and of the notch
     feature (with a margin far above round-off), and tiles are evaluated in decreasing bound only
     while the bound is not below the best allowed point so far: a tile never evaluated holds no
-    point that could have been chosen. Writes ``out[:n]`` = (x, y); returns n. Releases the GIL.
+    point that could have been chosen. Writes ``out[:n]`` = (x, y); returns n. ``written[:n_written[0]]``
+    lists the points ``fld`` and ``tau_out`` hold values at: set back to 0 first (a recycled buffer),
+    then the points of this call. Releases the GIL.
     """
     h2 = horizon * horizon
     a3, a4, a5, a6 = coef[3] / scale[3], coef[4] / scale[4], coef[5] / scale[5], coef[6] / scale[6]
     inv_step = 1.0 / step
+    for q in range(n_written[0]):  # a recycled buffer: the points its last sample wrote back to 0
+        fld[written[q]] = 0.0
+        tau_out[written[q]] = 0.0
+    nw = 0
     for q in range(need_idx.shape[0]):
         p = need_idx[q]
         dx = x[p] - tx
@@ -735,6 +755,9 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
         fld[p] = _value(p, dx, dy, dx * dx + dy * dy, lab, e_block, pair_pos, lnd, grain_z, mp_sorted, d0, d1, step,
                         inv_step, mean, a3, a4, a5, a6)
         tau_out[p] = tau_g[lab[p]]
+        written[nw] = p
+        nw += 1
+    n_written[0] = nw
     if k <= 0:
         return 0
     nt = t_box.shape[0]
@@ -818,6 +841,8 @@ def _field_and_peaks(lab, e_block, pair_pos, lnd, x, y, grain_z, tau_g, mp_sorte
                              mean, a3, a4, a5, a6)
                 fld[p] = val
                 tau_out[p] = tau_g[lab[p]]
+                written[n_written[0]] = p  # at most once per tile point: within the 2n of the buffer
+                n_written[0] += 1
                 ev_v[m] = val
                 ev_i[m] = p
                 if bi < 0 or val > bv or (val == bv and p < ev_i[bi]):
